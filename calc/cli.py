@@ -1,0 +1,158 @@
+"""The ``relsheet`` command line.
+
+Exit codes: 0 fine; 2 the sheet has errors; 64 the command line was used
+wrongly; 70 an internal error (a bug: ``--debug`` shows the traceback).
+Errors print as ``file:line:col: message``, the line, a caret and a hint;
+never a Python traceback unless ``--debug`` is given.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import traceback
+
+from .errors import SheetError, UsageError
+
+EXIT_OK = 0
+EXIT_SHEET_ERRORS = 2
+EXIT_USAGE = 64
+EXIT_INTERNAL = 70
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage errors as :class:`UsageError` (exit 64, not 2)."""
+
+    def error(self, message: str):  # noqa: D102 - argparse API
+        raise UsageError(message, hint=f"`{self.prog} --help` shows the usage")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="relsheet",
+                     description="Sheets of named quantities with units, for relativistic "
+                                 "and celestial-mechanics corrections.")
+    parser.add_argument("--debug", action="store_true",
+                        help="show Python tracebacks of internal errors")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    ev = commands.add_parser("eval", help="evaluate a sheet and print every cell",
+                             description="Evaluate a sheet and print every cell.")
+    ev.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    ev.add_argument("--set", dest="overrides", action="append", default=[], metavar="NAME=EXPR",
+                    help="give cell NAME the expression EXPR for this run (repeatable)")
+    ev.add_argument("--format", choices=["text", "json"], default="text",
+                    help="text for people (default), json for programs")
+    ev.add_argument("--digits", type=int, default=6, metavar="N",
+                    help="significant digits in text output (1-17, default 6)")
+    ev.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                    help="show Python tracebacks of internal errors")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args_list = sys.argv[1:] if argv is None else argv
+    debug = "--debug" in args_list
+    try:
+        parser = build_parser()
+        args = parser.parse_args(args_list)
+        if args.command is None:
+            parser.print_help(sys.stderr)
+            return EXIT_USAGE
+        return _COMMANDS[args.command](args)
+    except UsageError as err:
+        print(f"relsheet: {err.message}", file=sys.stderr)
+        if err.hint:
+            print(f"  hint: {err.hint}", file=sys.stderr)
+        return EXIT_USAGE
+    except SheetError as err:
+        print(err.render(), file=sys.stderr)
+        return EXIT_SHEET_ERRORS
+    except KeyboardInterrupt:
+        return 130
+    except BrokenPipeError:
+        return EXIT_OK
+    except Exception as exc:  # a bug of ours
+        if debug:
+            traceback.print_exc()
+        else:
+            print(f"relsheet: internal error: {type(exc).__name__}: {exc}\n"
+                  "  hint: please report this; --debug shows the traceback", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+def _report(errors: list[SheetError], debug: bool) -> None:
+    for err in errors:
+        print(err.render(), file=sys.stderr)
+        if debug and err.__cause__ is not None:
+            traceback.print_exception(err.__cause__, file=sys.stderr)
+    if errors:
+        count = len(errors)
+        print(f"{count} error{'s' if count != 1 else ''}", file=sys.stderr)
+
+
+def _apply_overrides(sheet, overrides: list[str]) -> None:
+    from .units import close_matches, did_you_mean
+
+    for item in overrides:
+        name, sep, expr = item.partition("=")
+        name = name.strip()
+        if not sep or not name:
+            raise UsageError(f"--set takes NAME=EXPR, got `{item}`", hint="for example --set a=2 AU")
+        if name not in sheet:
+            raise UsageError(f"--set: the sheet has no cell `{name}`",
+                             hint=did_you_mean(close_matches(name, sheet.names())))
+        sheet.set(name, expr.strip(), label=f"--set {name}")
+
+
+def cmd_eval(args) -> int:
+    from .sheet import Sheet
+
+    if not 1 <= args.digits <= 17:
+        raise UsageError(f"--digits must be between 1 and 17, got {args.digits}")
+    sheet = Sheet.load(args.file)
+    _apply_overrides(sheet, args.overrides)
+    if args.format == "json":
+        from .export import to_json
+
+        print(to_json(sheet))
+    else:
+        print(render_text(sheet, args.digits))
+    _report(sheet.all_errors(), args.debug)
+    return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
+
+
+def render_text(sheet, digits: int) -> str:
+    """Headings, then aligned name / value / unit; errors inline."""
+    from .format import format_quantity
+    from .sheet import Cell
+
+    rows: list[tuple[str, ...]] = []
+    for item in sheet.items:
+        if isinstance(item, Cell):
+            if item.error is not None:
+                rows.append(("cell", item.name, f"error: {item.error.message}", ""))
+            else:
+                rows.append(("cell", item.name, *format_quantity(item.value, digits)))
+        elif item.heading:
+            rows.append(("heading", item.text))
+    name_width = max((len(r[1]) for r in rows if r[0] == "cell"), default=0)
+    scalars = [len(r[2]) for r in rows if r[0] == "cell" and r[3] and not r[2].startswith("[")]
+    value_width = min(24, max(scalars, default=0))
+    lines = [f"{sheet.source.label}  ·  constants {', '.join(sheet.selection.names)}"]
+    for row in rows:
+        if row[0] == "heading":
+            lines += ["", row[1]]
+        else:
+            _, name, value, unit = row
+            line = f"  {name:<{name_width}}  {value:<{value_width}}  {unit}" if unit \
+                else f"  {name:<{name_width}}  {value}"
+            lines.append(line.rstrip())
+    return "\n".join(lines)
+
+
+_COMMANDS = {"eval": cmd_eval}
+
+
+def run() -> None:
+    """Console-script entry point."""
+    sys.exit(main())

@@ -1,0 +1,173 @@
+"""One error hierarchy for everything a sheet can get wrong.
+
+Every error knows where it happened (a :class:`Span` in a :class:`Source`),
+says what is wrong in one line, and may carry a hint. :meth:`SheetError.render`
+produces the text the command line prints::
+
+    demo.sheet:12:7: unknown unit `kmz`
+      v = 3 kmz / s
+            ^~~
+      hint: did you mean `km`, `mm`?
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True, slots=True)
+class Span:
+    """A region of source text; lines and columns count from 1, ``end_column`` is exclusive."""
+
+    line: int
+    column: int
+    end_line: int
+    end_column: int
+
+    def to(self, other: Span) -> Span:
+        """The span from the start of ``self`` to the end of ``other``."""
+        return Span(self.line, self.column, other.end_line, other.end_column)
+
+
+@dataclass(frozen=True, slots=True)
+class Source:
+    """Where text came from (a file path or a label such as ``--set``) and the text itself."""
+
+    label: str
+    text: str
+
+    def line_text(self, line: int) -> str:
+        lines = self.text.splitlines()
+        return lines[line - 1] if 0 < line <= len(lines) else ""
+
+
+class SheetError(Exception):
+    """Base of every error a sheet, a command line or an expression can produce."""
+
+    kind = "error"
+
+    def __init__(
+        self,
+        message: str,
+        span: Span | None = None,
+        hint: str | None = None,
+        source: Source | None = None,
+    ) -> None:
+        super().__init__(message)
+        self.message = message
+        self.span = span
+        self.hint = hint
+        self.source = source
+
+    def located(self, span: Span | None = None, source: Source | None = None) -> SheetError:
+        """Fill in a span and source that are still missing; returns ``self``."""
+        if self.span is None:
+            self.span = span
+        if self.source is None:
+            self.source = source
+        return self
+
+    @property
+    def location(self) -> str:
+        label = self.source.label if self.source else "<sheet>"
+        if self.span is None:
+            return label
+        return f"{label}:{self.span.line}:{self.span.column}"
+
+    def render(self) -> str:
+        """``file:line:col: message``, the source line, a caret under the span, the hint."""
+        out = [f"{self.location}: {self.message}"]
+        if self.span is not None and self.source is not None:
+            text = self.source.line_text(self.span.line)
+            if text:
+                start = self.span.column - 1
+                if self.span.end_line == self.span.line:
+                    width = max(1, self.span.end_column - self.span.column)
+                else:
+                    width = max(1, len(text) - start)
+                # keep tabs so the caret lines up under tab-indented text
+                pad = "".join("\t" if ch == "\t" else " " for ch in text[:start])
+                out.append("  " + text)
+                out.append("  " + pad + "^" + "~" * (width - 1))
+        if self.hint:
+            out.append(f"  hint: {self.hint}")
+        return "\n".join(out)
+
+    def __str__(self) -> str:
+        return self.message
+
+
+class SheetSyntaxError(SheetError):
+    """The text is not a sentence of the sheet language (bad character, bracket, token)."""
+
+    kind = "syntax"
+
+
+class InputError(SheetError):
+    """The input cannot be read at all: invalid UTF-8, too large, too deeply nested."""
+
+    kind = "input"
+
+
+class NameResolutionError(SheetError):
+    """A name that is unknown, ambiguous (cell and unit), reserved, or used in the wrong place."""
+
+    kind = "name"
+
+
+class UnitError(SheetError):
+    """Incompatible dimensions: mismatched units, impossible conversions, dimensioned exponents."""
+
+    kind = "unit"
+
+
+class CycleError(SheetError):
+    """Cells that depend on themselves; ``cycle`` lists them as ``a → b → a``."""
+
+    kind = "cycle"
+
+    def __init__(self, message: str, cycle: list[str], **kwargs) -> None:
+        super().__init__(message, **kwargs)
+        self.cycle = cycle
+
+
+class DuplicateCellError(SheetError):
+    """A cell name defined on two lines."""
+
+    kind = "duplicate"
+
+
+class DomainError(SheetError):
+    """A value outside where an operation or function is defined, or a non-finite result."""
+
+    kind = "domain"
+
+
+class InputFailedError(SheetError):
+    """A cell could not be computed because a cell it uses failed."""
+
+    kind = "input-failed"
+
+    def __init__(self, message: str, failed: list[str], **kwargs) -> None:
+        super().__init__(message, **kwargs)
+        self.failed = failed
+
+
+class ArgumentError(SheetError):
+    """A function got a wrong argument: wrong dimension, out of domain, unknown keyword.
+
+    Raised inside functions without a span; ``argument`` names the parameter so
+    the evaluator can put the caret under it.
+    """
+
+    kind = "argument"
+
+    def __init__(self, message: str, argument: str | None = None, **kwargs) -> None:
+        super().__init__(message, **kwargs)
+        self.argument = argument
+
+
+class UsageError(SheetError):
+    """The command line was used wrongly (exit code 64)."""
+
+    kind = "usage"

@@ -1,0 +1,554 @@
+"""From nodes to values: each cell is compiled once into a closure over its inputs.
+
+Compiling resolves every name (:mod:`calc.scope`), records the cells a cell
+uses, folds everything that does not depend on a cell into a constant (so
+``9.81 m s^-2`` costs nothing at evaluation time), and wraps each operation so
+that a failure names its own place in the source. Evaluating a cell is then a
+call of its closure with the values of the cells it uses.
+
+Values are astropy Quantities (dimensionless ones for plain numbers). Inside
+a unit chain a bare astropy unit may appear as an intermediate value; it is
+always multiplied into a Quantity before the chain ends.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from operator import itemgetter
+
+import astropy.units as u
+import numpy as np
+
+from . import functions
+from .errors import (
+    ArgumentError,
+    DomainError,
+    InputError,
+    NameResolutionError,
+    SheetError,
+    Source,
+    Span,
+    UnitError,
+)
+from .scope import Scope
+from .syntax import (
+    ArrayLiteral,
+    BinaryOp,
+    Call,
+    CellDef,
+    Chain,
+    Dotted,
+    Group,
+    Name,
+    NamePower,
+    Number,
+    Percent,
+    PercentUnit,
+    Power,
+    UnaryOp,
+    UnitProduct,
+)
+from .units import close_matches, describe, did_you_mean, physical_type
+
+#: Deepest nesting of operations in one expression (keeps recursion far from Python's limit).
+MAX_EXPRESSION_DEPTH = 150
+
+_ONE = u.dimensionless_unscaled
+
+
+class Const:
+    """A compiled value known without evaluating any cell."""
+
+    __slots__ = ("value",)
+
+    def __init__(self, value) -> None:
+        self.value = value
+
+
+Code = Callable[[dict], object] | Const
+
+
+@dataclass
+class CellProgram:
+    """A compiled cell: how to compute it, what it uses, and where it came from."""
+
+    definition: CellDef
+    source: Source
+    run: Callable[[dict], u.Quantity] | None = None
+    constant: u.Quantity | None = None
+    unit: u.UnitBase | None = None
+    unit_span: Span | None = None
+    deps: dict[str, Span] = field(default_factory=dict)
+    looked_up: set[str] = field(default_factory=set)
+    error: SheetError | None = None
+
+    @property
+    def name(self) -> str:
+        return self.definition.name
+
+
+# ---- operations ------------------------------------------------------------
+
+
+def _finite(result, inputs, span: Span, what: str = "the result"):
+    """Refuse nan, and an infinity that no infinite input explains (overflow, x/0)."""
+    if isinstance(result, u.UnitBase):
+        return result
+    value = result.value
+    if np.ndim(value) == 0:
+        if math.isfinite(value):
+            return result
+    elif np.isfinite(value).all():
+        return result
+    if np.isnan(value).any():
+        raise DomainError(f"{what} is not a number (nan)", span)
+    for q in inputs:
+        if not isinstance(q, u.UnitBase) and not np.isfinite(q.value).all():
+            return result  # an infinity written into the sheet (`inf`) carries through
+    raise DomainError(f"{what} overflows: it is larger than a float can hold", span,
+                      hint="check the magnitudes and units of the inputs")
+
+
+def _shape_error(x, y, span: Span) -> DomainError:
+    return DomainError(
+        f"arrays of different lengths ({np.size(_raw(x))} and {np.size(_raw(y))})", span)
+
+
+def _raw(x):
+    return x if isinstance(x, u.UnitBase) else x.value
+
+
+def _unit_of(x) -> u.UnitBase:
+    return x if isinstance(x, u.UnitBase) else x.unit
+
+
+def add_op(span: Span, subtract: bool):
+    def apply(x, y):
+        try:
+            result = x - y if subtract else x + y
+        except u.UnitConversionError:
+            if subtract:
+                message = f"cannot subtract {describe(_unit_of(y))} from {describe(_unit_of(x))}"
+            else:
+                message = f"cannot add {describe(_unit_of(x))} and {describe(_unit_of(y))}"
+            raise UnitError(message, span) from None
+        except ValueError:
+            raise _shape_error(x, y, span) from None
+        return _finite(result, (x, y), span)
+
+    return apply
+
+
+def mul_op(span: Span, divide: bool):
+    def apply(x, y):
+        try:
+            result = x / y if divide else x * y
+        except ValueError:
+            raise _shape_error(x, y, span) from None
+        except ZeroDivisionError:
+            raise DomainError("division by zero", span) from None
+        if divide and not isinstance(y, u.UnitBase):
+            divisor = y.value
+            if np.any(np.asarray(divisor) == 0) and not isinstance(result, u.UnitBase):
+                value = result.value
+                if not np.all(np.isfinite(value)):
+                    raise DomainError("division by zero", span)
+        return _finite(result, (x, y), span)
+
+    return apply
+
+
+def neg_op(span: Span):
+    def apply(x):
+        return -x
+
+    return apply
+
+
+def power_op(span: Span, exponent_span: Span):
+    def apply(base, exponent):
+        try:
+            e = exponent.to_value(_ONE)
+        except u.UnitConversionError:
+            raise UnitError(f"the exponent must be dimensionless, got {describe(exponent.unit)}",
+                            exponent_span) from None
+        try:
+            if base.unit == _ONE:
+                result = u.Quantity(np.power(base.value, e))
+            else:
+                if np.ndim(e) != 0:
+                    raise UnitError("a quantity with a unit can be raised only to a single number",
+                                    exponent_span)
+                result = base ** float(e)
+        except OverflowError:
+            raise DomainError("the power overflows", span) from None
+        except ZeroDivisionError:
+            raise DomainError("zero to a negative power", span) from None
+        except ValueError:
+            raise _shape_error(base, exponent, span) from None
+        if np.isnan(result.value).any() and np.any(np.asarray(base.value) < 0):
+            raise DomainError("a negative number to a fractional power", span)
+        return _finite(result, (base, exponent), span, "the power")
+
+    return apply
+
+
+def convert(value: u.Quantity, unit: u.UnitBase, span: Span) -> u.Quantity:
+    try:
+        return value.to(unit)
+    except u.UnitConversionError:
+        raise UnitError(f"cannot show {describe(value.unit)} in {describe(unit)}", span,
+                        hint=f"the cell's dimension is {physical_type(value.unit)}") from None
+
+
+def normalise(value: u.Quantity) -> u.Quantity:
+    """Collapse a scaled dimensionless unit (`km / m`) into a plain number."""
+    unit = value.unit
+    if unit is not _ONE and unit != _ONE and unit.physical_type == "dimensionless":
+        return value.to(_ONE)
+    return value
+
+
+# ---- compiling ----------------------------------------------------------------
+
+
+def _lift(fn, *codes: Code) -> Code:
+    """Apply ``fn`` to compiled operands: folded now when all are constants."""
+    if all(isinstance(c, Const) for c in codes):
+        return Const(fn(*(c.value for c in codes)))
+    if len(codes) == 1:
+        (a,) = codes
+        return lambda env: fn(a(env))
+    if len(codes) == 2:
+        a, b = codes
+        if isinstance(a, Const):
+            av = a.value
+            return lambda env: fn(av, b(env))
+        if isinstance(b, Const):
+            bv = b.value
+            return lambda env: fn(a(env), bv)
+        return lambda env: fn(a(env), b(env))
+    runners = [(lambda env, v=c.value: v) if isinstance(c, Const) else c for c in codes]
+    return lambda env: fn(*(r(env) for r in runners))
+
+
+def _is_unit_item(node) -> bool:
+    return isinstance(node, (Name, NamePower)) or (
+        isinstance(node, Power) and isinstance(node.base, Name))
+
+
+class _Compiler:
+    def __init__(self, scope: Scope, source: Source) -> None:
+        self.scope = scope
+        self.source = source
+        self.deps: dict[str, Span] = {}
+        self.looked_up: set[str] = set()
+        self._line_starts: list[int] | None = None
+
+    # -- helpers
+    def text(self, start: Span, end: Span | None = None) -> str:
+        """Source text from the start of ``start`` to the start of ``end`` (or the end of start)."""
+        if self._line_starts is None:
+            starts = [0]
+            for line in self.source.text.splitlines(keepends=True):
+                starts.append(starts[-1] + len(line))
+            self._line_starts = starts
+        s = self._line_starts
+        begin = s[start.line - 1] + start.column - 1
+        if end is None:
+            stop = s[start.end_line - 1] + start.end_column - 1
+        else:
+            stop = s[end.line - 1] + end.column - 1
+        return " ".join(self.source.text[begin:stop].split())
+
+    def cell_ref(self, name: str, span: Span) -> Code:
+        self.deps.setdefault(name, span)
+        return itemgetter(name)
+
+    def resolved(self, resolved, span: Span) -> Code:
+        if resolved.kind == "unit":
+            return Const(resolved.unit)
+        if resolved.kind == "cell":
+            return self.cell_ref(resolved.cell, span)
+        return Const(resolved.value)
+
+    def exponent_number(self, node, depth: int) -> float:
+        code = self.expr(node, depth + 1)
+        if not isinstance(code, Const):
+            raise UnitError("a unit's exponent must be a number written in the sheet", node.span)
+        value = code.value
+        try:
+            e = value.to_value(_ONE)
+        except u.UnitConversionError:
+            raise UnitError(f"the exponent must be dimensionless, got {describe(value.unit)}",
+                            node.span) from None
+        if np.ndim(e) != 0:
+            raise UnitError("a unit's exponent must be a single number", node.span)
+        return float(e)
+
+    # -- expressions
+    def expr(self, node, depth: int = 0) -> Code:
+        if depth > MAX_EXPRESSION_DEPTH:
+            raise InputError(f"the expression is nested more than {MAX_EXPRESSION_DEPTH} deep",
+                             node.span, hint="split it into several cells")
+        kind = type(node)
+        if kind is Number or kind is Percent:
+            return Const(u.Quantity(node.value))
+        if kind is Name:
+            self.looked_up.add(node.id)
+            return self.resolved(self.scope.plain(node), node.span)
+        if kind is BinaryOp:
+            if node.op == "/":
+                return self.chainable(node, depth, names_lead=False)[0]
+            left = self.expr(node.left, depth + 1)
+            right = self.expr(node.right, depth + 1)
+            if node.op == "*":
+                return _lift(mul_op(node.span, divide=False), left, right)
+            return _lift(add_op(node.span, subtract=node.op == "-"), left, right)
+        if kind is Chain:
+            return self.chain(node, depth)[0]
+        if kind is UnaryOp:
+            operand = self.expr(node.operand, depth + 1)
+            return operand if node.op == "+" else _lift(neg_op(node.span), operand)
+        if kind is Power:
+            base = self.expr(node.base, depth + 1)
+            exponent = self.expr(node.exponent, depth + 1)
+            return _lift(power_op(node.span, node.exponent.span), base, exponent)
+        if kind is Group:
+            return self.expr(node.inner, depth + 1)
+        if kind is Call:
+            return self.call(node, depth)
+        if kind is ArrayLiteral:
+            return self.array(node, depth)
+        if kind is Dotted:
+            self.looked_up.add(node.parts[0])
+            return Const(self.scope.builtin(node.parts, node.span))
+        if kind is NamePower:
+            base = self.expr(node.name, depth + 1)
+            exponent = self.expr(node.exponent, depth + 1)
+            return _lift(power_op(node.span, node.exponent.span), base, exponent)
+        raise NameResolutionError("this is not a value", node.span)
+
+    def chain(self, node: Chain, depth: int) -> tuple[Code, bool]:
+        """An implicit product; the chain stays open while its items are units."""
+        code = self.expr(node.head, depth + 1)
+        is_open = True
+        for item in node.items:
+            if is_open:
+                prefix = self.text(node.span, item.span)
+                item_code, is_open = self.chain_item(
+                    item, depth, cell_hint=f"{prefix} * {self.text(item.span)}",
+                    unit_hint=f"{prefix} {{unit}}{self._after_name(item)}")
+            else:
+                item_code = self.expr(item, depth + 1)
+            code = _lift(mul_op(node.span, divide=False), code, item_code)
+        return code, is_open
+
+    def _after_name(self, item) -> str:
+        if isinstance(item, NamePower):
+            return self.text(item.span)[len(item.name.id):]
+        return ""
+
+    def chain_item(self, item, depth: int, cell_hint: str, unit_hint: str) -> tuple[Code, bool]:
+        """A name (or name^n, or group) in unit position: a unit keeps the chain open."""
+        if isinstance(item, Group):
+            inner = item.inner
+            while isinstance(inner, Group):
+                inner = inner.inner
+            if _is_unit_item(inner) or isinstance(inner, (Chain, Number)) or (
+                    isinstance(inner, BinaryOp) and inner.op == "/"):
+                return self.chainable(inner, depth + 1, names_lead=True)
+            # a bracketed value such as `(1 + x)` is a factor; it does not end the chain
+            return self.expr(inner, depth + 1), True
+        if isinstance(item, (NamePower, Power)) and (
+                isinstance(item, NamePower) or isinstance(item.base, Name)):
+            name = item.name if isinstance(item, NamePower) else item.base
+            self.looked_up.add(name.id)
+            resolved = self.scope.in_chain(name, cell_hint, unit_hint)
+            if resolved.kind == "unit":
+                return Const(resolved.unit ** self.exponent_number(item.exponent, depth)), True
+            base = self.resolved(resolved, name.span)
+            exponent = self.expr(item.exponent, depth + 1)
+            return _lift(power_op(item.span, item.exponent.span), base, exponent), False
+        if isinstance(item, Name):
+            self.looked_up.add(item.id)
+            resolved = self.scope.in_chain(item, cell_hint, unit_hint)
+            return self.resolved(resolved, item.span), resolved.kind == "unit"
+        return self.expr(item, depth + 1), False
+
+    def chainable(self, node, depth: int, names_lead: bool) -> tuple[Code, bool]:
+        """Compile ``node`` and say whether a unit chain is still open at its end."""
+        if depth > MAX_EXPRESSION_DEPTH:
+            return self.expr(node, depth), False
+        kind = type(node)
+        if kind is Number:
+            return self.expr(node, depth), True
+        if kind is Chain:
+            return self.chain(node, depth)
+        if kind is Group and names_lead:
+            return self.chainable(node.inner, depth + 1, names_lead)
+        if names_lead and _is_unit_item(node):
+            text = self.text(node.span)
+            return self.chain_item(node, depth, cell_hint=f"1 * {text}", unit_hint="{unit}")
+        if kind is BinaryOp and node.op == "/":
+            left, is_open = self.chainable(node.left, depth + 1, names_lead)
+            if is_open and _is_unit_item(node.right):
+                prefix = self.text(node.span, node.right.span).rstrip("/ ").rstrip()
+                right_text = self.text(node.right.span)
+                right, is_open = self.chain_item(
+                    node.right, depth, cell_hint=f"{prefix} / ({right_text})",
+                    unit_hint=f"{prefix} / {{unit}}{self._after_name(node.right)}")
+            else:
+                right, is_open = self.expr(node.right, depth + 1), False
+            return _lift(mul_op(node.span, divide=True), left, right), is_open
+        return self.expr(node, depth), False
+
+    def call(self, node: Call, depth: int) -> Code:
+        spec = functions.lookup(node.function)
+        self.looked_up.add(node.function)
+        if spec is None:
+            if node.function in self.scope.cell_names:
+                raise NameResolutionError(f"`{node.function}` is a cell, not a function",
+                                          node.function_span,
+                                          hint=f"write `{node.function} * (…)` to multiply")
+            if self.scope.units.lookup(node.function) is not None:
+                hint = f"`{node.function}` is a unit; to multiply write `{node.function} * (…)`"
+            else:
+                options = close_matches(node.function, [f.name for f in functions.all_functions()])
+                hint = did_you_mean(options) or "the README lists the functions"
+            raise NameResolutionError(f"unknown function `{node.function}`", node.function_span,
+                                      hint=hint)
+        keywords = {k.name: k for k in node.keywords}
+        try:
+            bound = spec.bind(node.args, keywords)
+        except ArgumentError as err:
+            raise err.located(node.span) from None
+        arg_spans: dict[str, Span] = {}
+        for pname, value in bound.arguments.items():
+            if isinstance(value, tuple):
+                for i, item in enumerate(value):
+                    arg_spans[f"value {i + 1}"] = item.span
+            else:
+                arg_spans[pname] = value.span
+        arg_codes = [self.expr(a, depth + 1) for a in node.args]
+        names = list(keywords)
+        kw_codes = [self.expr(keywords[k].value, depth + 1) for k in names]
+        implementation = spec.implementation
+        fname = spec.name
+        span = node.span
+        npos = len(arg_codes)
+
+        def apply(*values):
+            try:
+                if names:
+                    result = implementation(*values[:npos], **dict(zip(names, values[npos:])))
+                else:
+                    result = implementation(*values)
+            except ArgumentError as err:
+                where = arg_spans.get(err.argument, span)
+                raise ArgumentError(f"{fname}: {err.message}", err.argument, span=where,
+                                    hint=err.hint) from None
+            except SheetError as err:
+                raise err.located(span) from None
+            except (u.UnitsError, ValueError, TypeError, ZeroDivisionError, OverflowError) as exc:
+                raise DomainError(f"{fname}: {exc}", span) from None
+            return _finite(result, values, span, f"the result of {fname}")
+
+        return _lift(apply, *arg_codes, *kw_codes)
+
+    def array(self, node: ArrayLiteral, depth: int) -> Code:
+        if not node.items:
+            raise DomainError("an array needs at least one value", node.span)
+        codes = [self.expr(i, depth + 1) for i in node.items]
+        spans = [i.span for i in node.items]
+
+        def build(*values):
+            unit = values[0].unit
+            plain = []
+            for value, span in zip(values, spans):
+                if np.ndim(value.value) != 0:
+                    raise DomainError("arrays hold single values, not arrays", span)
+                try:
+                    plain.append(value.to_value(unit))
+                except u.UnitConversionError:
+                    raise UnitError(f"array items must share a dimension: {describe(value.unit)} "
+                                    f"is not {describe(unit)}", span) from None
+            return u.Quantity(np.array(plain, dtype=float), unit)
+
+        return _lift(build, *codes)
+
+    # -- unit expressions (after `in`)
+    def unit(self, node, depth: int = 0) -> u.UnitBase:
+        if depth > MAX_EXPRESSION_DEPTH:
+            raise InputError("the unit is nested too deeply", node.span)
+        kind = type(node)
+        if kind is Name:
+            return self.scope.unit(node)
+        if kind is NamePower or (kind is Power and isinstance(node.base, Name)):
+            name = node.name if kind is NamePower else node.base
+            return self.scope.unit(name) ** self.exponent_number(node.exponent, depth)
+        if kind is BinaryOp and node.op in "*/":
+            left = self.unit(node.left, depth + 1)
+            right = self.unit(node.right, depth + 1)
+            return left * right if node.op == "*" else left / right
+        if kind is UnitProduct:
+            result = self.unit(node.factors[0], depth + 1)
+            for factor in node.factors[1:]:
+                result = result * self.unit(factor, depth + 1)
+            return result
+        if kind is Group:
+            return self.unit(node.inner, depth + 1)
+        if kind is Number:
+            if node.value <= 0:
+                raise UnitError("a unit's scale must be positive", node.span)
+            return u.Unit(node.value) if node.value != 1 else _ONE
+        if kind is PercentUnit:
+            return u.percent
+        raise UnitError("`in` takes a unit, such as `km / s` or `arcsec / century`", node.span)
+
+
+def compile_cell(definition: CellDef, scope: Scope, source: Source,
+                 display_unit: tuple[u.UnitBase, Span] | None = None) -> CellProgram:
+    """Compile a cell; a compile error (unknown name, folded unit mismatch) is kept on it.
+
+    ``display_unit`` (unit, span) applies when the definition has no ``in`` of its own.
+    """
+    compiler = _Compiler(scope, source)
+    program = CellProgram(definition, source)
+    try:
+        code = compiler.expr(definition.expr)
+        if definition.unit is not None:
+            program.unit = compiler.unit(definition.unit)
+            program.unit_span = definition.unit.span
+        elif display_unit is not None:
+            program.unit, program.unit_span = display_unit
+        if isinstance(code, Const):
+            program.constant = finish(program, code.value)
+        else:
+            program.run = code
+    except SheetError as err:
+        program.error = err.located(definition.span, source)
+    program.deps = compiler.deps
+    program.looked_up = compiler.looked_up
+    return program
+
+
+def finish(program: CellProgram, value) -> u.Quantity:
+    """Conversion into the cell's `in` unit, or collapse of scaled dimensionless units."""
+    if isinstance(value, u.UnitBase):  # pragma: no cover - the grammar cannot produce it
+        raise UnitError("a unit needs a number before it", program.definition.expr.span)
+    if program.unit is not None:
+        return convert(value, program.unit, program.unit_span)
+    return normalise(value)
+
+
+def run_cell(program: CellProgram, env: dict) -> u.Quantity:
+    """Evaluate a compiled cell with its inputs in ``env``; raises SheetError."""
+    if program.constant is not None:
+        return program.constant
+    try:
+        return finish(program, program.run(env))
+    except SheetError as err:
+        raise err.located(program.definition.span, program.source) from None

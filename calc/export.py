@@ -1,0 +1,71 @@
+"""Machine-readable results: the JSON document of ``relsheet eval --format json``.
+
+Schema (DESIGN §6)::
+
+    {"sheet": "path", "constants": ["codata2022", "iau2015"],
+     "cells": [{"name", "line", "value", "unit", "sigma", "error"}, ...],
+     "checks": [...]}
+
+``value`` is a number, a list of numbers for arrays, or null when the cell
+failed; infinities, which JSON cannot write, are the strings "inf"/"-inf".
+``unit`` is astropy's generic string of the cell's unit; ``error`` is the
+error's ``file:line:col: message`` (and hint), or null.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+
+from .sheet import Cell, Sheet
+from .units import unit_string
+
+
+def _number(x: float):
+    x = float(x)
+    if math.isinf(x):
+        return "inf" if x > 0 else "-inf"
+    if math.isnan(x):
+        return None
+    return x
+
+
+def json_value(value):
+    if np.ndim(value) == 0:
+        return _number(value)
+    return [_number(v) for v in np.ravel(value)]
+
+
+def error_text(cell: Cell) -> str | None:
+    err = cell.error
+    if err is None:
+        return None
+    text = f"{err.location}: {err.message}"
+    return f"{text} (hint: {err.hint})" if err.hint else text
+
+
+def cell_record(cell: Cell) -> dict:
+    value = cell.value
+    return {
+        "name": cell.name,
+        "line": cell.line,
+        "value": None if value is None else json_value(value.value),
+        "unit": None if value is None else unit_string(value.unit),
+        "sigma": None,
+        "error": error_text(cell),
+    }
+
+
+def sheet_record(sheet: Sheet) -> dict:
+    return {
+        "sheet": sheet.source.label,
+        "constants": sheet.selection.names,
+        "cells": [cell_record(c) for c in sheet.cells],
+        "checks": [],
+    }
+
+
+def to_json(sheet: Sheet) -> str:
+    return json.dumps(sheet_record(sheet), ensure_ascii=False, indent=2)

@@ -1,0 +1,93 @@
+"""The function library: a registry of named functions callable from cells.
+
+Each function is a pure Python function of astropy Quantities, registered with
+:func:`register` under the name a sheet uses. Topic modules register their
+functions when imported; :func:`lookup` imports them all on first use.
+"""
+
+from __future__ import annotations
+
+import importlib
+import inspect
+from collections.abc import Callable
+from dataclasses import dataclass
+
+from ..errors import ArgumentError
+
+#: Topic modules, imported on the first look-up.
+TOPICS = ("elementary",)
+
+
+@dataclass(frozen=True)
+class FunctionSpec:
+    """A registered function: its sheet name, topic, implementation and signature."""
+
+    name: str
+    topic: str
+    implementation: Callable
+    signature: inspect.Signature
+    summary: str
+
+    def bind(self, args: tuple, kwargs: dict) -> inspect.BoundArguments:
+        """Bind call arguments, with errors a sheet author understands."""
+        try:
+            bound = self.signature.bind(*args, **kwargs)
+        except TypeError as exc:
+            raise ArgumentError(f"{self.name}{self.display_signature()}: {_bind_message(exc)}") from None
+        return bound
+
+    def display_signature(self) -> str:
+        parts = []
+        for p in self.signature.parameters.values():
+            if p.kind is p.VAR_POSITIONAL:
+                parts.append(f"{p.name}...")
+            elif p.default is not p.empty:
+                parts.append(f"{p.name}=…")
+            else:
+                parts.append(p.name)
+        return "(" + ", ".join(parts) + ")"
+
+    def __call__(self, *args, **kwargs):
+        bound = self.bind(args, kwargs)
+        return self.implementation(*bound.args, **bound.kwargs)
+
+
+def _bind_message(exc: TypeError) -> str:
+    text = str(exc)
+    return {
+        "too many positional arguments": "too many arguments",
+    }.get(text, text.replace("'", "`"))
+
+
+_REGISTRY: dict[str, FunctionSpec] = {}
+_loaded = False
+
+
+def register(name: str, topic: str) -> Callable[[Callable], Callable]:
+    """Decorator: make ``fn`` callable from sheets as ``name``."""
+
+    def decorate(fn: Callable) -> Callable:
+        doc = inspect.getdoc(fn) or ""
+        summary = doc.splitlines()[0] if doc else name
+        _REGISTRY[name] = FunctionSpec(name, topic, fn, inspect.signature(fn), summary)
+        return fn
+
+    return decorate
+
+
+def _load_topics() -> None:
+    global _loaded
+    if not _loaded:
+        for topic in TOPICS:
+            importlib.import_module(f"{__name__}.{topic}")
+        _loaded = True
+
+
+def lookup(name: str) -> FunctionSpec | None:
+    _load_topics()
+    return _REGISTRY.get(name)
+
+
+def all_functions() -> list[FunctionSpec]:
+    _load_topics()
+    return sorted(_REGISTRY.values(), key=lambda f: (f.topic, f.name))

@@ -1,0 +1,180 @@
+"""Elementary functions: roots, exponentials, trigonometry, reductions and ranges.
+
+Angles and dimensionless numbers convert into each other (radians): ``sin``
+takes either, the inverse functions return radians. ``exp``, ``ln`` and
+``log10`` need dimensionless arguments. Reductions (``sum``, ``mean``, ``min``,
+``max``) collapse an array; ``min`` and ``max`` of several arguments compare
+them element by element.
+"""
+
+from __future__ import annotations
+
+import astropy.units as u
+import numpy as np
+
+from ..errors import ArgumentError
+from . import args as check
+from . import register
+
+TOPIC = "math"
+_ONE = u.dimensionless_unscaled
+
+
+@register("sqrt", TOPIC)
+def sqrt(x: u.Quantity) -> u.Quantity:
+    """Square root; the unit is raised to the power 1/2 (√(km²) = km)."""
+    if np.any(x.value < 0):
+        raise ArgumentError(f"`x` must not be negative, got {check.show(x)}", "x")
+    return np.sqrt(x)
+
+
+@register("exp", TOPIC)
+def exp(x: u.Quantity) -> u.Quantity:
+    """e to the power x, for dimensionless x."""
+    return u.Quantity(np.exp(check.dimensionless(x, "x")), _ONE)
+
+
+def _logarithm(x: u.Quantity, fn) -> u.Quantity:
+    value = check.dimensionless(x, "x")
+    check.positive(value, x, "x")
+    return u.Quantity(fn(value), _ONE)
+
+
+@register("ln", TOPIC)
+def ln(x: u.Quantity) -> u.Quantity:
+    """Natural logarithm of a positive dimensionless number."""
+    return _logarithm(x, np.log)
+
+
+@register("log10", TOPIC)
+def log10(x: u.Quantity) -> u.Quantity:
+    """Base-10 logarithm of a positive dimensionless number."""
+    return _logarithm(x, np.log10)
+
+
+@register("sin", TOPIC)
+def sin(x: u.Quantity) -> u.Quantity:
+    """Sine of an angle (a dimensionless number counts as radians)."""
+    return u.Quantity(np.sin(check.angle(x, "x")), _ONE)
+
+
+@register("cos", TOPIC)
+def cos(x: u.Quantity) -> u.Quantity:
+    """Cosine of an angle (a dimensionless number counts as radians)."""
+    return u.Quantity(np.cos(check.angle(x, "x")), _ONE)
+
+
+@register("tan", TOPIC)
+def tan(x: u.Quantity) -> u.Quantity:
+    """Tangent of an angle (a dimensionless number counts as radians)."""
+    return u.Quantity(np.tan(check.angle(x, "x")), _ONE)
+
+
+def _inverse(x: u.Quantity, fn) -> u.Quantity:
+    value = check.dimensionless(x, "x")
+    if np.any(np.abs(value) > 1):
+        raise ArgumentError(f"`x` must lie between -1 and 1, got {check.show(x)}", "x")
+    return u.Quantity(fn(value), u.rad)
+
+
+@register("asin", TOPIC)
+def asin(x: u.Quantity) -> u.Quantity:
+    """Inverse sine, in radians, of a number between -1 and 1."""
+    return _inverse(x, np.arcsin)
+
+
+@register("acos", TOPIC)
+def acos(x: u.Quantity) -> u.Quantity:
+    """Inverse cosine, in radians, of a number between -1 and 1."""
+    return _inverse(x, np.arccos)
+
+
+@register("atan", TOPIC)
+def atan(x: u.Quantity) -> u.Quantity:
+    """Inverse tangent, in radians, of a dimensionless number."""
+    return u.Quantity(np.arctan(check.dimensionless(x, "x")), u.rad)
+
+
+@register("atan2", TOPIC)
+def atan2(y: u.Quantity, x: u.Quantity) -> u.Quantity:
+    """Angle of the point (x, y), in radians from -π to π; y and x share a dimension."""
+    yv, xv = check.same_dimension([y, x], ["y", "x"])
+    return u.Quantity(np.arctan2(yv, xv), u.rad)
+
+
+@register("hypot", TOPIC)
+def hypot(*values: u.Quantity) -> u.Quantity:
+    """√(x² + y² + …) of values sharing a dimension, without overflow."""
+    if len(values) < 2:
+        raise ArgumentError("hypot needs at least two values")
+    names = [f"value {i + 1}" for i in range(len(values))]
+    plain = check.same_dimension(list(values), names)
+    result = plain[0]
+    for v in plain[1:]:
+        result = np.hypot(result, v)
+    return u.Quantity(result, values[0].unit)
+
+
+@register("abs", TOPIC)
+def absolute(x: u.Quantity) -> u.Quantity:
+    """Absolute value."""
+    return np.abs(x)
+
+
+def _extreme(values: tuple[u.Quantity, ...], reduce, pairwise, what: str) -> u.Quantity:
+    if not values:
+        raise ArgumentError(f"{what} needs at least one value")
+    if len(values) == 1:
+        return u.Quantity(reduce(values[0].value), values[0].unit)
+    names = [f"value {i + 1}" for i in range(len(values))]
+    plain = check.same_dimension(list(values), names)
+    result = plain[0]
+    for v in plain[1:]:
+        result = pairwise(result, v)
+    return u.Quantity(result, values[0].unit)
+
+
+@register("min", TOPIC)
+def minimum(*values: u.Quantity) -> u.Quantity:
+    """Smallest element of an array, or the element-wise smallest of several values."""
+    return _extreme(values, np.min, np.minimum, "min")
+
+
+@register("max", TOPIC)
+def maximum(*values: u.Quantity) -> u.Quantity:
+    """Largest element of an array, or the element-wise largest of several values."""
+    return _extreme(values, np.max, np.maximum, "max")
+
+
+@register("sum", TOPIC)
+def total(x: u.Quantity) -> u.Quantity:
+    """Sum of the elements of an array."""
+    return u.Quantity(np.sum(x.value), x.unit)
+
+
+@register("mean", TOPIC)
+def mean(x: u.Quantity) -> u.Quantity:
+    """Arithmetic mean of the elements of an array."""
+    return u.Quantity(np.mean(x.value), x.unit)
+
+
+@register("span", TOPIC)
+def span(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
+    """n evenly spaced values from start to stop, both included."""
+    check.scalar(start, "start")
+    check.scalar(stop, "stop")
+    lo, hi = check.same_dimension([start, stop], ["start", "stop"])
+    count = check.count(n, "n", minimum=2)
+    return u.Quantity(np.linspace(lo, hi, count), start.unit)
+
+
+@register("logspan", TOPIC)
+def logspan(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
+    """n values from start to stop in equal ratios (both positive, both included)."""
+    check.scalar(start, "start")
+    check.scalar(stop, "stop")
+    lo, hi = check.same_dimension([start, stop], ["start", "stop"])
+    check.positive(lo, start, "start")
+    check.positive(hi, stop, "stop")
+    count = check.count(n, "n", minimum=2)
+    return u.Quantity(np.geomspace(lo, hi, count), start.unit)

@@ -1,0 +1,264 @@
+"""The parser: grammar loading (built once, cached on disk), bracket handling, errors.
+
+``parse_sheet`` turns sheet text into statements. The whole text is parsed in
+one LALR pass; only when that fails is the text split into statements and each
+parsed alone, so that one bad line is reported without losing the others.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import sys
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
+
+import lark
+from lark import Lark, Token
+from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
+
+from .errors import InputError, SheetError, SheetSyntaxError, Source, Span
+from .syntax import RESERVED_WORDS, ExpressionLine, NodeBuilder, Statement, token_span
+
+#: Brackets nested deeper than this are refused before they reach the parser.
+MAX_BRACKET_DEPTH = 64
+
+_OPENERS = {"LPAR": "RPAR", "LSQB": "RSQB"}
+_CLOSERS = {"RPAR", "RSQB"}
+
+# Words a reader understands, for the terminals the parser says it expected.
+_TERMINAL_WORDS = {
+    "NAME": "a name", "DOTTED_NAME": "a name", "NUMBER": "a number", "PERCENT": "a number",
+    "LPAR": "`(`", "RPAR": "`)`", "LSQB": "`[`", "RSQB": "`]`", "COMMA": "`,`",
+    "EQUAL": "`=`", "PLUS": "`+`", "MINUS": "`-`", "SLASH": "`/`", "_TIMES": "`*`",
+    "_POW": "`^`", "IN": "`in`", "_NL": "the end of the line", "$END": "the end of the input",
+    "HASH_TEXT": "a comment", "PERCENT_SIGN": "`%`", "CONSTANTS": "`constants`",
+}
+
+
+def grammar_path() -> Path:
+    """The grammar file: inside the installed package, or beside it in a source checkout."""
+    here = Path(__file__).resolve().parent
+    for candidate in (here / "grammar" / "sheet.lark", here.parent / "grammar" / "sheet.lark"):
+        if candidate.is_file():
+            return candidate
+    raise InputError("the grammar file sheet.lark is missing from this installation",
+                     hint="reinstall relsheet")
+
+
+def _cache_dir() -> Path:
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "relsheet"
+
+
+class BracketJoiner:
+    """Post-lexer: inside brackets a newline or comment does not end the statement.
+
+    Also refuses absurd nesting, reports brackets left open, and ends the input
+    with a newline so the last line needs none.
+    """
+
+    always_accept = ("_NL", "HASH_TEXT")
+
+    def __init__(self) -> None:
+        self.open_brackets: list[Token] = []
+
+    def process(self, stream):
+        stack = self.open_brackets = []
+        last = None
+        for tok in stream:
+            kind = tok.type
+            if kind in _OPENERS:
+                stack.append(tok)
+                if len(stack) > MAX_BRACKET_DEPTH:
+                    raise InputError(
+                        f"brackets nested more than {MAX_BRACKET_DEPTH} deep",
+                        token_span(tok), hint="split the expression into several cells")
+            elif kind in _CLOSERS:
+                if stack and _OPENERS[stack[-1].type] == kind:
+                    stack.pop()
+            elif stack and kind in ("_NL", "HASH_TEXT"):
+                continue
+            last = tok
+            yield tok
+        if stack:
+            opener = stack[-1]
+            raise SheetSyntaxError(f"`{opener.value}` is never closed", token_span(opener),
+                                   hint=f"add the closing `{')' if opener.value == '(' else ']'}`")
+        if last is not None and last.type != "_NL":
+            yield Token.new_borrow_pos("_NL", "\n", last)
+
+
+@lru_cache(maxsize=1)
+def _parser() -> tuple[Lark, BracketJoiner]:
+    path = grammar_path()
+    text = path.read_text(encoding="utf-8")
+    joiner = BracketJoiner()
+    key = hashlib.sha256((text + lark.__version__ + sys.version).encode()).hexdigest()[:16]
+    options = dict(parser="lalr", lexer="contextual", postlex=joiner, transformer=NodeBuilder(),
+                   start=["sheet", "expression_input", "prompt_input"], maybe_placeholders=True)
+    cache_dir = _cache_dir()
+    try:
+        cache_dir.mkdir(parents=True, exist_ok=True)
+        cache_file = str(cache_dir / f"grammar-{key}.cache")
+        return Lark(text, cache=cache_file, **options), joiner
+    except OSError:
+        # a read-only home still parses, only slower to start
+        return Lark(text, **options), joiner
+
+
+@dataclass
+class ParsedSheet:
+    statements: list[Statement]
+    errors: list[SheetError]
+
+
+def _describe_token(tok: Token) -> str:
+    if tok.type == "_NL":
+        return "end of line"
+    if tok.type == "$END":
+        return "end of input"
+    return f"`{tok.value}`"
+
+
+def _expected_words(expected: set[str]) -> str | None:
+    words = sorted({_TERMINAL_WORDS.get(t, f"`{t.lower()}`") for t in expected
+                    if t != "HASH_TEXT"})
+    if not words or len(words) > 4:
+        return None
+    return "expected " + " or ".join(words)
+
+
+def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> SheetSyntaxError:
+    """Translate a lark exception into a message a sheet author can act on."""
+    if isinstance(err, UnexpectedCharacters):
+        ch = text[err.pos_in_stream] if err.pos_in_stream < len(text) else ""
+        span = Span(err.line, err.column, err.line, err.column + 1)
+        return SheetSyntaxError(f"unexpected character `{ch}`", span, hint=_character_hint(ch))
+    tok = getattr(err, "token", None)
+    if isinstance(err, UnexpectedEOF) or tok is None:
+        return SheetSyntaxError("unexpected end of input", None)
+    if tok.type == "$END":
+        span = Span(err.line, err.column, err.line, err.column + 1)
+    else:
+        span = token_span(tok)
+    opener = joiner.open_brackets[-1] if joiner.open_brackets else None
+    if opener is not None and tok.line > opener.line:
+        closing = ")" if opener.value == "(" else "]"
+        return SheetSyntaxError(
+            f"`{opener.value}` is never closed", token_span(opener),
+            hint=f"add `{closing}`; inside brackets a statement goes on to the next line")
+    expected = set(getattr(err, "expected", ()) or ())
+    lines = text.splitlines()
+    first_word = lines[tok.line - 1].split(maxsplit=1)[0] if 0 < tok.line <= len(lines) else ""
+    if first_word in RESERVED_WORDS - {"in", "const", "constants"}:
+        column = len(lines[tok.line - 1]) - len(lines[tok.line - 1].lstrip()) + 1
+        return SheetSyntaxError(
+            f"`{first_word}` statements are not part of this version of relsheet",
+            Span(tok.line, column, tok.line, column + len(first_word)),
+            hint=f"`{first_word}` is reserved for a statement of a later version")
+    if tok.type == "_NL" and "EQUAL" in expected:
+        return SheetSyntaxError("a cell needs `=` and an expression", span,
+                                hint="write `name = expression`")
+    if tok.type in ("NAME", "NUMBER", "PERCENT") and "EQUAL" in expected:
+        return SheetSyntaxError(f"unexpected {_describe_token(tok)}: a cell needs `=` after its name",
+                                span, hint="write `name = expression`")
+    if tok.type in ("NAME", "NUMBER", "PERCENT", "DOTTED_NAME", "LPAR", "LSQB") \
+            and expected & {"PLUS", "SLASH", "_NL"}:
+        return SheetSyntaxError(
+            f"unexpected {_describe_token(tok)}: two values need an operator between them",
+            span, hint="write `*` to multiply; only a name right after a number is read as a unit")
+    if tok.type in ("_NL", "$END", "RPAR", "RSQB", "COMMA") and "PERCENT_SIGN" in expected:
+        return SheetSyntaxError(f"unexpected {_describe_token(tok)}: a unit is missing after `in`",
+                                span, hint="write for example `in km / s`")
+    if tok.type in ("_NL", "$END", "RPAR", "RSQB", "COMMA") and "NUMBER" in expected:
+        return SheetSyntaxError(f"unexpected {_describe_token(tok)}: an expression is missing", span)
+    if tok.type in ("RPAR", "RSQB"):
+        return SheetSyntaxError(f"`{tok.value}` closes no open bracket", span)
+    return SheetSyntaxError(f"unexpected {_describe_token(tok)}", span,
+                            hint=_expected_words(expected))
+
+
+def _character_hint(ch: str) -> str | None:
+    return {
+        "\u00b1": "uncertainties (`±`) are not part of this version of relsheet",
+        "\u00b0": "write the unit `deg`",
+        "\u2032": "write the unit `arcmin`",
+        "\u2033": "write the unit `arcsec`",
+        "\"": "text in quotes is not part of this version of relsheet",
+        "'": "text in quotes is not part of this version of relsheet",
+        "$": "cells are named by their names, without `$`",
+        "\u2013": "use `-` for minus",
+        "=": "`==` comparisons are not part of this version of relsheet",
+    }.get(ch)
+
+
+def _parse(text: str, start: str, source: Source):
+    parser, joiner = _parser()
+    try:
+        return parser.parse(text, start=start)
+    except UnexpectedInput as err:
+        raise _syntax_error(err, text, joiner).located(source=source) from None
+    except SheetError as err:
+        raise err.located(source=source) from None
+    except RecursionError:
+        raise InputError("the expression is nested too deeply", None,
+                         hint="split it into several cells", source=source) from None
+
+
+def logical_lines(text: str) -> list[tuple[int, int]]:
+    """(first, last) physical line numbers of each statement, joining lines inside brackets.
+
+    Used only to recover after a syntax error; a `#` starts a comment that runs
+    to the end of the line, and brackets in it do not count.
+    """
+    spans: list[tuple[int, int]] = []
+    depth = 0
+    first = None
+    for number, line in enumerate(text.splitlines(), start=1):
+        code = line.split("#", 1)[0]
+        if first is None:
+            if not line.strip():
+                continue
+            first = number
+        for ch in code:
+            if ch in "([":
+                depth += 1
+            elif ch in ")]":
+                depth = max(0, depth - 1)
+        if depth == 0:
+            spans.append((first, number))
+            first = None
+    if first is not None:
+        spans.append((first, len(text.splitlines())))
+    return spans
+
+
+def parse_sheet(text: str, source: Source) -> ParsedSheet:
+    """Parse a whole sheet; syntax errors are collected statement by statement."""
+    try:
+        return ParsedSheet(_parse(text, "sheet", source), [])
+    except SheetError:
+        pass
+    lines = text.splitlines()
+    statements: list[Statement] = []
+    errors: list[SheetError] = []
+    for first, last in logical_lines(text):
+        # leading newlines keep the line numbers of the whole file
+        chunk = "\n" * (first - 1) + "\n".join(lines[first - 1:last]) + "\n"
+        try:
+            statements.extend(_parse(chunk, "sheet", source))
+        except SheetError as err:
+            errors.append(err)
+    return ParsedSheet(statements, errors)
+
+
+def parse_expression(text: str, source: Source) -> ExpressionLine:
+    """Parse one expression with an optional ``in unit`` (the right side of ``--set``)."""
+    return _parse(text, "expression_input", source)
+
+
+def parse_prompt_line(text: str, source: Source):
+    """Parse a line typed at the prompt: a :class:`CellDef` or an :class:`ExpressionLine`."""
+    return _parse(text, "prompt_input", source)

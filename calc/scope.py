@@ -1,0 +1,128 @@
+"""What a name means where it stands: the chain rule.
+
+* In a unit chain (names right after a number, or after ``/`` that follows
+  one) a name is a unit. If it is not a unit but a cell or a built-in, the
+  chain ends before it. A name that is both a unit and a cell of the sheet is
+  ambiguous there and refused, with both readings in the hint; so is a unit
+  that is also a built-in constant of a different value (``G``: gauss or the
+  gravitational constant).
+* Outside a chain a name is a cell of the sheet, else a built-in constant.
+* After ``in`` every name is a unit.
+* ``const.NAME`` is always the built-in constant.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import astropy.units as u
+
+from .constants import ConstantEntry, ConstantSelection, constant_table
+from .errors import NameResolutionError, Span
+from .syntax import Name
+from .units import UnitTable, close_matches, did_you_mean, long_name, unit_table
+
+
+@dataclass(frozen=True, slots=True)
+class Resolved:
+    """A name's meaning: a unit, a cell (by name) or a constant value."""
+
+    kind: Literal["unit", "cell", "constant"]
+    unit: u.UnitBase | None = None
+    cell: str | None = None
+    value: u.Quantity | None = None
+
+
+class Scope:
+    """Resolves names for one sheet: its cell names, units and constants."""
+
+    def __init__(self, cell_names, selection: ConstantSelection) -> None:
+        self.cell_names = cell_names
+        self.selection = selection
+        self.units: UnitTable = unit_table(selection)
+        self.constants: dict[str, ConstantEntry] = constant_table(selection)
+
+    # -- the three positions
+    def in_chain(self, name: Name, cell_hint: str, unit_hint: str) -> Resolved:
+        """A name in a unit chain. ``cell_hint``/``unit_hint`` show the two spellings
+        (e.g. ``2 * a`` and ``2 {unit}``) when the name is ambiguous."""
+        refusal = self.units.refusal(name.id)
+        if refusal:
+            raise NameResolutionError(refusal[0], name.span, hint=refusal[1])
+        unit = self.units.lookup(name.id)
+        if unit is not None:
+            if name.id in self.cell_names:
+                spelled = long_name(unit, avoid=set(self.cell_names))
+                raise NameResolutionError(
+                    f"`{name.id}` is both a cell and the unit `{spelled}`",
+                    name.span,
+                    hint=f"for the cell write `{cell_hint}`; "
+                         f"for the unit write `{unit_hint.format(unit=spelled)}`")
+            constant = self.constants.get(name.id)
+            if constant is not None and not _same_value(unit, constant.quantity):
+                spelled = long_name(unit, avoid={name.id})
+                raise NameResolutionError(
+                    f"`{name.id}` is both the unit `{spelled}` and the constant "
+                    f"{name.id} ({constant.description})",
+                    name.span,
+                    hint=f"for the constant write `{cell_hint}`; "
+                         f"for the unit write `{unit_hint.format(unit=spelled)}`")
+            return Resolved("unit", unit=unit)
+        if name.id in self.cell_names:
+            return Resolved("cell", cell=name.id)
+        constant = self.constants.get(name.id)
+        if constant is not None:
+            return Resolved("constant", value=constant.quantity)
+        raise NameResolutionError(
+            f"unknown unit `{name.id}`", name.span,
+            hint=did_you_mean(self.units.suggestions(name.id, list(self.cell_names))))
+
+    def plain(self, name: Name) -> Resolved:
+        """A name outside a chain: a cell, else a built-in constant."""
+        if name.id in self.cell_names:
+            return Resolved("cell", cell=name.id)
+        constant = self.constants.get(name.id)
+        if constant is not None:
+            return Resolved("constant", value=constant.quantity)
+        if self.units.lookup(name.id) is not None:
+            raise NameResolutionError(
+                f"`{name.id}` is a unit, not a value", name.span,
+                hint=f"write `1 {name.id}` for the quantity, or put the number before it")
+        options = close_matches(name.id, [*self.cell_names, *self.constants])
+        raise NameResolutionError(f"unknown name `{name.id}`", name.span,
+                                  hint=did_you_mean(options))
+
+    def unit(self, name: Name) -> u.UnitBase:
+        """A name after ``in``: a unit and nothing else."""
+        refusal = self.units.refusal(name.id)
+        if refusal:
+            raise NameResolutionError(refusal[0], name.span, hint=refusal[1])
+        unit = self.units.lookup(name.id)
+        if unit is not None:
+            return unit
+        hint = did_you_mean(self.units.suggestions(name.id))
+        if name.id in self.cell_names:
+            hint = f"`{name.id}` is a cell; `in` takes a unit such as `km / s`"
+        raise NameResolutionError(f"unknown unit `{name.id}`", name.span, hint=hint)
+
+    def builtin(self, parts: tuple[str, ...], span: Span) -> u.Quantity:
+        """``const.NAME``."""
+        if parts[0] != "const":
+            raise NameResolutionError(
+                f"unknown name `{'.'.join(parts)}`", span,
+                hint="dotted names reach built-in constants as `const.NAME`")
+        if len(parts) != 2 or parts[1] not in self.constants:
+            options = close_matches(parts[-1], list(self.constants))
+            raise NameResolutionError(
+                f"unknown constant `{'.'.join(parts)}`", span,
+                hint=did_you_mean([f"const.{o}" for o in options]))
+        return self.constants[parts[1]].quantity
+
+
+def _same_value(unit: u.UnitBase, value: u.Quantity) -> bool:
+    """True when a unit and a constant of the same name denote the same quantity (`au`)."""
+    try:
+        return abs(u.Quantity(1.0, unit).to_value(value.unit) / value.value - 1.0) < 1e-12
+    except (u.UnitConversionError, ZeroDivisionError):
+        return False

@@ -1,0 +1,359 @@
+"""A sheet: its cells, their values, and recomputation of what a change reaches.
+
+``Sheet.load(path)`` reads, parses, compiles and evaluates a sheet. Every cell
+ends with a value or an error; a failing cell does not stop the others, and
+cells that use it say which input failed. ``sheet.set(name, "expr")``
+recomputes only the cells downstream of ``name`` and returns those whose
+value changed.
+"""
+
+from __future__ import annotations
+
+import heapq
+import warnings
+from contextlib import contextmanager
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+
+from .constants import ConstantSelection, default_selection, parse_selection
+from .errors import (
+    CycleError,
+    DuplicateCellError,
+    InputFailedError,
+    NameResolutionError,
+    SheetError,
+    Source,
+    Span,
+)
+from .evaluate import CellProgram, compile_cell, run_cell
+from .graph import DependencyGraph
+from .parse import parse_expression, parse_sheet
+from .scope import Scope
+from .sheetfile import read_sheet
+from .syntax import CellDef, ConstantsDef, Note
+from .units import angle_equivalencies
+
+
+class Cell:
+    """One cell as evaluated: its definition and either a value or an error."""
+
+    __slots__ = ("definition", "source", "value", "error")
+
+    def __init__(self, definition: CellDef, source: Source) -> None:
+        self.definition = definition
+        self.source = source
+        self.value: u.Quantity | None = None
+        self.error: SheetError | None = None
+
+    @property
+    def name(self) -> str:
+        return self.definition.name
+
+    @property
+    def line(self) -> int:
+        return self.definition.span.line
+
+    def __repr__(self) -> str:
+        shown = self.error.message if self.error else self.value
+        return f"<Cell {self.name} (line {self.line}): {shown}>"
+
+
+@contextmanager
+def numeric_context():
+    """Floating-point problems become errors we raise ourselves, never stray warnings."""
+    with np.errstate(all="ignore"), warnings.catch_warnings(), angle_equivalencies():
+        warnings.simplefilter("ignore")
+        yield
+
+
+class Sheet:
+    """A parsed and evaluated sheet. Build with :meth:`load` or :meth:`from_text`."""
+
+    def __init__(self, source: Source) -> None:
+        self.source = source
+        self.items: list[Note | Cell] = []
+        self.errors: list[SheetError] = []
+        self.selection: ConstantSelection = default_selection()
+        self.evaluations = 0
+        self._cells: dict[str, Cell] = {}
+        self._fixed_errors: dict[str, SheetError] = {}
+        self._programs: dict[str, CellProgram] = {}
+        self._values: dict[str, u.Quantity] = {}
+        self._graph = DependencyGraph()
+        self._position: dict[str, int] = {}
+        self._cycle_members: set[str] = set()
+        self._original: dict[str, CellDef] = {}
+        with numeric_context():
+            self._build()
+
+    # -- construction
+    @classmethod
+    def load(cls, path: str | Path) -> Sheet:
+        """Read and evaluate a sheet file. Raises InputError if it cannot be read."""
+        return cls(read_sheet(path))
+
+    @classmethod
+    def from_text(cls, text: str, label: str = "<text>") -> Sheet:
+        return cls(Source(label, text))
+
+    def _build(self) -> None:
+        parsed = parse_sheet(self.source.text, self.source)
+        self.errors.extend(parsed.errors)
+        pinned: ConstantsDef | None = None
+        for statement in parsed.statements:
+            if isinstance(statement, ConstantsDef):
+                if pinned is not None:
+                    self.errors.append(DuplicateCellError(
+                        f"constant sets are pinned twice (lines {pinned.span.line} "
+                        f"and {statement.span.line})", statement.span,
+                        hint="keep one `constants` line", source=self.source))
+                    continue
+                pinned = statement
+                self._pin(statement)
+            elif isinstance(statement, Note):
+                self.items.append(statement)
+            else:
+                cell = Cell(statement, self.source)
+                self.items.append(cell)
+                first = self._cells.get(statement.name)
+                if first is None:
+                    self._cells[statement.name] = cell
+                    self._original[statement.name] = statement
+                    continue
+                err = DuplicateCellError(
+                    f"cell `{statement.name}` is defined twice (lines {first.line} "
+                    f"and {cell.line})", statement.name_span,
+                    hint="rename one of them or delete one", source=self.source)
+                cell.error = err
+                self._fixed_errors[statement.name] = err
+        self._scope = Scope(self._cells.keys(), self.selection)
+        for rank, (name, cell) in enumerate(self._cells.items()):
+            program = compile_cell(cell.definition, self._scope, self.source)
+            self._programs[name] = program
+            self._graph.add(name, program.deps, rank)
+        self._reorder()
+        for name in self._order:
+            self._compute(name)
+
+    def _pin(self, statement: ConstantsDef) -> None:
+        selection, problems = parse_selection([name for name, _ in statement.sets])
+        for index, message, hint in problems:
+            self.errors.append(NameResolutionError(message, statement.sets[index][1], hint=hint,
+                                                   source=self.source))
+        self.selection = selection
+
+    def _reorder(self) -> set[str]:
+        """Recompute the order and cycles; returns cells whose cycle membership changed."""
+        order, cycles = self._graph.order()
+        self._order = order
+        self._position = {name: i for i, name in enumerate(order)}
+        members: set[str] = set()
+        for path in cycles:
+            text = " → ".join(path)
+            for name in set(path):
+                members.add(name)
+                cell = self._cells[name]
+                cell.value = None
+                cell.error = CycleError(
+                    f"cycle: {text}", path, span=cell.definition.name_span,
+                    hint="a cell cannot depend on itself, directly or through other cells",
+                    source=cell.source)
+        changed = members ^ self._cycle_members
+        self._cycle_members = members
+        return changed
+
+    # -- evaluation
+    def _compute(self, name: str) -> None:
+        cell = self._cells[name]
+        program = self._programs[name]
+        self.evaluations += 1
+        cell.value = None
+        self._values.pop(name, None)
+        fixed = self._fixed_errors.get(name)
+        if fixed is not None:
+            cell.error = fixed
+            return
+        if program.error is not None:
+            cell.error = program.error
+            return
+        failed = [d for d in program.deps if self._cells[d].error is not None]
+        if failed:
+            more = f" (and {len(failed) - 1} more)" if len(failed) > 1 else ""
+            cell.error = InputFailedError(f"input `{failed[0]}` failed{more}", failed,
+                                          span=program.deps[failed[0]], source=program.source)
+            return
+        try:
+            value = run_cell(program, self._values)
+        except SheetError as err:
+            cell.error = err
+            return
+        except Exception as exc:  # a bug of ours: keep the sheet going, say so plainly
+            err = SheetError(f"internal error while computing `{name}`: {type(exc).__name__}: {exc}",
+                             cell.definition.span, hint="please report this; --debug shows details",
+                             source=program.source)
+            err.__cause__ = exc
+            cell.error = err
+            return
+        cell.error = None
+        cell.value = value
+        self._values[name] = value
+
+    def set(self, name: str, text: str, label: str | None = None) -> list[Cell]:
+        """Give cell ``name`` the expression ``text`` (a new cell if there is none).
+
+        Recomputes only what depends on it and returns the cells whose value or
+        error changed, in evaluation order. A syntax error in ``text`` raises
+        :class:`~calc.errors.SheetSyntaxError` and changes nothing.
+        """
+        source = Source(label or f"--set {name}", text)
+        with numeric_context():
+            line = parse_expression(text, source)
+            return self._assign(name, line.expr, line.unit, source)
+
+    def _assign(self, name: str, expr, unit, source: Source) -> list[Cell]:
+        old_cell = self._cells.get(name)
+        forced: set[str] = {name}
+        if old_cell is None:
+            span = Span(1, 1, 1, 1 + len(name))
+            definition = CellDef(name, span, expr, unit, None, None, expr.span)
+            cell = Cell(definition, source)
+            self._cells[name] = cell
+            self.items.append(cell)
+            # cells that looked this name up (as a constant, unit or unknown) now see a cell
+            for other, program in list(self._programs.items()):
+                if name in program.looked_up:
+                    self._recompile(other)
+                    forced.add(other)
+            program = compile_cell(definition, self._scope, source)
+            self._programs[name] = program
+            self._graph.add(name, program.deps, len(self._cells))
+            structural = True
+        else:
+            previous = self._programs[name]
+            definition = CellDef(name, old_cell.definition.name_span, expr, unit,
+                                 None, None, expr.span)
+            old_cell.definition = definition
+            old_cell.source = source
+            # an override without `in` keeps the unit the sheet shows the cell in
+            keep = (previous.unit, expr.span) if unit is None and previous.unit is not None else None
+            program = compile_cell(definition, self._scope, source, display_unit=keep)
+            self._programs[name] = program
+            self._fixed_errors.pop(name, None)
+            structural = self._graph.set_uses(name, program.deps)
+        if structural:
+            for moved in self._reorder():
+                forced.add(moved)
+        return self._propagate(forced)
+
+    def _recompile(self, name: str) -> None:
+        cell = self._cells[name]
+        program = compile_cell(cell.definition, self._scope, cell.source)
+        self._programs[name] = program
+        self._graph.set_uses(name, program.deps)
+
+    def _propagate(self, forced: set[str]) -> list[Cell]:
+        """Evaluate ``forced`` cells and, while values change, the cells that use them."""
+        heap: list[tuple[int, str]] = []
+        queued: set[str] = set()
+        changed: list[Cell] = []
+
+        def push(n: str) -> None:
+            if n not in queued:
+                queued.add(n)
+                if n in self._cycle_members:
+                    changed.append(self._cells[n])
+                    for user in self._graph.users.get(n, ()):
+                        push(user)
+                else:
+                    heapq.heappush(heap, (self._position[n], n))
+
+        for n in forced:
+            push(n)
+        while heap:
+            _, n = heapq.heappop(heap)
+            cell = self._cells[n]
+            before_value, before_error = cell.value, cell.error
+            self._compute(n)
+            if not _same(before_value, cell.value) or _error_text(before_error) != _error_text(cell.error):
+                changed.append(cell)
+                for user in self._graph.users.get(n, ()):
+                    push(user)
+        changed.sort(key=lambda c: self._position.get(c.name, -1))
+        return changed
+
+    def revert(self, name: str) -> list[Cell]:
+        """Give cell ``name`` back the definition it has in the file."""
+        definition = self._original.get(name)
+        if definition is None:
+            raise KeyError(name)
+        with numeric_context():
+            return self._assign(name, definition.expr, definition.unit, self.source)
+
+    # -- access
+    @property
+    def cells(self) -> list[Cell]:
+        """All cells in file order (a second definition of a name included, with its error)."""
+        return [item for item in self.items if isinstance(item, Cell)]
+
+    def cell(self, name: str) -> Cell:
+        try:
+            return self._cells[name]
+        except KeyError:
+            raise KeyError(f"no cell `{name}` in {self.source.label}") from None
+
+    def __contains__(self, name: str) -> bool:
+        return name in self._cells
+
+    def __getitem__(self, name: str) -> u.Quantity:
+        """The value of cell ``name`` as an astropy Quantity; raises the cell's error if it failed."""
+        cell = self.cell(name)
+        if cell.error is not None:
+            raise cell.error
+        return cell.value
+
+    def names(self) -> list[str]:
+        return list(self._cells)
+
+    def uses(self, name: str) -> set[str]:
+        """The cells that cell ``name`` uses directly."""
+        return set(self._graph.uses.get(name, ()))
+
+    def users(self, name: str) -> set[str]:
+        """The cells that use cell ``name`` directly."""
+        return set(self._graph.users.get(name, ()))
+
+    def all_errors(self) -> list[SheetError]:
+        """Errors worth reporting on their own: the sheet's, and each failing cell's
+        own (not those that only say an input failed)."""
+        found = list(self.errors)
+        reported_cycles: set[tuple[str, ...]] = set()
+        for cell in self.cells:
+            err = cell.error
+            if err is None or isinstance(err, InputFailedError):
+                continue
+            if isinstance(err, CycleError):
+                key = tuple(sorted(set(err.cycle)))
+                if key in reported_cycles:
+                    continue
+                reported_cycles.add(key)
+            found.append(err)
+        return found
+
+    @property
+    def ok(self) -> bool:
+        return not self.errors and all(c.error is None for c in self.cells)
+
+
+def _same(a: u.Quantity | None, b: u.Quantity | None) -> bool:
+    if a is b:
+        return True
+    if a is None or b is None:
+        return False
+    return a.unit == b.unit and np.shape(a.value) == np.shape(b.value) and \
+        bool(np.array_equal(a.value, b.value))
+
+
+def _error_text(err: SheetError | None) -> str | None:
+    return None if err is None else err.message

@@ -1,0 +1,50 @@
+"""Reading sheet files: size limit, UTF-8 with exact positions of bad bytes."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from .errors import InputError, Source, Span
+
+#: Larger files are refused before parsing (a sheet is hand-written text).
+MAX_SHEET_BYTES = 8 * 1024 * 1024
+
+
+def decode_sheet(data: bytes, label: str) -> Source:
+    """Bytes of a sheet as text; invalid UTF-8 is an error at the line and column of the byte."""
+    if len(data) > MAX_SHEET_BYTES:
+        raise InputError(f"the sheet is {len(data):,} bytes; the limit is {MAX_SHEET_BYTES:,}",
+                         None, hint="split it into several sheets", source=Source(label, ""))
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        good = data[:exc.start].decode("utf-8", errors="replace")
+        line = good.count("\n") + 1
+        column = len(good) - (good.rfind("\n") + 1) + 1
+        shown = data.decode("utf-8", errors="replace")
+        raise InputError(f"invalid UTF-8: byte 0x{data[exc.start]:02x} cannot start or continue "
+                         "a character", Span(line, column, line, column + 1),
+                         hint="save the sheet as UTF-8", source=Source(label, shown)) from None
+    if "\x00" in text:
+        at = text.index("\x00")
+        line = text.count("\n", 0, at) + 1
+        column = at - (text.rfind("\n", 0, at) + 1) + 1
+        raise InputError("the sheet contains a NUL character (is it a binary file?)",
+                         Span(line, column, line, column + 1), source=Source(label, text))
+    return Source(label, text)
+
+
+def read_sheet(path: str | Path) -> Source:
+    """Read a sheet file; a missing or unreadable file is an InputError."""
+    label = str(path)
+    try:
+        data = Path(path).read_bytes()
+    except FileNotFoundError:
+        raise InputError(f"no such sheet: {label}", source=Source(label, "")) from None
+    except IsADirectoryError:
+        raise InputError(f"{label} is a folder, not a sheet", source=Source(label, "")) from None
+    except OSError as exc:
+        raise InputError(f"cannot read {label}: {exc.strerror}", source=Source(label, "")) from None
+    return decode_sheet(data, label)

@@ -1,0 +1,132 @@
+"""Units: astropy's registry plus the trade's extras, looked up by name.
+
+Names resolve through a plain dictionary (no string parser on the hot path).
+Extras beyond astropy: ``century`` (the Julian century, 36525 d, in which
+per-century rates are published). astropy already knows ``AU``, ``Msun``,
+``Rsun``, ``Mearth``, ``Rearth``, ``Mjup``, ``mas``, ``uas`` and ``lsec``.
+``cy`` is refused: astropy reads it as the cycle, astronomers write it for the
+century.
+
+The units built on astronomical constants (solar, terrestrial and jovian
+masses, radii, luminosity) follow the sheet's pinned constant sets.
+"""
+
+from __future__ import annotations
+
+import difflib
+from functools import lru_cache
+
+import astropy.units as u
+
+from .constants import ConstantSelection, constant_table, default_selection
+
+#: The Julian century: 36525 days of 86400 s (common practice; IAU usage for rates).
+century = u.def_unit(["century"], 36525 * u.day, doc="Julian century (36525 d)")
+
+EXTRA_UNITS: dict[str, u.UnitBase] = {"century": century}
+
+#: Names refused in unit position, with the reason and a hint.
+REFUSED_UNITS: dict[str, tuple[str, str]] = {
+    "cy": ("`cy` is ambiguous: astropy reads it as the cycle (2π rad), "
+           "astronomers write it for the century",
+           "write `cycle` for the angle or `century` for 36525 days"),
+}
+
+# Units that astropy derives from astronomical constants, by the constant they stand for.
+_CONSTANT_UNITS = {
+    "M_sun": u.solMass, "R_sun": u.solRad, "L_sun": u.solLum,
+    "M_earth": u.earthMass, "R_earth": u.earthRad,
+    "M_jup": u.jupiterMass, "R_jup": u.jupiterRad,
+}
+
+
+class UnitTable:
+    """Name → unit for one constant selection."""
+
+    def __init__(self, selection: ConstantSelection) -> None:
+        self.selection = selection
+        self._registry = u.get_current_unit_registry().registry
+        self._overrides: dict[str, u.UnitBase] = dict(EXTRA_UNITS)
+        if selection != default_selection():
+            constants = constant_table(selection)
+            for const_name, astropy_unit in _CONSTANT_UNITS.items():
+                value = constants[const_name].quantity
+                pinned = u.def_unit(list(astropy_unit.names), value,
+                                    doc=f"{astropy_unit.names[0]} under {selection}")
+                for alias in astropy_unit.names:
+                    self._overrides[alias] = pinned
+
+    def lookup(self, name: str) -> u.UnitBase | None:
+        """The unit called ``name``, or None. Refused names are not units (see :meth:`refusal`)."""
+        found = self._overrides.get(name)
+        if found is not None:
+            return found
+        if name in REFUSED_UNITS:
+            return None
+        return self._registry.get(name)
+
+    @staticmethod
+    def refusal(name: str) -> tuple[str, str] | None:
+        return REFUSED_UNITS.get(name)
+
+    def names(self) -> list[str]:
+        return [*self._registry, *self._overrides]
+
+    def suggestions(self, name: str, extra: list[str] = ()) -> list[str]:
+        return close_matches(name, [*self.names(), *extra])
+
+
+@lru_cache(maxsize=8)
+def unit_table(selection: ConstantSelection) -> UnitTable:
+    return UnitTable(selection)
+
+
+def close_matches(name: str, candidates) -> list[str]:
+    """Up to three near spellings, case-insensitive matches first."""
+    pool = set(candidates)
+    same_case = [c for c in pool if c.lower() == name.lower() and c != name]
+    near = difflib.get_close_matches(name, pool, n=3, cutoff=0.75)
+    out: list[str] = []
+    for c in same_case + near:
+        if c not in out and c != name:
+            out.append(c)
+    return out[:3]
+
+
+def did_you_mean(options: list[str]) -> str | None:
+    if not options:
+        return None
+    return "did you mean " + " or ".join(f"`{o}`" for o in options) + "?"
+
+
+@lru_cache(maxsize=4096)
+def unit_string(unit: u.UnitBase) -> str:
+    """astropy's generic string of a unit (`""` for dimensionless)."""
+    return unit.to_string()
+
+
+@lru_cache(maxsize=4096)
+def physical_type(unit: u.UnitBase) -> str:
+    kind = str(unit.physical_type)
+    if kind == "unknown":
+        base = unit.decompose()
+        return f"dimension {base.to_string()}" if base.bases else "dimensionless"
+    return kind
+
+
+def describe(unit: u.UnitBase) -> str:
+    """`km` (length) -- a unit named with its physical type, for messages."""
+    if unit == u.dimensionless_unscaled:
+        return "a dimensionless number"
+    return f"`{unit_string(unit)}` ({physical_type(unit)})"
+
+
+def angle_equivalencies():
+    """Context in which angles and dimensionless numbers convert into each other (radians)."""
+    return u.set_enabled_equivalencies(u.dimensionless_angles())
+
+
+def long_name(unit: u.UnitBase, avoid: set[str] = frozenset()) -> str:
+    """The longest of a named unit's names that is not in ``avoid`` (``annum`` for ``a``)."""
+    names = [n for n in getattr(unit, "names", [unit_string(unit)]) if n not in avoid]
+    return max(names, key=len) if names else unit_string(unit)
