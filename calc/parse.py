@@ -87,7 +87,9 @@ class BracketJoiner:
             raise SheetSyntaxError(f"`{opener.value}` is never closed", token_span(opener),
                                    hint=f"add the closing `{')' if opener.value == '(' else ']'}`")
         if last is not None and last.type != "_NL":
-            yield Token.new_borrow_pos("_NL", "\n", last)
+            yield Token("_NL", "\n", start_pos=last.end_pos, line=last.end_line,
+                        column=last.end_column, end_line=last.end_line,
+                        end_column=last.end_column + 1, end_pos=last.end_pos)
 
 
 @lru_cache(maxsize=1)
@@ -207,16 +209,19 @@ def _parse(text: str, start: str, source: Source):
                          hint="split it into several cells", source=source) from None
 
 
-def logical_lines(text: str) -> list[tuple[int, int]]:
+def logical_lines(text: str, start: int = 1) -> list[tuple[int, int]]:
     """(first, last) physical line numbers of each statement, joining lines inside brackets.
 
-    Used only to recover after a syntax error; a `#` starts a comment that runs
-    to the end of the line, and brackets in it do not count.
+    Used only to recover after a syntax error, from line ``start`` on; a `#`
+    starts a comment that runs to the end of the line, and brackets in it do
+    not count.
     """
+    lines = text.splitlines()
     spans: list[tuple[int, int]] = []
     depth = 0
     first = None
-    for number, line in enumerate(text.splitlines(), start=1):
+    for number in range(start, len(lines) + 1):
+        line = lines[number - 1]
         code = line.split("#", 1)[0]
         if first is None:
             if not line.strip():
@@ -231,7 +236,7 @@ def logical_lines(text: str) -> list[tuple[int, int]]:
             spans.append((first, number))
             first = None
     if first is not None:
-        spans.append((first, len(text.splitlines())))
+        spans.append((first, len(lines)))
     return spans
 
 
@@ -244,13 +249,18 @@ def parse_sheet(text: str, source: Source) -> ParsedSheet:
     lines = text.splitlines()
     statements: list[Statement] = []
     errors: list[SheetError] = []
-    for first, last in logical_lines(text):
+    pending = logical_lines(text)
+    while pending:
+        first, last = pending.pop(0)
         # leading newlines keep the line numbers of the whole file
         chunk = "\n" * (first - 1) + "\n".join(lines[first - 1:last]) + "\n"
         try:
             statements.extend(_parse(chunk, "sheet", source))
         except SheetError as err:
             errors.append(err)
+            if last > first and err.span is not None and err.span.line == first:
+                # a bracket left open on one line: go on with the next line
+                pending = logical_lines(text, first + 1)
     return ParsedSheet(statements, errors)
 
 

@@ -210,13 +210,16 @@ def split_trailer(text: str) -> tuple[str | None, str | None]:
 def parse_number(tok: Token) -> float:
     text = tok.value.rstrip("%").replace("\u2212", "-")
     try:
-        return float(text)
+        value = float(text)
     except ValueError:
         raise SheetSyntaxError(
             f"malformed number `{tok.value}`",
             token_span(tok),
             hint="`_` may only stand between two digits, as in 6.674_30e-11",
         ) from None
+    if value == float("inf"):
+        raise SheetSyntaxError(f"number `{tok.value}` is too large for a float", token_span(tok))
+    return value
 
 
 def _span_of(node) -> Span:

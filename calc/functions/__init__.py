@@ -30,10 +30,16 @@ class FunctionSpec:
 
     def bind(self, args: tuple, kwargs: dict) -> inspect.BoundArguments:
         """Bind call arguments, with errors a sheet author understands."""
+        params = self.signature.parameters
+        for key in kwargs:
+            if key not in params or params[key].kind is inspect.Parameter.VAR_POSITIONAL:
+                raise ArgumentError(f"{self.name}{self.display_signature()}: "
+                                    f"no argument is called `{key}`")
         try:
             bound = self.signature.bind(*args, **kwargs)
         except TypeError as exc:
-            raise ArgumentError(f"{self.name}{self.display_signature()}: {_bind_message(exc)}") from None
+            raise ArgumentError(
+                f"{self.name}{self.display_signature()}: {_bind_message(exc)}") from None
         return bound
 
     def display_signature(self) -> str:

@@ -1,0 +1,23 @@
+"""Shared helpers for the test suite."""
+
+from __future__ import annotations
+
+import pytest
+
+from calc import Sheet
+
+
+def evaluate(text: str, label: str = "t.sheet") -> Sheet:
+    """A sheet from text; a final newline is added when missing."""
+    return Sheet.from_text(text if text.endswith("\n") else text + "\n", label)
+
+
+def only_error(sheet: Sheet, name: str):
+    cell = sheet.cell(name)
+    assert cell.error is not None, f"{name} = {cell.value} (expected an error)"
+    return cell.error
+
+
+@pytest.fixture
+def sheet_of():
+    return evaluate

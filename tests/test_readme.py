@@ -1,0 +1,31 @@
+"""README.md: the quick start is two commands, and CI runs its test command verbatim."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def quick_start_commands() -> list[str]:
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = text.split("## Quick start", 1)[1]
+    block = re.search(r"```sh\n(.*?)```", section, re.S).group(1)
+    return [line for line in block.splitlines() if line.strip()]
+
+
+def test_quick_start_is_two_commands():
+    install_and_run, install_and_test = quick_start_commands()
+    assert "relsheet eval sheets_demo/" in install_and_run
+    assert '".[test]"' in install_and_test and "pytest" in install_and_test
+
+
+def test_ci_runs_the_readme_test_command():
+    ci = (ROOT / ".ci" / "run").read_text(encoding="utf-8")
+    assert quick_start_commands()[1] in ci.splitlines()
+
+
+def test_readme_demo_sheet_exists():
+    sheet = quick_start_commands()[0].rsplit(" ", 1)[1]
+    assert (ROOT / sheet).is_file()
