@@ -153,7 +153,8 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> She
             hint=f"add `{closing}`; inside brackets a statement goes on to the next line")
     expected = set(getattr(err, "expected", ()) or ())
     lines = text.splitlines()
-    first_word = lines[tok.line - 1].split(maxsplit=1)[0] if 0 < tok.line <= len(lines) else ""
+    words = lines[tok.line - 1].split(maxsplit=1) if 0 < tok.line <= len(lines) else []
+    first_word = words[0] if words else ""
     if first_word in RESERVED_WORDS - {"in", "const", "constants"}:
         column = len(lines[tok.line - 1]) - len(lines[tok.line - 1].lstrip()) + 1
         return SheetSyntaxError(
