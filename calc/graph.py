@@ -135,22 +135,19 @@ class DependencyGraph:
 
     def downstream(self, name: str) -> set[str]:
         """Every cell that depends on ``name``, directly or not."""
-        seen: set[str] = set()
-        todo = [name]
-        while todo:
-            for user in self.users.get(todo.pop(), ()):
-                if user not in seen:
-                    seen.add(user)
-                    todo.append(user)
-        return seen
+        return _reach(self.users, name)
 
     def upstream(self, name: str) -> set[str]:
         """Every cell ``name`` depends on, directly or not."""
-        seen: set[str] = set()
-        todo = [name]
-        while todo:
-            for dep in self.uses.get(todo.pop(), ()):
-                if dep not in seen:
-                    seen.add(dep)
-                    todo.append(dep)
-        return seen
+        return _reach(self.uses, name)
+
+
+def _reach(edges: dict[str, set[str]], start: str) -> set[str]:
+    seen: set[str] = set()
+    todo = [start]
+    while todo:
+        for nxt in edges.get(todo.pop(), ()):
+            if nxt not in seen:
+                seen.add(nxt)
+                todo.append(nxt)
+    return seen
