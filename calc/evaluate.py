@@ -517,6 +517,9 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
     """
     compiler = _Compiler(scope, source)
     program = CellProgram(definition, source)
+    if definition.syntax_error is not None:
+        program.error = definition.syntax_error
+        return program
     try:
         code = compiler.expr(definition.expr)
         if definition.unit is not None:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import hashlib
 import os
+import re
 import sys
 from dataclasses import dataclass
 from functools import lru_cache
@@ -19,7 +20,7 @@ from lark import Lark, Token
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 
 from .errors import InputError, SheetError, SheetSyntaxError, Source, Span
-from .syntax import RESERVED_WORDS, ExpressionLine, NodeBuilder, Statement, token_span
+from .syntax import RESERVED_WORDS, CellDef, ExpressionLine, NodeBuilder, Statement, token_span
 
 #: Brackets nested deeper than this are refused before they reach the parser.
 MAX_BRACKET_DEPTH = 64
@@ -241,6 +242,22 @@ def logical_lines(text: str, start: int = 1) -> list[tuple[int, int]]:
     return spans
 
 
+_CELL_START = re.compile(r"\s*([^\W\d]\w*)\s*=(?!=)")
+
+
+def _broken_cell(line: str, first: int, last: int, lines: list[str], err: SheetError):
+    """A line ``name = …`` that does not parse still defines the cell ``name``, failed,
+    so the cells that use it say which input failed instead of "unknown name"."""
+    match = _CELL_START.match(line)
+    if match is None or match.group(1) in RESERVED_WORDS:
+        return None
+    column = match.start(1) + 1
+    name = match.group(1)
+    name_span = Span(first, column, first, column + len(name))
+    whole = Span(first, column, last, len(lines[last - 1]) + 1)
+    return CellDef(name, name_span, None, None, None, None, whole, syntax_error=err)
+
+
 def parse_sheet(text: str, source: Source) -> ParsedSheet:
     """Parse a whole sheet; syntax errors are collected statement by statement."""
     try:
@@ -258,6 +275,9 @@ def parse_sheet(text: str, source: Source) -> ParsedSheet:
         try:
             statements.extend(_parse(chunk, "sheet", source))
         except SheetError as err:
+            broken = _broken_cell(lines[first - 1], first, last, lines, err)
+            if broken is not None:
+                statements.append(broken)
             errors.append(err)
             if last > first and err.span is not None and err.span.line == first:
                 # a bracket left open on one line: go on with the next line

@@ -100,7 +100,9 @@ class Sheet:
 
     def _build(self) -> None:
         parsed = parse_sheet(self.source.text, self.source)
-        self.errors.extend(parsed.errors)
+        on_cells = {id(s.syntax_error) for s in parsed.statements if isinstance(s, CellDef)}
+        # a syntax error on a line that names a cell is reported with that cell
+        self.errors.extend(e for e in parsed.errors if id(e) not in on_cells)
         pinned: ConstantsDef | None = None
         for statement in parsed.statements:
             if isinstance(statement, ConstantsDef):
@@ -121,6 +123,8 @@ class Sheet:
                 if first is None:
                     self._cells[statement.name] = cell
                     self._original[statement.name] = statement
+                    if statement.syntax_error is not None:
+                        self._fixed_errors[statement.name] = statement.syntax_error
                     continue
                 err = DuplicateCellError(
                     f"cell `{statement.name}` is defined twice (lines {first.line} "

@@ -150,11 +150,13 @@ class CellDef:
 
     name: str
     name_span: Span
-    expr: Expr
+    expr: Expr | None
     unit: Expr | None
     comment: str | None
     marker: str | None
     span: Span
+    #: set (and ``expr`` None) for a line that names a cell but does not parse
+    syntax_error: SheetSyntaxError | None = None
 
 
 @dataclass(frozen=True, slots=True)
