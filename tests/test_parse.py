@@ -157,6 +157,10 @@ def test_expression_input_for_set():
     ("x = f(a = 1, 2)\n",
      "t.sheet:1:14: a positional argument follows a keyword argument\n  x = f(a = 1, 2)\n               ^\n"
      "  hint: put positional arguments first, then `name = value` ones"),
+    # `^` binds tighter than the implicit product: x^2 a is not x^(2 a)
+    ("x = c^2 a\n",
+     "t.sheet:1:9: unexpected `a`: two values need an operator between them\n  x = c^2 a\n          ^\n"
+     "  hint: write `*` to multiply; only a name right after a number is read as a unit"),
     ("x = 1e999\n",
      "t.sheet:1:5: number `1e999` is too large for a float\n  x = 1e999\n      ^~~~~"),
 ])
