@@ -13,6 +13,7 @@ produces the text the command line prints::
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 
 @dataclass(frozen=True, slots=True)
@@ -29,16 +30,34 @@ class Span:
         return Span(self.line, self.column, other.end_line, other.end_column)
 
 
-@dataclass(frozen=True, slots=True)
+@dataclass(frozen=True)
 class Source:
     """Where text came from (a file path or a label such as ``--set``) and the text itself."""
 
     label: str
     text: str
 
+    @cached_property
+    def _line_starts(self) -> list[int]:
+        starts = [0]
+        for line in self.text.splitlines(keepends=True):
+            starts.append(starts[-1] + len(line))
+        return starts
+
     def line_text(self, line: int) -> str:
         lines = self.text.splitlines()
         return lines[line - 1] if 0 < line <= len(lines) else ""
+
+    def between(self, start: Span, end: Span | None = None) -> str:
+        """The text from the start of ``start`` to the start of ``end`` (or the end of
+        ``start``), with runs of white space folded to one space."""
+        s = self._line_starts
+        begin = s[start.line - 1] + start.column - 1
+        if end is None:
+            stop = s[start.end_line - 1] + start.end_column - 1
+        else:
+            stop = s[end.line - 1] + end.column - 1
+        return " ".join(self.text[begin:stop].split())
 
 
 class SheetError(Exception):

@@ -50,7 +50,20 @@ from .syntax import (
     UnaryOp,
     UnitProduct,
 )
-from .units import close_matches, describe, did_you_mean, physical_type
+from .units import (
+    angle_equivalencies,
+    close_matches,
+    conversion_scale,
+    describe,
+    did_you_mean,
+    physical_type,
+    plain_number_unit,
+    quantity,
+    unit_power,
+    unit_product,
+    unit_quotient,
+    value_in,
+)
 
 #: Deepest nesting of operations in one expression (keeps recursion far from Python's limit).
 MAX_EXPRESSION_DEPTH = 150
@@ -92,9 +105,29 @@ class CellProgram:
 # ---- operations ------------------------------------------------------------
 
 
+class _Checking:
+    """Whether operations check their results for nan and infinity.
+
+    Checking every operation of a million-element array costs as much as the
+    arithmetic, so cells run unchecked; only a cell whose result is not finite
+    runs again with checks on, which puts the error on the operation that
+    produced it (or lets a written `inf` carry through).
+    """
+
+    on = False
+
+
+_checking = _Checking()
+
+
+def all_finite(value) -> bool:
+    v = value.value
+    return math.isfinite(v) if np.ndim(v) == 0 else bool(np.isfinite(v).all())
+
+
 def _finite(result, inputs, span: Span, what: str = "the result"):
     """Refuse nan, and an infinity that no infinite input explains (overflow, x/0)."""
-    if isinstance(result, u.UnitBase):
+    if not _checking.on or isinstance(result, u.UnitBase):
         return result
     value = result.value
     if np.ndim(value) == 0:
@@ -124,16 +157,33 @@ def _unit_of(x) -> u.UnitBase:
     return x if isinstance(x, u.UnitBase) else x.unit
 
 
+def _plain(x) -> bool:
+    """A plain Quantity with an ordinary unit: eligible for the fast arithmetic below."""
+    return type(x) is u.Quantity and isinstance(x.unit, u.UnitBase)
+
+
 def add_op(span: Span, subtract: bool):
+    def fail(x, y):
+        if subtract:
+            message = f"cannot subtract {describe(_unit_of(y))} from {describe(_unit_of(x))}"
+        else:
+            message = f"cannot add {describe(_unit_of(x))} and {describe(_unit_of(y))}"
+        return UnitError(message, span)
+
     def apply(x, y):
+        if isinstance(x, u.UnitBase) or isinstance(y, u.UnitBase):
+            raise fail(x, y)
         try:
-            result = x - y if subtract else x + y
-        except u.UnitConversionError:
-            if subtract:
-                message = f"cannot subtract {describe(_unit_of(y))} from {describe(_unit_of(x))}"
+            if _plain(x) and _plain(y):
+                # x's unit wins, as in astropy; y is scaled into it
+                scale = conversion_scale(y.unit, x.unit)
+                yv = y.value if scale == 1.0 else y.value * scale
+                result = quantity(x.value - yv if subtract else x.value + yv, x.unit)
             else:
-                message = f"cannot add {describe(_unit_of(x))} and {describe(_unit_of(y))}"
-            raise UnitError(message, span) from None
+                with angle_equivalencies():
+                    result = x - y if subtract else x + y
+        except u.UnitConversionError:
+            raise fail(x, y) from None
         except ValueError:
             raise _shape_error(x, y, span) from None
         return _finite(result, (x, y), span)
@@ -144,17 +194,21 @@ def add_op(span: Span, subtract: bool):
 def mul_op(span: Span, divide: bool):
     def apply(x, y):
         try:
-            result = x / y if divide else x * y
+            if _plain(x) and _plain(y):
+                if divide:
+                    result = quantity(x.value / y.value, unit_quotient(x.unit, y.unit))
+                else:
+                    result = quantity(x.value * y.value, unit_product(x.unit, y.unit))
+            else:
+                result = x / y if divide else x * y
         except ValueError:
             raise _shape_error(x, y, span) from None
         except ZeroDivisionError:
             raise DomainError("division by zero", span) from None
-        if divide and not isinstance(y, u.UnitBase):
-            divisor = y.value
-            if np.any(np.asarray(divisor) == 0) and not isinstance(result, u.UnitBase):
-                value = result.value
-                if not np.all(np.isfinite(value)):
-                    raise DomainError("division by zero", span)
+        if divide and _checking.on and not isinstance(y, u.UnitBase) \
+                and not isinstance(result, u.UnitBase):
+            if np.any(np.asarray(y.value) == 0) and not np.all(np.isfinite(result.value)):
+                raise DomainError("division by zero", span)
         return _finite(result, (x, y), span)
 
     return apply
@@ -162,7 +216,7 @@ def mul_op(span: Span, divide: bool):
 
 def neg_op(span: Span):
     def apply(x):
-        return -x
+        return quantity(-x.value, x.unit) if _plain(x) else -x
 
     return apply
 
@@ -170,25 +224,27 @@ def neg_op(span: Span):
 def power_op(span: Span, exponent_span: Span):
     def apply(base, exponent):
         try:
-            e = exponent.to_value(_ONE)
+            e = value_in(exponent, _ONE)
         except u.UnitConversionError:
             raise UnitError(f"the exponent must be dimensionless, got {describe(exponent.unit)}",
                             exponent_span) from None
         try:
-            if base.unit == _ONE:
-                result = u.Quantity(np.power(base.value, e))
+            if base.unit is _ONE or base.unit == _ONE:
+                result = quantity(np.power(base.value, e), _ONE)
             else:
                 if np.ndim(e) != 0:
                     raise UnitError("a quantity with a unit can be raised only to a single number",
                                     exponent_span)
-                result = base ** float(e)
+                p = float(e)
+                result = (quantity(np.power(base.value, p), unit_power(base.unit, p))
+                          if _plain(base) else base ** p)
         except OverflowError:
             raise DomainError("the power overflows", span) from None
         except ZeroDivisionError:
             raise DomainError("zero to a negative power", span) from None
         except ValueError:
             raise _shape_error(base, exponent, span) from None
-        if np.isnan(result.value).any() and np.any(np.asarray(base.value) < 0):
+        if _checking.on and np.isnan(result.value).any() and np.any(np.asarray(base.value) < 0):
             raise DomainError("a negative number to a fractional power", span)
         return _finite(result, (base, exponent), span, "the power")
 
@@ -197,7 +253,7 @@ def power_op(span: Span, exponent_span: Span):
 
 def convert(value: u.Quantity, unit: u.UnitBase, span: Span) -> u.Quantity:
     try:
-        return value.to(unit)
+        return quantity(value_in(value, unit), unit)
     except u.UnitConversionError:
         raise UnitError(f"cannot show {describe(value.unit)} in {describe(unit)}", span,
                         hint=f"the cell's dimension is {physical_type(value.unit)}") from None
@@ -205,9 +261,8 @@ def convert(value: u.Quantity, unit: u.UnitBase, span: Span) -> u.Quantity:
 
 def normalise(value: u.Quantity) -> u.Quantity:
     """Collapse a scaled dimensionless unit (`km / m`) into a plain number."""
-    unit = value.unit
-    if unit is not _ONE and unit != _ONE and unit.physical_type == "dimensionless":
-        return value.to(_ONE)
+    if plain_number_unit(value.unit):
+        return quantity(value_in(value, _ONE), _ONE)
     return value
 
 
@@ -245,23 +300,10 @@ class _Compiler:
         self.source = source
         self.deps: dict[str, Span] = {}
         self.looked_up: set[str] = set()
-        self._line_starts: list[int] | None = None
 
     # -- helpers
     def text(self, start: Span, end: Span | None = None) -> str:
-        """Source text from the start of ``start`` to the start of ``end`` (or the end of start)."""
-        if self._line_starts is None:
-            starts = [0]
-            for line in self.source.text.splitlines(keepends=True):
-                starts.append(starts[-1] + len(line))
-            self._line_starts = starts
-        s = self._line_starts
-        begin = s[start.line - 1] + start.column - 1
-        if end is None:
-            stop = s[start.end_line - 1] + start.end_column - 1
-        else:
-            stop = s[end.line - 1] + end.column - 1
-        return " ".join(self.source.text[begin:stop].split())
+        return self.source.between(start, end)
 
     def cell_ref(self, name: str, span: Span) -> Code:
         self.deps.setdefault(name, span)
@@ -280,7 +322,7 @@ class _Compiler:
             raise UnitError("a unit's exponent must be a number written in the sheet", node.span)
         value = code.value
         try:
-            e = value.to_value(_ONE)
+            e = value_in(value, _ONE)
         except u.UnitConversionError:
             raise UnitError(f"the exponent must be dimensionless, got {describe(value.unit)}",
                             node.span) from None
@@ -337,21 +379,35 @@ class _Compiler:
         is_open = True
         for item in node.items:
             if is_open:
-                prefix = self.text(node.span, item.span)
-                item_code, is_open = self.chain_item(
-                    item, depth, cell_hint=f"{prefix} * {self.text(item.span)}",
-                    unit_hint=f"{prefix} {{unit}}{self._after_name(item)}")
+                item_code, is_open = self.chain_item(item, depth, self._juxtaposed(node, item))
             else:
                 item_code = self.expr(item, depth + 1)
             code = _lift(mul_op(node.span, divide=False), code, item_code)
         return code, is_open
+
+    # The two spellings an ambiguous name's hint shows, built only when needed.
+    def _juxtaposed(self, chain: Chain, item):
+        def spellings() -> tuple[str, str]:
+            prefix = self.text(chain.span, item.span)
+            return f"{prefix} * {self.text(item.span)}", f"{prefix} {{unit}}{self._after_name(item)}"
+        return spellings
+
+    def _divided(self, node: BinaryOp):
+        def spellings() -> tuple[str, str]:
+            prefix = self.text(node.span, node.right.span).rstrip("/ ").rstrip()
+            return (f"{prefix} / ({self.text(node.right.span)})",
+                    f"{prefix} / {{unit}}{self._after_name(node.right)}")
+        return spellings
+
+    def _alone(self, node):
+        return lambda: (f"1 * {self.text(node.span)}", "{unit}")
 
     def _after_name(self, item) -> str:
         if isinstance(item, NamePower):
             return self.text(item.span)[len(item.name.id):]
         return ""
 
-    def chain_item(self, item, depth: int, cell_hint: str, unit_hint: str) -> tuple[Code, bool]:
+    def chain_item(self, item, depth: int, spellings) -> tuple[Code, bool]:
         """A name (or name^n, or group) in unit position: a unit keeps the chain open."""
         if isinstance(item, Group):
             inner = item.inner
@@ -366,7 +422,7 @@ class _Compiler:
                 isinstance(item, NamePower) or isinstance(item.base, Name)):
             name = item.name if isinstance(item, NamePower) else item.base
             self.looked_up.add(name.id)
-            resolved = self.scope.in_chain(name, cell_hint, unit_hint)
+            resolved = self.scope.in_chain(name, spellings)
             if resolved.kind == "unit":
                 return Const(resolved.unit ** self.exponent_number(item.exponent, depth)), True
             base = self.resolved(resolved, name.span)
@@ -374,7 +430,7 @@ class _Compiler:
             return _lift(power_op(item.span, item.exponent.span), base, exponent), False
         if isinstance(item, Name):
             self.looked_up.add(item.id)
-            resolved = self.scope.in_chain(item, cell_hint, unit_hint)
+            resolved = self.scope.in_chain(item, spellings)
             return self.resolved(resolved, item.span), resolved.kind == "unit"
         return self.expr(item, depth + 1), False
 
@@ -390,16 +446,11 @@ class _Compiler:
         if kind is Group and names_lead:
             return self.chainable(node.inner, depth + 1, names_lead)
         if names_lead and _is_unit_item(node):
-            text = self.text(node.span)
-            return self.chain_item(node, depth, cell_hint=f"1 * {text}", unit_hint="{unit}")
+            return self.chain_item(node, depth, self._alone(node))
         if kind is BinaryOp and node.op == "/":
             left, is_open = self.chainable(node.left, depth + 1, names_lead)
             if is_open and _is_unit_item(node.right):
-                prefix = self.text(node.span, node.right.span).rstrip("/ ").rstrip()
-                right_text = self.text(node.right.span)
-                right, is_open = self.chain_item(
-                    node.right, depth, cell_hint=f"{prefix} / ({right_text})",
-                    unit_hint=f"{prefix} / {{unit}}{self._after_name(node.right)}")
+                right, is_open = self.chain_item(node.right, depth, self._divided(node))
             else:
                 right, is_open = self.expr(node.right, depth + 1), False
             return _lift(mul_op(node.span, divide=True), left, right), is_open
@@ -471,7 +522,7 @@ class _Compiler:
                 if np.ndim(value.value) != 0:
                     raise DomainError("arrays hold single values, not arrays", span)
                 try:
-                    plain.append(value.to_value(unit))
+                    plain.append(value_in(value, unit))
                 except u.UnitConversionError:
                     raise UnitError(f"array items must share a dimension: {describe(value.unit)} "
                                     f"is not {describe(unit)}", span) from None
@@ -529,6 +580,9 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
             program.unit, program.unit_span = display_unit
         if isinstance(code, Const):
             program.constant = finish(program, code.value)
+            if not all_finite(program.constant):
+                program.constant = checked(
+                    lambda: finish(program, _Compiler(scope, source).expr(definition.expr).value))
         else:
             program.run = code
     except SheetError as err:
@@ -552,6 +606,18 @@ def run_cell(program: CellProgram, env: dict) -> u.Quantity:
     if program.constant is not None:
         return program.constant
     try:
-        return finish(program, program.run(env))
+        value = finish(program, program.run(env))
+        if not all_finite(value):
+            value = checked(lambda: finish(program, program.run(env)))
+        return value
     except SheetError as err:
         raise err.located(program.definition.span, program.source) from None
+
+
+def checked(compute):
+    """Run ``compute`` with every operation checking its result."""
+    _checking.on = True
+    try:
+        return compute()
+    finally:
+        _checking.on = False

@@ -20,6 +20,7 @@ from lark import Lark, Token
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 
 from .errors import InputError, SheetError, SheetSyntaxError, Source, Span
+from .lexer import SheetLexer
 from .syntax import RESERVED_WORDS, CellDef, ExpressionLine, NodeBuilder, Statement, token_span
 
 #: Brackets nested deeper than this are refused before they reach the parser.
@@ -99,7 +100,7 @@ def _parser() -> tuple[Lark, BracketJoiner]:
     text = path.read_text(encoding="utf-8")
     joiner = BracketJoiner()
     key = hashlib.sha256((text + lark.__version__ + sys.version).encode()).hexdigest()[:16]
-    options = dict(parser="lalr", lexer="contextual", postlex=joiner, transformer=NodeBuilder(),
+    options = dict(parser="lalr", lexer=SheetLexer, postlex=joiner, transformer=NodeBuilder(),
                    start=["sheet", "expression_input", "prompt_input"], maybe_placeholders=True)
     cache_dir = _cache_dir()
     try:
@@ -156,6 +157,14 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> She
     lines = text.splitlines()
     words = lines[tok.line - 1].split(maxsplit=1) if 0 < tok.line <= len(lines) else []
     first_word = words[0] if words else ""
+    line_text = lines[tok.line - 1] if 0 < tok.line <= len(lines) else ""
+    named = _CELL_START.match(line_text)
+    if named and named.group(1) in RESERVED_WORDS:
+        column = named.start(1) + 1
+        word = named.group(1)
+        return SheetSyntaxError(f"`{word}` is a reserved word and cannot name a cell",
+                                Span(tok.line, column, tok.line, column + len(word)),
+                                hint=f"choose another name, such as `{word}_value`")
     if first_word in RESERVED_WORDS - {"in", "const", "constants"}:
         column = len(lines[tok.line - 1]) - len(lines[tok.line - 1].lstrip()) + 1
         return SheetSyntaxError(

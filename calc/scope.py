@@ -13,6 +13,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Literal
 
@@ -44,15 +45,16 @@ class Scope:
         self.constants: dict[str, ConstantEntry] = constant_table(selection)
 
     # -- the three positions
-    def in_chain(self, name: Name, cell_hint: str, unit_hint: str) -> Resolved:
-        """A name in a unit chain. ``cell_hint``/``unit_hint`` show the two spellings
-        (e.g. ``2 * a`` and ``2 {unit}``) when the name is ambiguous."""
+    def in_chain(self, name: Name, spellings: Callable[[], tuple[str, str]]) -> Resolved:
+        """A name in a unit chain. ``spellings()`` gives the two ways to write what was
+        meant (e.g. ``2 * a`` and ``2 {unit}``) for the hint when the name is ambiguous."""
         refusal = self.units.refusal(name.id)
         if refusal:
             raise NameResolutionError(refusal[0], name.span, hint=refusal[1])
         unit = self.units.lookup(name.id)
         if unit is not None:
             if name.id in self.cell_names:
+                cell_hint, unit_hint = spellings()
                 spelled = long_name(unit, avoid=set(self.cell_names))
                 raise NameResolutionError(
                     f"`{name.id}` is both a cell and the unit `{spelled}`",
@@ -61,6 +63,7 @@ class Scope:
                          f"for the unit write `{unit_hint.format(unit=spelled)}`")
             constant = self.constants.get(name.id)
             if constant is not None and not _same_value(unit, constant.quantity):
+                cell_hint, unit_hint = spellings()
                 spelled = long_name(unit, avoid={name.id})
                 raise NameResolutionError(
                     f"`{name.id}` is both the unit `{spelled}` and the constant "

@@ -17,6 +17,7 @@ import difflib
 from functools import lru_cache
 
 import astropy.units as u
+import numpy as np
 
 from .constants import ConstantSelection, constant_table, default_selection
 
@@ -124,6 +125,87 @@ def describe(unit: u.UnitBase) -> str:
 def angle_equivalencies():
     """Context in which angles and dimensionless numbers convert into each other (radians)."""
     return u.set_enabled_equivalencies(u.dimensionless_angles())
+
+
+# ---- cached unit algebra ---------------------------------------------------------
+# astropy's unit algebra is exact but costs microseconds per call; a sheet repeats the
+# same few unit combinations thousands of times. Keys are object ids; each entry keeps
+# its units alive so an id cannot be reused while it is in the table.
+
+_PRODUCTS: dict[tuple[int, int], tuple] = {}
+_QUOTIENTS: dict[tuple[int, int], tuple] = {}
+_POWERS: dict[tuple[int, float], tuple] = {}
+_SCALES: dict[tuple[int, int], tuple] = {}
+_ANGLES = u.dimensionless_angles()
+
+
+def unit_product(a: u.UnitBase, b: u.UnitBase) -> u.UnitBase:
+    hit = _PRODUCTS.get((id(a), id(b)))
+    if hit is None:
+        hit = _PRODUCTS[(id(a), id(b))] = (a, b, a * b)
+    return hit[2]
+
+
+def unit_quotient(a: u.UnitBase, b: u.UnitBase) -> u.UnitBase:
+    hit = _QUOTIENTS.get((id(a), id(b)))
+    if hit is None:
+        hit = _QUOTIENTS[(id(a), id(b))] = (a, b, a / b)
+    return hit[2]
+
+
+def unit_power(a: u.UnitBase, p: float) -> u.UnitBase:
+    hit = _POWERS.get((id(a), p))
+    if hit is None:
+        hit = _POWERS[(id(a), p)] = (a, a ** p)
+    return hit[1]
+
+
+def conversion_scale(source: u.UnitBase, target: u.UnitBase) -> float:
+    """The factor that turns a value in ``source`` into one in ``target``.
+
+    Angles and dimensionless numbers convert into each other (radians).
+    Raises ``astropy.units.UnitConversionError`` for incompatible units.
+    """
+    if source is target:
+        return 1.0
+    key = (id(source), id(target))
+    hit = _SCALES.get(key)
+    if hit is None:
+        try:
+            scale = source.to(target)
+        except u.UnitConversionError:
+            try:
+                scale = source.to(target, equivalencies=_ANGLES)
+            except u.UnitConversionError as exc:
+                scale = exc
+        hit = _SCALES[key] = (source, target, scale)
+    scale = hit[2]
+    if isinstance(scale, Exception):
+        raise u.UnitConversionError(str(scale))
+    return scale
+
+
+@lru_cache(maxsize=4096)
+def plain_number_unit(unit: u.UnitBase) -> bool:
+    """True for a scaled dimensionless unit such as `km / m`, which shows better as a number."""
+    return unit is not u.dimensionless_unscaled and unit.physical_type == "dimensionless" \
+        and unit != u.dimensionless_unscaled
+
+
+def quantity(value, unit: u.UnitBase = u.dimensionless_unscaled) -> u.Quantity:
+    """A Quantity around a freshly computed value, without copying an array.
+
+    Values are never changed in place anywhere in relsheet, so sharing is safe.
+    """
+    if isinstance(value, np.ndarray):
+        return u.Quantity(value, unit, copy=False)
+    return u.Quantity(value, unit)
+
+
+def value_in(q: u.Quantity, unit: u.UnitBase):
+    """The value of ``q`` in ``unit`` (angles and dimensionless numbers interconvert)."""
+    scale = conversion_scale(q.unit, unit)
+    return q.value if scale == 1.0 else q.value * scale
 
 
 def long_name(unit: u.UnitBase, avoid: set[str] = frozenset()) -> str:

@@ -10,7 +10,7 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import ArgumentError
-from ..units import physical_type
+from ..units import physical_type, value_in
 
 #: The largest array ``span`` and ``logspan`` will make (memory guard: 80 MB of floats).
 MAX_ARRAY_LENGTH = 10_000_000
@@ -31,7 +31,7 @@ def show(q: u.Quantity) -> str:
 def to_value(q: u.Quantity, unit: u.UnitBase, name: str, what: str):
     """``q`` in ``unit`` as a float or array; ``what`` names the dimension ("a length")."""
     try:
-        return q.to_value(unit)
+        return value_in(q, unit)
     except u.UnitConversionError:
         raise ArgumentError(f"`{name}` must be {what}, got {show(q)}", name) from None
 
@@ -51,7 +51,7 @@ def same_dimension(quantities: list[u.Quantity], names: list[str]) -> list:
     out = []
     for q, name in zip(quantities, names):
         try:
-            out.append(q.to_value(unit))
+            out.append(value_in(q, unit))
         except u.UnitConversionError:
             raise ArgumentError(
                 f"`{name}` must have the same dimension as `{names[0]}` "

@@ -13,6 +13,7 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import ArgumentError
+from ..units import quantity
 from . import args as check
 from . import register
 
@@ -31,13 +32,13 @@ def sqrt(x: u.Quantity) -> u.Quantity:
 @register("exp", TOPIC)
 def exp(x: u.Quantity) -> u.Quantity:
     """e to the power x, for dimensionless x."""
-    return u.Quantity(np.exp(check.dimensionless(x, "x")), _ONE)
+    return quantity(np.exp(check.dimensionless(x, "x")), _ONE)
 
 
 def _logarithm(x: u.Quantity, fn) -> u.Quantity:
     value = check.dimensionless(x, "x")
     check.positive(value, x, "x")
-    return u.Quantity(fn(value), _ONE)
+    return quantity(fn(value), _ONE)
 
 
 @register("ln", TOPIC)
@@ -55,26 +56,26 @@ def log10(x: u.Quantity) -> u.Quantity:
 @register("sin", TOPIC)
 def sin(x: u.Quantity) -> u.Quantity:
     """Sine of an angle (a dimensionless number counts as radians)."""
-    return u.Quantity(np.sin(check.angle(x, "x")), _ONE)
+    return quantity(np.sin(check.angle(x, "x")), _ONE)
 
 
 @register("cos", TOPIC)
 def cos(x: u.Quantity) -> u.Quantity:
     """Cosine of an angle (a dimensionless number counts as radians)."""
-    return u.Quantity(np.cos(check.angle(x, "x")), _ONE)
+    return quantity(np.cos(check.angle(x, "x")), _ONE)
 
 
 @register("tan", TOPIC)
 def tan(x: u.Quantity) -> u.Quantity:
     """Tangent of an angle (a dimensionless number counts as radians)."""
-    return u.Quantity(np.tan(check.angle(x, "x")), _ONE)
+    return quantity(np.tan(check.angle(x, "x")), _ONE)
 
 
 def _inverse(x: u.Quantity, fn) -> u.Quantity:
     value = check.dimensionless(x, "x")
     if np.any(np.abs(value) > 1):
         raise ArgumentError(f"`x` must lie between -1 and 1, got {check.show(x)}", "x")
-    return u.Quantity(fn(value), u.rad)
+    return quantity(fn(value), u.rad)
 
 
 @register("asin", TOPIC)
@@ -92,14 +93,14 @@ def acos(x: u.Quantity) -> u.Quantity:
 @register("atan", TOPIC)
 def atan(x: u.Quantity) -> u.Quantity:
     """Inverse tangent, in radians, of a dimensionless number."""
-    return u.Quantity(np.arctan(check.dimensionless(x, "x")), u.rad)
+    return quantity(np.arctan(check.dimensionless(x, "x")), u.rad)
 
 
 @register("atan2", TOPIC)
 def atan2(y: u.Quantity, x: u.Quantity) -> u.Quantity:
     """Angle of the point (x, y), in radians from -π to π; y and x share a dimension."""
     yv, xv = check.same_dimension([y, x], ["y", "x"])
-    return u.Quantity(np.arctan2(yv, xv), u.rad)
+    return quantity(np.arctan2(yv, xv), u.rad)
 
 
 @register("hypot", TOPIC)
@@ -112,7 +113,7 @@ def hypot(*values: u.Quantity) -> u.Quantity:
     result = plain[0]
     for v in plain[1:]:
         result = np.hypot(result, v)
-    return u.Quantity(result, values[0].unit)
+    return quantity(result, values[0].unit)
 
 
 @register("abs", TOPIC)
@@ -125,13 +126,13 @@ def _extreme(values: tuple[u.Quantity, ...], reduce, pairwise, what: str) -> u.Q
     if not values:
         raise ArgumentError(f"{what} needs at least one value")
     if len(values) == 1:
-        return u.Quantity(reduce(values[0].value), values[0].unit)
+        return quantity(reduce(values[0].value), values[0].unit)
     names = [f"value {i + 1}" for i in range(len(values))]
     plain = check.same_dimension(list(values), names)
     result = plain[0]
     for v in plain[1:]:
         result = pairwise(result, v)
-    return u.Quantity(result, values[0].unit)
+    return quantity(result, values[0].unit)
 
 
 @register("min", TOPIC)
@@ -149,13 +150,13 @@ def maximum(*values: u.Quantity) -> u.Quantity:
 @register("sum", TOPIC)
 def total(x: u.Quantity) -> u.Quantity:
     """Sum of the elements of an array."""
-    return u.Quantity(np.sum(x.value), x.unit)
+    return quantity(np.sum(x.value), x.unit)
 
 
 @register("mean", TOPIC)
 def mean(x: u.Quantity) -> u.Quantity:
     """Arithmetic mean of the elements of an array."""
-    return u.Quantity(np.mean(x.value), x.unit)
+    return quantity(np.mean(x.value), x.unit)
 
 
 @register("span", TOPIC)
@@ -165,7 +166,7 @@ def span(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
     check.scalar(stop, "stop")
     lo, hi = check.same_dimension([start, stop], ["start", "stop"])
     count = check.count(n, "n", minimum=2)
-    return u.Quantity(np.linspace(lo, hi, count), start.unit)
+    return quantity(np.linspace(lo, hi, count), start.unit)
 
 
 @register("logspan", TOPIC)
@@ -177,4 +178,4 @@ def logspan(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
     check.positive(lo, start, "start")
     check.positive(hi, stop, "stop")
     count = check.count(n, "n", minimum=2)
-    return u.Quantity(np.geomspace(lo, hi, count), start.unit)
+    return quantity(np.geomspace(lo, hi, count), start.unit)

@@ -1,0 +1,199 @@
+"""relsheet benchmarks: every figure is a ratio against a baseline run side by side.
+
+    python bench/run.py            # full run
+    python bench/run.py --quick    # a short run (CI uses it as a smoke check)
+    python bench/run.py --json     # machine-readable output
+
+Each figure runs its measurement and its baseline alternately (A B A B …), so
+a machine that drifts during the run biases neither side; it reports the
+median ratio of the pairs and their spread (lowest and highest pair). Goals
+are printed for reading, never asserted: benchmarks are not tests.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Callable
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import workloads  # noqa: E402
+
+DEMO = ROOT / "sheets_demo" / "orvane_b.sheet"
+PY = sys.executable
+
+
+@dataclass
+class Figure:
+    id: str
+    name: str
+    goal: float
+    ratio: float = float("nan")
+    spread: tuple[float, float] = (float("nan"), float("nan"))
+    measured: float = float("nan")
+    baseline: float = float("nan")
+    unit: str = "s"
+    pairs: int = 0
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def met(self) -> bool:
+        return self.ratio <= self.goal
+
+
+def _summarise(fig: Figure, a: list[float], b: list[float]) -> Figure:
+    ratios = [x / y for x, y in zip(a, b)]
+    fig.ratio = statistics.median(ratios)
+    fig.spread = (min(ratios), max(ratios))
+    fig.measured = statistics.median(a)
+    fig.baseline = statistics.median(b)
+    fig.pairs = len(ratios)
+    return fig
+
+
+def run_process(argv: list[str], cwd: Path) -> tuple[float, int]:
+    """Wall time (s) and peak resident memory (KiB) of one whole process."""
+    start = time.perf_counter()
+    proc = subprocess.Popen(argv, cwd=cwd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)
+    elapsed = time.perf_counter() - start
+    proc.returncode = os.waitstatus_to_exitcode(status)
+    err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
+    proc.stderr.close()
+    if proc.returncode not in (0,):
+        raise RuntimeError(f"{' '.join(argv)} exited {proc.returncode}: {err[-500:]}")
+    return elapsed, usage.ru_maxrss
+
+
+def paired_processes(a: list[str], b: list[str], repeats: int, cwd: Path):
+    run_process(a, cwd), run_process(b, cwd)  # warm caches: disk, grammar, bytecode
+    times_a, times_b, mem_a, mem_b = [], [], [], []
+    for _ in range(repeats):
+        ta, ma = run_process(a, cwd)
+        tb, mb = run_process(b, cwd)
+        times_a.append(ta)
+        times_b.append(tb)
+        mem_a.append(ma)
+        mem_b.append(mb)
+    return times_a, times_b, mem_a, mem_b
+
+
+def paired_calls(a: Callable[[], object], b: Callable[[], object], repeats: int):
+    a(), b()
+    times_a, times_b = [], []
+    for _ in range(repeats):
+        t = time.perf_counter()
+        a()
+        times_a.append(time.perf_counter() - t)
+        t = time.perf_counter()
+        b()
+        times_b.append(time.perf_counter() - t)
+    return times_a, times_b
+
+
+# ---- the figures ------------------------------------------------------------
+
+
+def p1_startup(repeats: int) -> Figure:
+    fig = Figure("P1", "start-up: `relsheet eval` of the demo sheet vs importing its libraries", 1.3)
+    a = [PY, "-m", "calc", "eval", str(DEMO)]
+    b = [PY, "-c", "import astropy.units, astropy.constants, numpy, lark"]
+    ta, tb, _, _ = paired_processes(a, b, repeats, ROOT)
+    return _summarise(fig, ta, tb)
+
+
+def p2_p5_size(repeats: int, workdir: Path) -> tuple[Figure, Figure]:
+    sheet = workdir / "size.sheet"
+    script = workdir / "size.py"
+    sheet.write_text(workloads.size_sheet(2000))
+    script.write_text(workloads.size_script(2000))
+    a = [PY, "-m", "calc", "eval", str(sheet)]
+    b = [PY, str(script)]
+    ta, tb, ma, mb = paired_processes(a, b, repeats, ROOT)
+    size = _summarise(Figure("P2", "size: `relsheet eval` of a 2,000-cell sheet vs the same "
+                                   "arithmetic as an astropy script", 1.5), ta, tb)
+    size.notes.append("aim: ≤ 1.0")
+    memory = _summarise(Figure("P5", "memory: peak RSS of P2 vs its baseline", 1.5, unit="KiB"),
+                        [float(x) for x in ma], [float(x) for x in mb])
+    return size, memory
+
+
+def p3_incremental(repeats: int) -> Figure:
+    from calc import Sheet
+
+    text = workloads.fanout_sheet(2000, fed=20)
+    sheet = Sheet.from_text(text)
+    values = iter(range(2, 10**9))
+
+    def what_if():
+        changed = sheet.set("x0", f"{next(values)} km")
+        assert len(changed) == 20, len(changed)
+
+    ta, tb = paired_calls(what_if, lambda: Sheet.from_text(text), repeats)
+    return _summarise(Figure("P3", "incremental: `Sheet.set` of an input feeding 1% of 2,000 "
+                                   "cells vs a full evaluation", 0.05), ta, tb)
+
+
+def p4_arrays(repeats: int) -> Figure:
+    from calc import Sheet
+
+    ta, tb = paired_calls(lambda: Sheet.from_text(workloads.ARRAY_SHEET)["w"],
+                          workloads.array_direct, repeats)
+    return _summarise(Figure("P4", "arrays: a 1,000,000-element `span` through four steps vs "
+                                   "astropy Quantity arrays", 1.5), ta, tb)
+
+
+# ---- output -------------------------------------------------------------------
+
+
+def render(figures: list[Figure]) -> str:
+    rows = [("figure", "ratio", "spread", "goal", "", "measured", "baseline")]
+    for f in figures:
+        scale, unit = (1e3, "ms") if f.unit == "s" else (1 / 1024, "MiB")
+        rows.append((f"{f.id} {f.name}", f"{f.ratio:.3f}", f"{f.spread[0]:.3f}–{f.spread[1]:.3f}",
+                     f"≤ {f.goal:g}", "met" if f.met else "MISSED",
+                     f"{f.measured * scale:.1f} {unit}", f"{f.baseline * scale:.1f} {unit}"))
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    return "\n".join("  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip() for r in rows)
+
+
+def machine() -> dict:
+    return {"python": platform.python_version(), "machine": platform.machine(),
+            "cpus": os.cpu_count(), "system": platform.system()}
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="few repetitions (smoke check)")
+    parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    args = parser.parse_args(argv)
+    process_repeats, call_repeats = (3, 5) if args.quick else (11, 21)
+    with tempfile.TemporaryDirectory() as tmp:
+        figures = [p1_startup(process_repeats)]
+        size, memory = p2_p5_size(process_repeats, Path(tmp))
+        figures += [size, p3_incremental(call_repeats), p4_arrays(call_repeats), memory]
+    if args.json:
+        print(json.dumps({"machine": machine(), "quick": args.quick,
+                          "figures": [asdict(f) | {"met": f.met} for f in figures]}, indent=2))
+    else:
+        print(render(figures))
+        print(f"\n{'quick run, ' if args.quick else ''}pairs per figure: "
+              f"{process_repeats} (processes), {call_repeats} (in-process); "
+              f"Python {platform.python_version()} on {os.cpu_count()} CPUs")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

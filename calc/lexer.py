@@ -1,0 +1,104 @@
+"""A single-pass lexer for the sheet language, plugged into lark's LALR parser.
+
+lark's own lexers re-run their bookkeeping for every token; this one matches
+one master regular expression and tracks lines itself, which makes lexing a
+2,000-cell sheet several times faster. The token *patterns* stay in
+``grammar/sheet.lark``: they are taken from the grammar's terminal
+definitions, and construction fails if the grammar gains a terminal this
+lexer does not know. ``tests/test_lexer.py`` checks that the token stream
+equals the one lark's standard lexer produces.
+
+Keywords (``in``, ``constants``) are reserved everywhere, as the language
+reserves them.
+"""
+
+from __future__ import annotations
+
+import re
+
+from lark import Token
+from lark.exceptions import UnexpectedCharacters
+from lark.lexer import Lexer
+
+# Terminals matched by their regular expression from the grammar, longest-first where
+# one pattern is a prefix of another (PERCENT before NUMBER, DOTTED_NAME before NAME).
+_PATTERN_TERMINALS = ("_NL", "HASH_TEXT", "PERCENT", "NUMBER", "DOTTED_NAME", "NAME")
+
+# Operators that the grammar spells as alternatives under one terminal.
+_MULTI = {"^": "_POW", "**": "_POW", "*": "_TIMES", "\u00d7": "_TIMES", "\u00b7": "_TIMES",
+          "-": "MINUS", "\u2212": "MINUS"}
+
+
+class SheetLexer(Lexer):
+    """lark custom lexer (interface 2): ``lex(lexer_state, parser_state)`` yields Tokens."""
+
+    __future_interface__ = 2
+
+    def __init__(self, lexer_conf) -> None:
+        by_name = {t.name: t for t in lexer_conf.terminals}
+        self.keywords: dict[str, str] = {}
+        self.operators: dict[str, str] = {}
+        ignored = set(lexer_conf.ignore)
+        for term in lexer_conf.terminals:
+            if term.name in _PATTERN_TERMINALS or term.name in _MULTI.values() or term.name in ignored:
+                continue
+            if term.pattern.type != "str":
+                raise ValueError(f"the sheet lexer does not know terminal {term.name}")
+            value = term.pattern.value
+            if re.fullmatch(by_name["NAME"].pattern.to_regexp(), value):
+                self.keywords[value] = term.name
+            else:
+                self.operators[value] = term.name
+        for symbol, name in _MULTI.items():
+            if name in by_name:
+                self.operators[symbol] = name
+        missing = [n for n in _PATTERN_TERMINALS if n not in by_name]
+        if missing:
+            raise ValueError(f"grammar lacks terminals {missing}")
+        parts = [f"(?P<{n.lstrip('_') or n}>{by_name[n].pattern.to_regexp()})"
+                 for n in _PATTERN_TERMINALS]
+        ops = sorted(self.operators, key=len, reverse=True)
+        parts.append("(?P<OP>" + "|".join(re.escape(o) for o in ops) + ")")
+        space = "|".join(by_name[n].pattern.to_regexp() for n in sorted(ignored))
+        parts.insert(0, f"(?P<SPACE>{space})")
+        self.master = re.compile("|".join(parts))
+        self.group_names = {n.lstrip("_") or n: n for n in _PATTERN_TERMINALS}
+
+    def lex(self, lexer_state, parser_state):
+        text_slice = lexer_state.text
+        text = text_slice.text
+        pos = text_slice.start
+        end = text_slice.end
+        match = self.master.match
+        keywords = self.keywords
+        operators = self.operators
+        names = self.group_names
+        line = 1
+        line_start = 0
+        while pos < end:
+            m = match(text, pos)
+            if m is None:
+                raise UnexpectedCharacters(text, pos, line, pos - line_start + 1,
+                                           allowed=None, considered_tokens=None)
+            kind = m.lastgroup
+            stop = m.end()
+            if kind == "SPACE":
+                pos = stop
+                continue
+            value = m.group()
+            column = pos - line_start + 1
+            if kind == "OP":
+                kind = operators[value]
+            else:
+                kind = names[kind]
+                if kind == "NAME":
+                    kind = keywords.get(value, "NAME")
+            if kind == "_NL":
+                newlines = value.count("\n")
+                yield Token(kind, value, pos, line, column, line + newlines,
+                            stop - (value.rfind("\n") + pos + 1) + 1, stop)
+                line += newlines
+                line_start = value.rfind("\n") + pos + 1
+            else:
+                yield Token(kind, value, pos, line, column, line, column + len(value), stop)
+            pos = stop
