@@ -14,11 +14,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
+from typing import NamedTuple
 
 
-@dataclass(frozen=True, slots=True)
-class Span:
-    """A region of source text; lines and columns count from 1, ``end_column`` is exclusive."""
+class Span(NamedTuple):
+    """A region of source text; lines and columns count from 1, ``end_column`` is exclusive.
+
+    A named tuple rather than a dataclass: the parser makes one for every token.
+    """
 
     line: int
     column: int
@@ -27,7 +30,7 @@ class Span:
 
     def to(self, other: Span) -> Span:
         """The span from the start of ``self`` to the end of ``other``."""
-        return Span(self.line, self.column, other.end_line, other.end_column)
+        return Span(self[0], self[1], other[2], other[3])
 
 
 @dataclass(frozen=True)
