@@ -56,6 +56,7 @@ from .units import (
     conversion_scale,
     describe,
     did_you_mean,
+    is_one,
     physical_type,
     plain_number_unit,
     quantity,
@@ -194,11 +195,18 @@ def add_op(span: Span, subtract: bool):
 def mul_op(span: Span, divide: bool):
     def apply(x, y):
         try:
-            if _plain(x) and _plain(y):
-                if divide:
-                    result = quantity(x.value / y.value, unit_quotient(x.unit, y.unit))
+            if _plain(x):
+                if _plain(y):
+                    if divide:
+                        result = quantity(x.value / y.value, unit_quotient(x.unit, y.unit))
+                    else:
+                        result = quantity(x.value * y.value, unit_product(x.unit, y.unit))
+                elif type(y) is u.Unit or type(y) is u.CompositeUnit or type(y) is u.IrreducibleUnit:
+                    # a unit in a chain: `3 km`, `1 / s`
+                    combined = unit_quotient(x.unit, y) if divide else unit_product(x.unit, y)
+                    result = quantity(x.value, combined)
                 else:
-                    result = quantity(x.value * y.value, unit_product(x.unit, y.unit))
+                    result = x / y if divide else x * y
             else:
                 result = x / y if divide else x * y
         except ValueError:
@@ -229,7 +237,7 @@ def power_op(span: Span, exponent_span: Span):
             raise UnitError(f"the exponent must be dimensionless, got {describe(exponent.unit)}",
                             exponent_span) from None
         try:
-            if base.unit is _ONE or base.unit == _ONE:
+            if is_one(base.unit):
                 result = quantity(np.power(base.value, e), _ONE)
             else:
                 if np.ndim(e) != 0:
@@ -289,6 +297,17 @@ def _lift(fn, *codes: Code) -> Code:
     return lambda env: fn(*(r(env) for r in runners))
 
 
+_NUMBERS: dict[float, u.Quantity] = {}
+
+
+def _number(value: float) -> u.Quantity:
+    """The dimensionless Quantity of a literal; shared, as values are never changed in place."""
+    q = _NUMBERS.get(value)
+    if q is None:
+        q = _NUMBERS[value] = u.Quantity(value)
+    return q
+
+
 def _is_unit_item(node) -> bool:
     return isinstance(node, (Name, NamePower)) or (
         isinstance(node, Power) and isinstance(node.base, Name))
@@ -337,7 +356,7 @@ class _Compiler:
                              node.span, hint="split it into several cells")
         kind = type(node)
         if kind is Number or kind is Percent:
-            return Const(u.Quantity(node.value))
+            return Const(_number(node.value))
         if kind is Name:
             self.looked_up.add(node.id)
             return self.resolved(self.scope.plain(node), node.span)

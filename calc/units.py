@@ -185,6 +185,17 @@ def conversion_scale(source: u.UnitBase, target: u.UnitBase) -> float:
     return scale
 
 
+_ONES: dict[int, tuple] = {}
+
+
+def is_one(unit: u.UnitBase) -> bool:
+    """True for the plain dimensionless unit (astropy's own comparison is slow)."""
+    hit = _ONES.get(id(unit))
+    if hit is None:
+        hit = _ONES[id(unit)] = (unit, unit == u.dimensionless_unscaled)
+    return hit[1]
+
+
 @lru_cache(maxsize=4096)
 def plain_number_unit(unit: u.UnitBase) -> bool:
     """True for a scaled dimensionless unit such as `km / m`, which shows better as a number."""

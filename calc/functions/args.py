@@ -76,6 +76,13 @@ def scalar(q: u.Quantity, name: str) -> None:
         raise ArgumentError(f"`{name}` must be a single value, not an array", name)
 
 
+def any_below(value, limit: float, inclusive: bool = False) -> bool:
+    """Whether any element is below ``limit`` (or at it, if ``inclusive``); fast for scalars."""
+    if isinstance(value, np.ndarray) and value.ndim:
+        return bool((value <= limit).any() if inclusive else (value < limit).any())
+    return bool(value <= limit) if inclusive else bool(value < limit)
+
+
 def positive(value, q: u.Quantity, name: str, what: str = "positive") -> None:
-    if np.any(np.asarray(value) <= 0):
+    if any_below(value, 0, inclusive=True):
         raise ArgumentError(f"`{name}` must be {what}, got {show(q)}", name)

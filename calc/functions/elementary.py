@@ -13,7 +13,7 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import ArgumentError
-from ..units import quantity
+from ..units import quantity, unit_power
 from . import args as check
 from . import register
 
@@ -24,9 +24,9 @@ _ONE = u.dimensionless_unscaled
 @register("sqrt", TOPIC)
 def sqrt(x: u.Quantity) -> u.Quantity:
     """Square root; the unit is raised to the power 1/2 (√(km²) = km)."""
-    if np.any(x.value < 0):
+    if check.any_below(x.value, 0):
         raise ArgumentError(f"`x` must not be negative, got {check.show(x)}", "x")
-    return np.sqrt(x)
+    return quantity(np.sqrt(x.value), unit_power(x.unit, 0.5))
 
 
 @register("exp", TOPIC)
