@@ -47,6 +47,10 @@ def build_parser() -> argparse.ArgumentParser:
                     help="significant digits in text output (1-17, default 6)")
     ev.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
+    fn = commands.add_parser("funcs", help="list the functions, or show one",
+                             description="List the functions sheets can call, or show one's "
+                                         "arguments, formula, validity, PPN dependence and source.")
+    fn.add_argument("name", metavar="NAME", nargs="?", help="a function name")
     return parser
 
 
@@ -79,6 +83,14 @@ def main(argv: list[str] | None = None) -> int:
             print(f"relsheet: internal error: {type(exc).__name__}: {exc}\n"
                   "  hint: please report this; --debug shows the traceback", file=sys.stderr)
         return EXIT_INTERNAL
+
+
+def _report_warnings(sheet) -> None:
+    for cell in sheet.cells:
+        for text in cell.warnings:
+            span = cell.definition.name_span
+            print(f"{cell.source.label}:{span.line}:{span.column}: warning: `{cell.name}`: {text}",
+                  file=sys.stderr)
 
 
 def _report(errors: list[SheetError], debug: bool) -> None:
@@ -118,6 +130,7 @@ def cmd_eval(args) -> int:
         print(to_json(sheet))
     else:
         print(render_text(sheet, args.digits))
+    _report_warnings(sheet)
     _report(sheet.all_errors(), args.debug)
     return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
 
@@ -134,6 +147,7 @@ def render_text(sheet, digits: int) -> str:
                 rows.append(("cell", item.name, f"error: {item.error.message}", ""))
             else:
                 rows.append(("cell", item.name, *format_quantity(item.value, digits)))
+            rows += [("warning", text) for text in item.warnings]
         elif item.heading:
             rows.append(("heading", item.text))
     name_width = max((len(r[1]) for r in rows if r[0] == "cell"), default=0)
@@ -143,6 +157,8 @@ def render_text(sheet, digits: int) -> str:
     for row in rows:
         if row[0] == "heading":
             lines += ["", row[1]]
+        elif row[0] == "warning":
+            lines.append(f"  {'':<{name_width}}  warning: {row[1]}")
         else:
             _, name, value, unit = row
             line = f"  {name:<{name_width}}  {value:<{value_width}}  {unit}" if unit \
@@ -151,7 +167,14 @@ def render_text(sheet, digits: int) -> str:
     return "\n".join(lines)
 
 
-_COMMANDS = {"eval": cmd_eval}
+def cmd_funcs(args) -> int:
+    from .catalog import entry, listing
+
+    print(entry(args.name) if args.name else listing())
+    return EXIT_OK
+
+
+_COMMANDS = {"eval": cmd_eval, "funcs": cmd_funcs}
 
 
 def run() -> None:

@@ -16,6 +16,8 @@ masses only; its GM values are G · M.
 from __future__ import annotations
 
 import importlib
+from contextlib import contextmanager
+from contextvars import ContextVar
 from dataclasses import dataclass
 from functools import cache
 
@@ -123,3 +125,29 @@ def parse_selection(names: list[str]) -> tuple[ConstantSelection, list[tuple[int
         else:
             problems.append((index, f"unknown constant set `{word}`", f"known sets: {known}"))
     return ConstantSelection(codata or default.codata, iau or default.iau), problems
+
+
+# ---- the selection in force while a sheet evaluates -------------------------------
+# Library functions read G (and c) from here, so that a sheet's `constants` line
+# reaches them; outside a sheet astropy's defaults apply.
+
+_active: ContextVar[ConstantSelection | None] = ContextVar("relsheet_constants", default=None)
+
+
+@contextmanager
+def using(selection: ConstantSelection):
+    token = _active.set(selection)
+    try:
+        yield
+    finally:
+        _active.reset(token)
+
+
+def active_selection() -> ConstantSelection:
+    """The selection in force: the evaluating sheet's, else astropy's defaults."""
+    return _active.get() or default_selection()
+
+
+def active(name: str) -> u.Quantity:
+    """The constant ``name`` (``G``, ``c``, ...) of the selection in force."""
+    return constant_table(active_selection())[name].quantity

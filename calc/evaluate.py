@@ -32,7 +32,7 @@ from .errors import (
     Span,
     UnitError,
 )
-from .scope import Scope
+from .scope import PPN_PARAMETERS, Scope
 from .syntax import (
     ArrayLiteral,
     BinaryOp,
@@ -65,6 +65,7 @@ from .units import (
     unit_quotient,
     value_in,
 )
+from .validity import collecting
 
 #: Deepest nesting of operations in one expression (keeps recursion far from Python's limit).
 MAX_EXPRESSION_DEPTH = 150
@@ -97,6 +98,8 @@ class CellProgram:
     deps: dict[str, Span] = field(default_factory=dict)
     looked_up: set[str] = field(default_factory=set)
     error: SheetError | None = None
+    #: validity warnings raised while compiling (calls folded into constants)
+    warnings: list[str] = field(default_factory=list)
 
     @property
     def name(self) -> str:
@@ -384,8 +387,9 @@ class _Compiler:
         if kind is ArrayLiteral:
             return self.array(node, depth)
         if kind is Dotted:
-            self.looked_up.add(node.parts[0])
-            return Const(self.scope.builtin(node.parts, node.span))
+            name = ".".join(node.parts)
+            self.looked_up.add(name)
+            return self.resolved(self.scope.dotted(node.parts, node.span), node.span)
         if kind is NamePower:
             base = self.expr(node.name, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
@@ -505,6 +509,12 @@ class _Compiler:
         arg_codes = [self.expr(a, depth + 1) for a in node.args]
         names = list(keywords)
         kw_codes = [self.expr(keywords[k].value, depth + 1) for k in names]
+        for parameter in PPN_PARAMETERS:
+            # an omitted gamma or beta takes the sheet's `ppn` value (else 1)
+            if parameter in spec.signature.parameters and parameter not in bound.arguments:
+                self.looked_up.add(f"ppn.{parameter}")
+                names.append(parameter)
+                kw_codes.append(self.resolved(self.scope.ppn(parameter, node.span), node.span))
         implementation = spec.implementation
         fname = spec.name
         span = node.span
@@ -590,6 +600,16 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
         return program
+    with collecting() as found:
+        _compile_into(program, compiler, definition, scope, source, display_unit)
+    program.warnings = found
+    program.deps = compiler.deps
+    program.looked_up = compiler.looked_up
+    return program
+
+
+def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef, scope: Scope,
+                  source: Source, display_unit) -> None:
     try:
         code = compiler.expr(definition.expr)
         if definition.unit is not None:
@@ -606,9 +626,6 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
             program.run = code
     except SheetError as err:
         program.error = err.located(definition.span, source)
-    program.deps = compiler.deps
-    program.looked_up = compiler.looked_up
-    return program
 
 
 def finish(program: CellProgram, value) -> u.Quantity:

@@ -9,7 +9,9 @@ Schema (DESIGN §6)::
 ``value`` is a number, a list of numbers for arrays, or null when the cell
 failed; infinities, which JSON cannot write, are the strings "inf"/"-inf".
 ``unit`` is astropy's generic string of the cell's unit; ``error`` is the
-error's ``file:line:col: message`` (and hint), or null.
+error's ``file:line:col: message`` (and hint), or null; ``warnings`` lists
+the validity warnings of the cell (a formula used outside its regime), so
+that no program reading the JSON can miss them.
 """
 
 from __future__ import annotations
@@ -55,6 +57,7 @@ def cell_record(cell: Cell) -> dict:
         "unit": None if value is None else unit_string(value.unit),
         "sigma": None,
         "error": error_text(cell),
+        "warnings": list(cell.warnings),
     }
 
 

@@ -35,7 +35,7 @@ _TERMINAL_WORDS = {
     "LPAR": "`(`", "RPAR": "`)`", "LSQB": "`[`", "RSQB": "`]`", "COMMA": "`,`",
     "EQUAL": "`=`", "PLUS": "`+`", "MINUS": "`-`", "SLASH": "`/`", "_TIMES": "`*`",
     "_POW": "`^`", "IN": "`in`", "_NL": "the end of the line", "$END": "the end of the input",
-    "HASH_TEXT": "a comment", "PERCENT_SIGN": "`%`", "CONSTANTS": "`constants`",
+    "HASH_TEXT": "a comment", "PERCENT_SIGN": "`%`", "CONSTANTS": "`constants`", "PPN": "`ppn`",
 }
 
 
@@ -165,7 +165,7 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> She
         return SheetSyntaxError(f"`{word}` is a reserved word and cannot name a cell",
                                 Span(tok.line, column, tok.line, column + len(word)),
                                 hint=f"choose another name, such as `{word}_value`")
-    if first_word in RESERVED_WORDS - {"in", "const", "constants"}:
+    if first_word in RESERVED_WORDS - {"in", "const", "constants", "ppn"}:
         column = len(lines[tok.line - 1]) - len(lines[tok.line - 1].lstrip()) + 1
         return SheetSyntaxError(
             f"`{first_word}` statements are not part of this version of relsheet",

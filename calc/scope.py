@@ -35,6 +35,11 @@ class Resolved:
     value: u.Quantity | None = None
 
 
+#: The PPN parameters a sheet can set with a `ppn` line.
+PPN_PARAMETERS = ("gamma", "beta")
+_GR_VALUE = u.Quantity(1.0)
+
+
 class Scope:
     """Resolves names for one sheet: its cell names, units and constants."""
 
@@ -109,12 +114,30 @@ class Scope:
             hint = f"`{name.id}` is a cell; `in` takes a unit such as `km / s`"
         raise NameResolutionError(f"unknown unit `{name.id}`", name.span, hint=hint)
 
+    def dotted(self, parts: tuple[str, ...], span: Span) -> Resolved:
+        """``const.NAME`` (a built-in constant) or ``ppn.gamma`` / ``ppn.beta``."""
+        if parts[0] == "ppn":
+            return self.ppn(parts[1] if len(parts) == 2 else ".".join(parts[1:]), span)
+        return Resolved("constant", value=self.builtin(parts, span))
+
+    def ppn(self, parameter: str, span: Span) -> Resolved:
+        """A PPN parameter: the sheet's ``ppn`` line, else its general-relativity value 1."""
+        if parameter not in PPN_PARAMETERS:
+            raise NameResolutionError(
+                f"unknown PPN parameter `{parameter}`", span,
+                hint="relsheet knows the PPN parameters gamma and beta")
+        name = f"ppn.{parameter}"
+        if name in self.cell_names:
+            return Resolved("cell", cell=name)
+        return Resolved("constant", value=_GR_VALUE)
+
     def builtin(self, parts: tuple[str, ...], span: Span) -> u.Quantity:
         """``const.NAME``."""
         if parts[0] != "const":
             raise NameResolutionError(
                 f"unknown name `{'.'.join(parts)}`", span,
-                hint="dotted names reach built-in constants as `const.NAME`")
+                hint="dotted names reach built-in constants as `const.NAME` "
+                     "and PPN parameters as `ppn.gamma`")
         if len(parts) != 2 or parts[1] not in self.constants:
             options = close_matches(parts[-1], list(self.constants))
             raise NameResolutionError(

@@ -18,7 +18,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from .constants import ConstantSelection, default_selection, parse_selection
+from .constants import ConstantSelection, default_selection, parse_selection, using
 from .errors import (
     CycleError,
     DuplicateCellError,
@@ -31,21 +31,24 @@ from .errors import (
 from .evaluate import CellProgram, compile_cell, run_cell
 from .graph import DependencyGraph
 from .parse import parse_expression, parse_sheet
-from .scope import Scope
+from .scope import PPN_PARAMETERS, Scope
 from .sheetfile import read_sheet
-from .syntax import CellDef, ConstantsDef, Note
+from .syntax import CellDef, ConstantsDef, Note, PPNDef
+from .validity import collecting
 
 
 class Cell:
     """One cell as evaluated: its definition and either a value or an error."""
 
-    __slots__ = ("definition", "source", "value", "error")
+    __slots__ = ("definition", "source", "value", "error", "warnings")
 
     def __init__(self, definition: CellDef, source: Source) -> None:
         self.definition = definition
         self.source = source
         self.value: u.Quantity | None = None
         self.error: SheetError | None = None
+        #: validity warnings of the last computation ("r is 3 r_s: …")
+        self.warnings: list[str] = []
 
     @property
     def name(self) -> str:
@@ -128,6 +131,10 @@ class Sheet:
             elif isinstance(statement, Note):
                 self.items.append(statement)
             else:
+                if isinstance(statement, PPNDef):
+                    statement = self._ppn_cell(statement)
+                    if statement is None:
+                        continue
                 cell = Cell(statement, self.source)
                 self.items.append(cell)
                 first = self._cells.get(statement.name)
@@ -144,13 +151,30 @@ class Sheet:
                 cell.error = err
                 self._fixed_errors[statement.name] = err
         self._scope = Scope(self._cells.keys(), self.selection)
-        for rank, (name, cell) in enumerate(self._cells.items()):
-            program = compile_cell(cell.definition, self._scope, self.source)
-            self._programs[name] = program
-            self._graph.add(name, program.deps, rank)
-        self._reorder()
-        for name in self._order:
-            self._compute(name)
+        with using(self.selection):
+            for rank, (name, cell) in enumerate(self._cells.items()):
+                program = self._compile(cell.definition, self.source)
+                self._programs[name] = program
+                self._graph.add(name, program.deps, rank)
+            self._reorder()
+            for name in self._order:
+                self._compute(name)
+
+    def _compile(self, definition: CellDef, source: Source, keep=None) -> CellProgram:
+        if definition.name.startswith("ppn."):
+            # a PPN parameter is a plain number
+            keep = (u.dimensionless_unscaled, definition.expr.span)
+        return compile_cell(definition, self._scope, source, display_unit=keep)
+
+    def _ppn_cell(self, statement: PPNDef) -> CellDef | None:
+        """A `ppn gamma = …` line becomes the cell `ppn.gamma`, which calls use by default."""
+        if statement.parameter not in PPN_PARAMETERS:
+            self.errors.append(NameResolutionError(
+                f"unknown PPN parameter `{statement.parameter}`", statement.parameter_span,
+                hint="relsheet knows the PPN parameters gamma and beta", source=self.source))
+            return None
+        return CellDef(f"ppn.{statement.parameter}", statement.parameter_span, statement.expr,
+                       None, statement.comment, statement.marker, statement.span)
 
     def _pin(self, statement: ConstantsDef) -> None:
         selection, problems = parse_selection([name for name, _ in statement.sets])
@@ -199,8 +223,10 @@ class Sheet:
             cell.error = InputFailedError(f"input `{failed[0]}` failed{more}", failed,
                                           span=program.deps[failed[0]], source=program.source)
             return
+        cell.warnings = list(program.warnings)
         try:
-            value = run_cell(program, self._values)
+            with collecting() as found:
+                value = run_cell(program, self._values)
         except SheetError as err:
             cell.error = err
             return
@@ -211,6 +237,7 @@ class Sheet:
             err.__cause__ = exc
             cell.error = err
             return
+        cell.warnings.extend(w for w in found if w not in cell.warnings)
         cell.error = None
         cell.value = value
         self._values[name] = value
@@ -223,7 +250,7 @@ class Sheet:
         :class:`~calc.errors.SheetSyntaxError` and changes nothing.
         """
         source = Source(label or f"--set {name}", text)
-        with numeric_context():
+        with numeric_context(), using(self.selection):
             line = parse_expression(text, source)
             return self._assign(name, line.expr, line.unit, source)
 
@@ -241,7 +268,7 @@ class Sheet:
                 if name in program.looked_up:
                     self._recompile(other)
                     forced.add(other)
-            program = compile_cell(definition, self._scope, source)
+            program = self._compile(definition, source)
             self._programs[name] = program
             self._graph.add(name, program.deps, len(self._cells))
             structural = True
@@ -253,7 +280,7 @@ class Sheet:
             old_cell.source = source
             # an override without `in` keeps the unit the sheet shows the cell in
             keep = (previous.unit, expr.span) if unit is None and previous.unit is not None else None
-            program = compile_cell(definition, self._scope, source, display_unit=keep)
+            program = self._compile(definition, source, keep)
             self._programs[name] = program
             self._fixed_errors.pop(name, None)
             structural = self._graph.set_uses(name, program.deps)
@@ -264,7 +291,7 @@ class Sheet:
 
     def _recompile(self, name: str) -> None:
         cell = self._cells[name]
-        program = compile_cell(cell.definition, self._scope, cell.source)
+        program = self._compile(cell.definition, cell.source)
         self._programs[name] = program
         self._graph.set_uses(name, program.deps)
 
@@ -303,7 +330,7 @@ class Sheet:
         definition = self._original.get(name)
         if definition is None:
             raise KeyError(name)
-        with numeric_context():
+        with numeric_context(), using(self.selection):
             return self._assign(name, definition.expr, definition.unit, self.source)
 
     # -- access

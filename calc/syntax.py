@@ -168,6 +168,18 @@ class ConstantsDef:
 
 
 @dataclass(frozen=True, slots=True)
+class PPNDef:
+    """``ppn gamma = expr``: the sheet-wide default of a PPN parameter."""
+
+    parameter: str
+    parameter_span: Span
+    expr: Expr
+    comment: str | None
+    marker: str | None
+    span: Span
+
+
+@dataclass(frozen=True, slots=True)
 class Note:
     """``## heading`` or ``# note`` on a line of its own."""
 
@@ -185,7 +197,7 @@ class ExpressionLine:
     span: Span
 
 
-Statement = Union[CellDef, ConstantsDef, Note]
+Statement = Union[CellDef, ConstantsDef, PPNDef, Note]
 
 #: Words that start statements now or in later versions of the language.
 RESERVED_WORDS = frozenset({"constants", "use", "check", "ppn", "plot", "in", "const"})
@@ -360,6 +372,15 @@ class NodeBuilder(Transformer):
                      if t is not None and t.type == "NAME")
         last = sets[-1][1] if sets else token_span(keyword)
         return ConstantsDef(sets, token_span(keyword).to(last))
+
+    def ppn(self, children):
+        keyword, tok, expr, *rest = children
+        comment = marker = None
+        for item in rest:
+            if isinstance(item, Token) and item.type == "HASH_TEXT":
+                comment, marker = split_trailer(item.value)
+        return PPNDef(tok.value, token_span(tok), expr, comment, marker,
+                      token_span(keyword).to(expr.span))
 
     def note(self, children):
         tok = children[0]

@@ -9,13 +9,14 @@ from __future__ import annotations
 
 import importlib
 import inspect
+import typing
 from collections.abc import Callable
 from dataclasses import dataclass
 
 from ..errors import ArgumentError
 
 #: Topic modules, imported on the first look-up.
-TOPICS = ("elementary",)
+TOPICS = ("spacetime", "orbits", "light", "gyroscopes", "binaries", "elementary")
 
 
 @dataclass(frozen=True)
@@ -43,6 +44,7 @@ class FunctionSpec:
         return bound
 
     def display_signature(self) -> str:
+        """``(M, a, e, gamma=…, beta=…)``: what a sheet writes in the call."""
         parts = []
         for p in self.signature.parameters.values():
             if p.kind is p.VAR_POSITIONAL:
@@ -53,9 +55,32 @@ class FunctionSpec:
                 parts.append(p.name)
         return "(" + ", ".join(parts) + ")"
 
+    def argument_kinds(self) -> dict[str, str]:
+        """Parameter (and ``return``) → the kind of quantity it takes, from the annotations."""
+        hints = typing.get_type_hints(self.implementation, include_extras=True)
+        kinds: dict[str, str] = {}
+        for name, hint in hints.items():
+            kinds[name] = _kind(hint)
+        return kinds
+
+    def documentation(self) -> str:
+        """The docstring without its one-line summary."""
+        doc = inspect.getdoc(self.implementation) or ""
+        return doc.split("\n", 1)[1].strip() if "\n" in doc else ""
+
     def __call__(self, *args, **kwargs):
         bound = self.bind(args, kwargs)
         return self.implementation(*bound.args, **bound.kwargs)
+
+
+def _kind(hint) -> str:
+    """The text of an ``Annotated[Quantity, "length"]`` hint, through ``X | None``."""
+    if typing.get_origin(hint) is typing.Annotated:
+        return str(hint.__metadata__[0])
+    args = [a for a in typing.get_args(hint) if a is not type(None)]
+    if len(args) == 1:
+        return _kind(args[0])
+    return "quantity"
 
 
 def _bind_message(exc: TypeError) -> str:

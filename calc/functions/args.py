@@ -6,11 +6,26 @@ the evaluator can point at it: "`b` must be a length, got 3 s".
 
 from __future__ import annotations
 
+from typing import Annotated
+
 import astropy.units as u
 import numpy as np
 
+from ..constants import active
 from ..errors import ArgumentError
 from ..units import physical_type, value_in
+from ..validity import warn
+
+# Argument and result kinds, for signatures (`relsheet funcs NAME` shows the text).
+Mass = Annotated[u.Quantity, "mass or gravitational parameter GM"]
+Length = Annotated[u.Quantity, "length"]
+Time = Annotated[u.Quantity, "time"]
+Speed = Annotated[u.Quantity, "speed"]
+Angle = Annotated[u.Quantity, "angle"]
+AngularRate = Annotated[u.Quantity, "angle per time"]
+AngularMomentum = Annotated[u.Quantity, "angular momentum"]
+Dimensionless = Annotated[u.Quantity, "dimensionless"]
+Any = Annotated[u.Quantity, "any quantity"]
 
 #: The largest array ``span`` and ``logspan`` will make (memory guard: 80 MB of floats).
 MAX_ARRAY_LENGTH = 10_000_000
@@ -86,3 +101,91 @@ def any_below(value, limit: float, inclusive: bool = False) -> bool:
 def positive(value, q: u.Quantity, name: str, what: str = "positive") -> None:
     if any_below(value, 0, inclusive=True):
         raise ArgumentError(f"`{name}` must be {what}, got {show(q)}", name)
+
+
+# ---- physical arguments of the domain functions -----------------------------------
+
+GM_UNIT = u.m**3 / u.s**2
+ANGULAR_MOMENTUM_UNIT = u.kg * u.m**2 / u.s
+
+
+def gravitational_parameter(M: u.Quantity, name: str = "M"):
+    """GM in m³/s² from a mass (kg, Msun, …) or a gravitational parameter; must be positive.
+
+    A mass is multiplied by the pinned G; as astropy's solar and planetary mass units are
+    GM/G, ``1 Msun`` gives back the nominal GM☉ exactly.
+    """
+    try:
+        kg = value_in(M, u.kg)
+    except u.UnitConversionError:
+        try:
+            gm = value_in(M, GM_UNIT)
+        except u.UnitConversionError:
+            raise ArgumentError(
+                f"`{name}` must be a mass or a gravitational parameter (m^3 / s^2), got {show(M)}",
+                name) from None
+    else:
+        gm = kg * active("G").to_value(GM_UNIT / u.kg)
+    positive(gm, M, name)
+    return gm
+
+
+def length(q: u.Quantity, name: str, allow_infinite: bool = False):
+    """A positive length in metres."""
+    value = to_value(q, u.m, name, "a length")
+    positive(value, q, name)
+    if not allow_infinite and not np.all(np.isfinite(value)):
+        raise ArgumentError(f"`{name}` must be finite, got {show(q)}", name)
+    return value
+
+
+def duration(q: u.Quantity, name: str):
+    """A positive time in seconds."""
+    value = to_value(q, u.s, name, "a time")
+    positive(value, q, name)
+    return value
+
+
+def speed(q: u.Quantity, name: str):
+    value = to_value(q, u.m / u.s, name, "a speed")
+    if any_below(value, 0):
+        raise ArgumentError(f"`{name}` must not be negative, got {show(q)}", name)
+    return value
+
+
+def eccentricity(q: u.Quantity, name: str = "e"):
+    """0 ≤ e < 1: a bound orbit."""
+    value = dimensionless(q, name)
+    if any_below(value, 0) or not np.all(np.asarray(value) < 1):
+        raise ArgumentError(f"`{name}` must be at least 0 and below 1 for a bound orbit, "
+                            f"got {show(q)}", name)
+    return value
+
+
+def angular_momentum(q: u.Quantity, name: str = "J"):
+    value = to_value(q, ANGULAR_MOMENTUM_UNIT, name, "an angular momentum (kg m^2 / s)")
+    positive(value, q, name)
+    return value
+
+
+def ppn(q: u.Quantity | None, name: str) -> float:
+    """A PPN parameter (γ or β); None means its general-relativity value 1."""
+    if q is None:
+        return 1.0
+    value = dimensionless(q, name)
+    if np.ndim(value) != 0:
+        raise ArgumentError(f"`{name}` must be a single number", name)
+    return float(value)
+
+
+def speed_of_light() -> float:
+    return active("c").to_value(u.m / u.s)
+
+
+def weak_field(gm, r, name: str, c: float) -> None:
+    """Warn when a weak-field formula is used closer than 10 Schwarzschild radii."""
+    rs = 2 * gm / c**2
+    ratio = np.min(np.asarray(r) / rs)
+    if ratio < 10:
+        warn(f"`{name}` is {ratio:.3g} r_s: this weak-field formula needs `{name}` ≫ r_s "
+             f"(its relative error is of order r_s/{name})")
