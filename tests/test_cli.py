@@ -53,10 +53,11 @@ def test_eval_json_schema(sheet_file):
     cells = {c["name"]: c for c in doc["cells"]}
     assert [c["name"] for c in doc["cells"]] == ["a", "xs", "bad", "r"]   # file order
     for cell in doc["cells"]:
-        assert set(cell) == {"name", "line", "value", "unit", "sigma", "error"}
+        # DESIGN §6's keys, plus the cell's validity warnings
+        assert set(cell) == {"name", "line", "value", "unit", "sigma", "error", "warnings"}
         assert cell["sigma"] is None
     assert cells["a"] == {"name": "a", "line": 1, "value": pytest.approx(149_597_870.7),
-                          "unit": "km", "sigma": None, "error": None}
+                          "unit": "km", "sigma": None, "error": None, "warnings": []}
     assert cells["xs"]["value"] == [1.0, 2.0] and cells["xs"]["unit"] == "s"
     assert cells["bad"]["value"] is None
     assert cells["bad"]["error"] == f"{path}:3:9: unknown unit `kmz` (hint: did you mean `km`?)"

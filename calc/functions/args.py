@@ -13,7 +13,7 @@ import numpy as np
 
 from ..constants import active
 from ..errors import ArgumentError
-from ..units import physical_type, value_in
+from ..units import is_one, physical_type, value_in
 from ..validity import warn
 
 # Argument and result kinds, for signatures (`relsheet funcs NAME` shows the text).
@@ -131,7 +131,9 @@ def gravitational_parameter(M: u.Quantity, name: str = "M"):
 
 
 def length(q: u.Quantity, name: str, allow_infinite: bool = False):
-    """A positive length in metres."""
+    """A positive length in metres; with ``allow_infinite``, a plain `inf` counts as one."""
+    if allow_infinite and is_one(q.unit) and np.all(np.isposinf(q.value)):
+        return np.inf
     value = to_value(q, u.m, name, "a length")
     positive(value, q, name)
     if not allow_infinite and not np.all(np.isfinite(value)):

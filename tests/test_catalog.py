@@ -1,0 +1,80 @@
+"""The function registry and `relsheet funcs`: DESIGN §4's names, docstrings, listings."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from calc import functions
+from calc.catalog import CAUTION, entry, listing
+
+ROOT = Path(__file__).resolve().parent.parent
+
+# DESIGN §4 (orbit, perturbation_rate and periapsis_budget come with the next issue)
+DESIGN_FUNCTIONS = {
+    "schwarzschild_radius": ("M",), "proper_radial_distance": ("M", "r1", "r2"),
+    "gravitational_redshift": ("M", "r_emit", "r_obs"), "clock_rate": ("M", "r", "v"),
+    "eccentricity_clock_term": ("M", "a", "e"), "orbital_period": ("M", "a"),
+    "semi_major_axis": ("M", "P"), "orbital_speed": ("M", "r", "a"),
+    "periapsis_advance": ("M", "a", "e", "gamma", "beta"),
+    "periapsis_rate": ("M", "a", "e", "gamma", "beta"),
+    "oblateness_rate": ("M", "J2", "R", "a", "e", "i"),
+    "lense_thirring_node_rate": ("J", "a", "e"), "deflection": ("M", "b", "gamma"),
+    "deflection_at_elongation": ("M", "r_obs", "elongation", "gamma"),
+    "einstein_radius": ("M", "d_lens", "d_source"),
+    "shapiro_delay": ("M", "r_emit", "r_recv", "separation", "gamma"),
+    "conjunction_delay": ("M", "r_emit", "r_recv", "b", "gamma"),
+    "geodetic_rate": ("M", "r", "gamma"), "frame_dragging_rate": ("J", "r"),
+    "periastron_rate": ("m1", "m2", "Pb", "e"), "einstein_delay_amplitude": ("m1", "m2", "Pb", "e"),
+    "orbital_decay_rate": ("m1", "m2", "Pb", "e"), "shapiro_range": ("m2",),
+    "shapiro_shape": ("m1", "m2", "Pb", "x"), "chirp_mass": ("m1", "m2"),
+    "merger_time": ("m1", "m2", "Pb", "e"),
+}
+MATH = "sqrt exp ln log10 sin cos tan asin acos atan atan2 hypot abs min max sum mean span logspan"
+
+
+@pytest.mark.parametrize("name, params", sorted(DESIGN_FUNCTIONS.items()))
+def test_design_functions_are_registered_with_their_signatures(name, params):
+    spec = functions.lookup(name)
+    assert spec is not None, name
+    assert tuple(spec.signature.parameters) == params
+
+
+def test_math_functions_are_registered():
+    assert all(functions.lookup(n) is not None for n in MATH.split())
+
+
+@pytest.mark.parametrize("name", sorted(DESIGN_FUNCTIONS))
+def test_every_domain_docstring_is_a_handbook_entry(name):
+    doc = functions.lookup(name).documentation()
+    for section in ("Formula:", "Arguments:", "Result:", "Validity:", "PPN:", "Source:"):
+        assert section in doc, f"{name} lacks {section}"
+
+
+def test_listing_has_every_function_and_the_caution():
+    text = listing()
+    for name in [*DESIGN_FUNCTIONS, *MATH.split()]:
+        assert f"  {name}(" in text
+    assert CAUTION in text and "IERS Conventions" in text
+
+
+def test_entry_shows_argument_kinds_and_documentation():
+    text = entry("deflection")
+    assert text.startswith("deflection(M, b, gamma=…)  →  angle")
+    assert "  b      length" in text
+    assert "(default: the sheet's `ppn gamma`, else 1)" in text
+    assert "Source:" in text and CAUTION in text
+
+
+def test_funcs_command():
+    run = [sys.executable, "-m", "calc", "funcs"]
+    listing_run = subprocess.run(run, cwd=ROOT, capture_output=True, text=True)
+    assert listing_run.returncode == 0 and "merger_time(m1, m2, Pb, e)" in listing_run.stdout
+    one = subprocess.run(run + ["merger_time"], cwd=ROOT, capture_output=True, text=True)
+    assert one.returncode == 0 and "Peters" in one.stdout
+    bad = subprocess.run(run + ["shapiro"], cwd=ROOT, capture_output=True, text=True)
+    assert bad.returncode == 64
+    assert bad.stderr.startswith("relsheet: no function `shapiro`\n  hint: did you mean")
