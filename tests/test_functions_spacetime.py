@@ -151,3 +151,10 @@ def test_strong_field_gives_a_warning_not_silence():
         "`r` is 3.39 r_s: this weak-field formula needs `r` ≫ r_s "
         "(its relative error is of order r_s/r)"]
     assert evaluate("x = clock_rate(const.GM_earth, 7000 km)").cell("x").warnings == []
+
+
+def test_weak_field_formula_inside_the_horizon_is_an_error():
+    err = only_error(evaluate("x = clock_rate(1 Msun, 1 km)"), "x")
+    assert err.message == ("clock_rate: `r` lies inside the Schwarzschild radius (2.95325 km): "
+                           "no weak-field formula applies there")
+    assert (err.span.column, err.span.end_column) == (24, 28)

@@ -184,10 +184,17 @@ def speed_of_light() -> float:
     return active("c").to_value(u.m / u.s)
 
 
-def weak_field(gm, r, name: str, c: float) -> None:
-    """Warn when a weak-field formula is used closer than 10 Schwarzschild radii."""
+def weak_field(gm, r, name: str, c: float, argument: str | None = None) -> None:
+    """Refuse a distance inside the Schwarzschild radius; warn within 10 of them.
+
+    ``name`` describes the distance in messages (``r``, ``a (1 − e)``); ``argument`` is the
+    parameter to point at when it is not ``name`` itself.
+    """
     rs = 2 * gm / c**2
     ratio = np.min(np.asarray(r) / rs)
+    if ratio <= 1:
+        raise ArgumentError(f"`{name}` lies inside the Schwarzschild radius ({rs / 1e3:.6g} km): "
+                            "no weak-field formula applies there", argument or name)
     if ratio < 10:
         warn(f"`{name}` is {ratio:.3g} r_s: this weak-field formula needs `{name}` ≫ r_s "
              f"(its relative error is of order r_s/{name})")

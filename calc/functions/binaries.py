@@ -209,7 +209,7 @@ def merger_time(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless) -> Time:
     pb = check.duration(Pb, "Pb")
     e0 = check.eccentricity(e)
     if np.ndim(e0) or np.ndim(pb) or np.ndim(gm1) or np.ndim(gm2):
-        raise ArgumentError("merger_time takes single values, not arrays")
+        raise ArgumentError("takes single values, not arrays")
     c = check.speed_of_light()
     gm = gm1 + gm2
     a0 = np.cbrt(gm * pb**2 / (4 * np.pi**2))
