@@ -81,8 +81,16 @@ def orbital_speed(M: Mass, r: Length, a: Length | None = None) -> Speed:
     return quantity(np.sqrt(gm * (2 / radius - 1 / semi)) / 1e3, u.km / u.s)
 
 
-def _advance_rad(gm, a, e, gamma: float, beta: float, c: float):
-    return (2 + 2 * gamma - beta) / 3 * 6 * np.pi * gm / (c**2 * a * (1 - e**2))
+def _relativistic_advance(M, a, e, gamma, beta):
+    """(GM, a, advance per orbit in rad) after checking the arguments."""
+    gm = check.gravitational_parameter(M)
+    semi = check.length(a, "a")
+    ecc = check.eccentricity(e)
+    g, b = check.ppn(gamma, "gamma"), check.ppn(beta, "beta")
+    c = check.speed_of_light()
+    check.weak_field(gm, semi * (1 - ecc), "a (1 − e)", c, argument="a")
+    advance = (2 + 2 * g - b) / 3 * 6 * np.pi * gm / (c**2 * semi * (1 - ecc**2))
+    return gm, semi, advance
 
 
 @register("periapsis_advance", TOPIC)
@@ -102,13 +110,8 @@ def periapsis_advance(M: Mass, a: Length, e: Dimensionless, gamma: Dimensionless
     Source:    Will 2014, Living Rev. Relativ. 17, 4, eq. (59) (from memory); Nobili & Will
                1986, Nature 320, 39 (Mercury: 42.98″/century).
     """
-    gm = check.gravitational_parameter(M)
-    semi = check.length(a, "a")
-    ecc = check.eccentricity(e)
-    g, b = check.ppn(gamma, "gamma"), check.ppn(beta, "beta")
-    c = check.speed_of_light()
-    check.weak_field(gm, semi * (1 - ecc), "a (1 − e)", c)
-    return quantity(_advance_rad(gm, semi, ecc, g, b, c) / _ARCSEC, u.arcsec)
+    gm, semi, advance = _relativistic_advance(M, a, e, gamma, beta)
+    return quantity(advance / _ARCSEC, u.arcsec)
 
 
 @register("periapsis_rate", TOPIC)
@@ -124,13 +127,8 @@ def periapsis_rate(M: Mass, a: Length, e: Dimensionless, gamma: Dimensionless | 
     PPN:       (2 + 2γ − β)/3.
     Source:    Will 2014, Living Rev. Relativ. 17, 4, eq. (59) (from memory).
     """
-    gm = check.gravitational_parameter(M)
-    semi = check.length(a, "a")
-    ecc = check.eccentricity(e)
-    g, b = check.ppn(gamma, "gamma"), check.ppn(beta, "beta")
-    c = check.speed_of_light()
-    check.weak_field(gm, semi * (1 - ecc), "a (1 − e)", c)
-    per_second = _advance_rad(gm, semi, ecc, g, b, c) / _period_s(gm, semi)
+    gm, semi, advance = _relativistic_advance(M, a, e, gamma, beta)
+    per_second = advance / _period_s(gm, semi)
     return quantity(per_second * _CENTURY_S / _ARCSEC, u.arcsec / century)
 
 
