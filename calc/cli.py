@@ -137,7 +137,8 @@ def cmd_eval(args) -> int:
 
 def render_text(sheet, digits: int) -> str:
     """Headings, then aligned name / value / unit; errors inline."""
-    from .format import format_quantity
+    from .format import format_quantity, record_rows, record_summary
+    from .records import is_record
     from .sheet import Cell
 
     rows: list[tuple[str, ...]] = []
@@ -145,13 +146,18 @@ def render_text(sheet, digits: int) -> str:
         if isinstance(item, Cell):
             if item.error is not None:
                 rows.append(("cell", item.name, f"error: {item.error.message}", ""))
+            elif is_record(item.value):
+                rows.append(("cell", item.name, record_summary(item.value), ""))
+                rows += [("field", *row) for row in record_rows(item.value, digits)]
             else:
                 rows.append(("cell", item.name, *format_quantity(item.value, digits)))
             rows += [("warning", text) for text in item.warnings]
         elif item.heading:
             rows.append(("heading", item.text))
-    name_width = max((len(r[1]) for r in rows if r[0] == "cell"), default=0)
-    scalars = [len(r[2]) for r in rows if r[0] == "cell" and r[3] and not r[2].startswith("[")]
+    name_width = max((len(r[1]) + (2 if r[0] == "field" else 0) for r in rows
+                      if r[0] in ("cell", "field")), default=0)
+    scalars = [len(r[2]) for r in rows
+               if r[0] in ("cell", "field") and r[3] and not r[2].startswith("[")]
     value_width = min(24, max(scalars, default=0))
     lines = [f"{sheet.source.label}  ·  constants {', '.join(sheet.selection.names)}"]
     for row in rows:
@@ -159,6 +165,9 @@ def render_text(sheet, digits: int) -> str:
             lines += ["", row[1]]
         elif row[0] == "warning":
             lines.append(f"  {'':<{name_width}}  warning: {row[1]}")
+        elif row[0] == "field":
+            _, name, value, unit = row
+            lines.append(f"    {name:<{name_width - 2}}  {value:<{value_width}}  {unit}".rstrip())
         else:
             _, name, value, unit = row
             line = f"  {name:<{name_width}}  {value:<{value_width}}  {unit}" if unit \

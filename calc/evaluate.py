@@ -32,6 +32,7 @@ from .errors import (
     Span,
     UnitError,
 )
+from .records import RECORD_TYPES, Record, RecordList
 from .scope import PPN_PARAMETERS, Scope
 from .syntax import (
     ArrayLiteral,
@@ -125,6 +126,8 @@ _checking = _Checking()
 
 
 def all_finite(value) -> bool:
+    if isinstance(value, RECORD_TYPES):
+        return True  # each field was checked when the record was made
     v = value.value
     return math.isfinite(v) if np.ndim(v) == 0 else bool(np.isfinite(v).all())
 
@@ -262,6 +265,22 @@ def power_op(span: Span, exponent_span: Span):
     return apply
 
 
+def field_op(parts: tuple[str, ...], span: Span):
+    def apply(value):
+        for depth, name in enumerate(parts[1:], start=1):
+            if not isinstance(value, Record):
+                what = "an array of records" if isinstance(value, RecordList) else "a quantity"
+                raise NameResolutionError(f"`{'.'.join(parts[:depth])}` is {what}, which has no "
+                                          f"field `{name}`", span)
+            try:
+                value = value.field(name)
+            except SheetError as err:
+                raise err.located(span) from None
+        return value
+
+    return apply
+
+
 def convert(value: u.Quantity, unit: u.UnitBase, span: Span) -> u.Quantity:
     try:
         return quantity(value_in(value, unit), unit)
@@ -309,6 +328,26 @@ def _number(value: float) -> u.Quantity:
     if q is None:
         q = _NUMBERS[value] = u.Quantity(value)
     return q
+
+
+def _parameter_names(spec, npositional: int, keywords: list[str]) -> list[str]:
+    """The parameter each value of a call goes to, positional ones first."""
+    names: list[str] = []
+    for param in spec.signature.parameters.values():
+        if len(names) == npositional:
+            break
+        if param.kind is param.VAR_POSITIONAL:
+            names += [f"value {i + 1}" for i in range(npositional - len(names))]
+            break
+        names.append(param.name)
+    return names + list(keywords)
+
+
+def _record_list(values, spans) -> RecordList:
+    for value, span in zip(values, spans):
+        if not isinstance(value, Record):
+            raise DomainError("an array of records holds only records", span)
+    return RecordList(tuple(values))
 
 
 def _is_unit_item(node) -> bool:
@@ -387,8 +426,16 @@ class _Compiler:
         if kind is ArrayLiteral:
             return self.array(node, depth)
         if kind is Dotted:
+            head = node.parts[0]
+            if head in self.scope.cell_names:
+                # fields of a record: `venus.a`, `budget.total`
+                self.looked_up.add(head)
+                head_span = Span(node.span.line, node.span.column, node.span.line,
+                                 node.span.column + len(head))
+                return _lift(field_op(node.parts, node.span), self.cell_ref(head, head_span))
             name = ".".join(node.parts)
             self.looked_up.add(name)
+            self.looked_up.add(head)
             return self.resolved(self.scope.dotted(node.parts, node.span), node.span)
         if kind is NamePower:
             base = self.expr(node.name, depth + 1)
@@ -519,8 +566,15 @@ class _Compiler:
         fname = spec.name
         span = node.span
         npos = len(arg_codes)
+        takes_records = spec.record_parameters
+        slots = _parameter_names(spec, len(node.args), names)
 
         def apply(*values):
+            for value, pname in zip(values, slots):
+                if isinstance(value, RECORD_TYPES) and pname not in takes_records:
+                    what = "an array of records" if isinstance(value, RecordList) else "a record"
+                    raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not {what}",
+                                        pname, span=arg_spans.get(pname, span))
             try:
                 if names:
                     result = implementation(*values[:npos], **dict(zip(names, values[npos:])))
@@ -545,6 +599,8 @@ class _Compiler:
         spans = [i.span for i in node.items]
 
         def build(*values):
+            if any(isinstance(v, RECORD_TYPES) for v in values):
+                return _record_list(values, spans)
             unit = values[0].unit
             plain = []
             for value, span in zip(values, spans):
@@ -632,6 +688,13 @@ def finish(program: CellProgram, value) -> u.Quantity:
     """Conversion into the cell's `in` unit, or collapse of scaled dimensionless units."""
     if isinstance(value, u.UnitBase):  # pragma: no cover - the grammar cannot produce it
         raise UnitError("a unit needs a number before it", program.definition.expr.span)
+    if isinstance(value, RECORD_TYPES):
+        if program.unit is not None and program.definition.unit is not None:
+            raise UnitError("a record has no unit to show it in; convert its fields instead",
+                            program.unit_span)
+        if isinstance(value, Record):
+            return value.labelled(program.name)
+        return value
     if program.unit is not None:
         return convert(value, program.unit, program.unit_span)
     return normalise(value)

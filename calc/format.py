@@ -45,3 +45,20 @@ def format_magnitude(value, digits: int = DEFAULT_DIGITS) -> str:
 def format_quantity(q: u.Quantity, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
     """(number text, unit text) of a quantity."""
     return format_magnitude(q.value, digits), unit_string(q.unit)
+
+
+def record_rows(value, digits: int = DEFAULT_DIGITS) -> list[tuple[str, str, str]]:
+    """(field, number text, unit text) rows of a record; one row per item of a record list."""
+    from .records import Record
+
+    if isinstance(value, Record):
+        return [(f".{name}", *format_quantity(q, digits)) for name, q in value.fields.items()]
+    return [(f"[{i}]", item.label or item.kind, "") for i, item in enumerate(value.items)]
+
+
+def record_summary(value) -> str:
+    from .records import Record
+
+    if isinstance(value, Record):
+        return f"({value.kind})"
+    return f"(array of {len(value.items)} records)"

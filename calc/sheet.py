@@ -31,6 +31,7 @@ from .errors import (
 from .evaluate import CellProgram, compile_cell, run_cell
 from .graph import DependencyGraph
 from .parse import parse_expression, parse_sheet
+from .records import is_record
 from .scope import PPN_PARAMETERS, Scope
 from .sheetfile import read_sheet
 from .syntax import CellDef, ConstantsDef, Note, PPNDef
@@ -388,11 +389,13 @@ class Sheet:
         return not self.errors and all(c.error is None for c in self.cells)
 
 
-def _same(a: u.Quantity | None, b: u.Quantity | None) -> bool:
+def _same(a, b) -> bool:
     if a is b:
         return True
     if a is None or b is None:
         return False
+    if is_record(a) or is_record(b):
+        return is_record(a) and a.same_as(b)
     return a.unit == b.unit and np.shape(a.value) == np.shape(b.value) and \
         bool(np.array_equal(a.value, b.value))
 

@@ -12,11 +12,12 @@ import inspect
 import typing
 from collections.abc import Callable
 from dataclasses import dataclass
+from functools import cached_property
 
 from ..errors import ArgumentError
 
 #: Topic modules, imported on the first look-up.
-TOPICS = ("spacetime", "orbits", "light", "gyroscopes", "binaries", "elementary")
+TOPICS = ("spacetime", "orbits", "perturbations", "light", "gyroscopes", "binaries", "elementary")
 
 
 @dataclass(frozen=True)
@@ -57,11 +58,23 @@ class FunctionSpec:
 
     def argument_kinds(self) -> dict[str, str]:
         """Parameter (and ``return``) → the kind of quantity it takes, from the annotations."""
+        return dict(self._kinds)
+
+    @cached_property
+    def _kinds(self) -> dict[str, str]:
         hints = typing.get_type_hints(self.implementation, include_extras=True)
         kinds: dict[str, str] = {}
         for name, hint in hints.items():
             kinds[name] = _kind(hint)
         return kinds
+
+    @cached_property
+    def record_parameters(self) -> frozenset[str]:
+        """Parameters that take orbit records (their kind mentions a record)."""
+        if self.topic == "math":
+            return frozenset()
+        return frozenset(name for name, kind in self._kinds.items()
+                         if "record" in kind and name != "return")
 
     def documentation(self) -> str:
         """The docstring without its one-line summary."""
