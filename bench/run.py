@@ -155,6 +155,17 @@ def p4_arrays(repeats: int) -> Figure:
                                    "astropy Quantity arrays", 1.5), ta, tb)
 
 
+def p6_budget(repeats: int) -> Figure:
+    from calc import Sheet
+
+    text = workloads.budget_sheet()
+    ta, tb = paired_calls(lambda: Sheet.from_text(text)["budget"], workloads.budget_direct, repeats)
+    fig = Figure("P6", "budget: an 8-body periapsis budget in a sheet vs the same numpy "
+                       "computation written directly", 1.5)
+    fig.notes.append("absolute goal: well under a second")
+    return _summarise(fig, ta, tb)
+
+
 # ---- output -------------------------------------------------------------------
 
 
@@ -192,7 +203,8 @@ def main(argv: list[str] | None = None) -> int:
     with tempfile.TemporaryDirectory() as tmp:
         figures = [p1_startup(process_repeats)]
         size, memory = p2_p5_size(process_repeats, Path(tmp))
-        figures += [size, p3_incremental(call_repeats), p4_arrays(call_repeats), memory]
+        figures += [size, p3_incremental(call_repeats), p4_arrays(call_repeats), memory,
+                    p6_budget(call_repeats)]
     if args.json:
         print(json.dumps({"machine": machine(), "quick": args.quick,
                           "figures": [asdict(f) | {"met": f.met} for f in figures]}, indent=2))

@@ -55,3 +55,80 @@ def array_direct():
     z = y / (7 * u.s)
     w = z * z * (1 * u.s)
     return w
+
+
+# ---- P6: an 8-body periapsis budget ------------------------------------------------
+
+_PLANETS = [  # J2000 mean elements (Standish, JPL) and Sun/planet mass ratios, as in the tests
+    ("venus", 0.72333566, 0.00677672, 3.39467605, 76.67984255, 131.60246718, 408523.71),
+    ("earth", 1.00000261, 0.01671123, -0.00001531, 0.0, 102.93768193, 328900.56),
+    ("mars", 1.52371034, 0.09339410, 1.84969142, 49.55953891, -23.94362959, 3098708),
+    ("jupiter", 5.20288700, 0.04838624, 1.30439695, 100.47390909, 14.72847983, 1047.3486),
+    ("saturn", 9.53667594, 0.05386179, 2.48599187, 113.66242448, 92.59887831, 3497.898),
+    ("uranus", 19.18916464, 0.04725744, 0.77263783, 74.01692503, 170.95427630, 22902.98),
+    ("neptune", 30.06992276, 0.00859048, 1.77004347, 131.78422574, 44.96476227, 19412.24),
+]
+_MERCURY = (0.38709927, 0.20563593, 7.00497902, 48.33076593, 77.45779628)
+
+
+def budget_sheet() -> str:
+    lines = [f"mercury = orbit({_MERCURY[0]} AU, {_MERCURY[1]}, {_MERCURY[2]} deg, "
+             f"{_MERCURY[3]} deg, long_peri = {_MERCURY[4]} deg)"]
+    for name, a, e, i, node, lp, ratio in _PLANETS:
+        lines.append(f"{name} = orbit({a} AU, {e}, {i} deg, {node} deg, long_peri = {lp} deg, "
+                     f"m = 1 Msun / {ratio})")
+    names = ", ".join(p[0] for p in _PLANETS)
+    lines.append(f"budget = periapsis_budget(1 Msun, mercury, [{names}])")
+    return "\n".join(lines) + "\n"
+
+
+def budget_direct(grid: int = 256):
+    """The same secular rates written directly with numpy (no relsheet code)."""
+    import numpy as np
+
+    gm_sun = 1.3271244e20
+    au = 149_597_870_700.0
+
+    def frame(i, node, w):
+        co, so, cw, sw, ci, si = (np.cos(node), np.sin(node), np.cos(w), np.sin(w),
+                                  np.cos(i), np.sin(i))
+        P = np.array([co * cw - so * sw * ci, so * cw + co * sw * ci, sw * si])
+        Q = np.array([-co * sw - so * cw * ci, -so * sw + co * cw * ci, cw * si])
+        W = np.array([so * si, -co * si, ci])
+        return P, Q, W
+
+    def sample(a, e, i, node, w, n):
+        M = 2 * np.pi * (np.arange(n) + 0.5) / n
+        E = M.copy() if e < 0.8 else np.full(n, np.pi)
+        for _ in range(60):
+            step = (E - e * np.sin(E) - M) / (1 - e * np.cos(E))
+            E -= step
+            if np.max(np.abs(step)) < 1e-15:
+                break
+        r = a * (1 - e * np.cos(E))
+        cf = (np.cos(E) - e) / (1 - e * np.cos(E))
+        sf = np.sqrt(1 - e**2) * np.sin(E) / (1 - e * np.cos(E))
+        P, Q, W = frame(i, node, w)
+        return r, cf, sf, (r * cf)[:, None] * P + (r * sf)[:, None] * Q, P, Q, W
+
+    deg = np.pi / 180
+    a, e, i, node, lp = _MERCURY
+    a, i, node, w = a * au, i * deg, node * deg, (lp - node) * deg
+    r, cf, sf, xt, P, Q, W = sample(a, e, i, node, w, grid)
+    radial = cf[:, None] * P + sf[:, None] * Q
+    transverse = -sf[:, None] * P + cf[:, None] * Q
+    p = a * (1 - e**2)
+    h = np.sqrt(gm_sun * p)
+    rates = {}
+    for name, ap, ep, ip, nodep, lpp, ratio in _PLANETS:
+        *_, xp, _, _, _ = sample(ap * au, ep, ip * deg, nodep * deg, (lpp - nodep) * deg, grid)
+        d = xp[None, :, :] - xt[:, None, :]
+        dist = np.sqrt(np.einsum("tpk,tpk->tp", d, d))
+        acc = gm_sun / ratio / grid * np.einsum("tpk,tp->tk", d, dist**-3)
+        R = np.einsum("tk,tk->t", acc, radial)
+        T = np.einsum("tk,tk->t", acc, transverse)
+        N = acc @ W
+        su = np.sin(w) * cf + np.cos(w) * sf
+        rates[name] = np.mean((-p * cf * R + (p + r) * sf * T) / (h * e)
+                              + np.tan(i / 2) * r * su * N / h)
+    return rates

@@ -21,6 +21,6 @@ def test_demo_sheet_is_clean(path):
 
 def test_there_is_a_demo_per_topic():
     text = " ".join(p.read_text() for p in DEMOS)
-    for function in ("clock_rate", "periapsis_rate", "conjunction_delay", "geodetic_rate",
+    for function in ("clock_rate", "periapsis_budget", "conjunction_delay", "geodetic_rate",
                      "periastron_rate"):
         assert f"{function}(" in text

@@ -160,16 +160,25 @@ def _grid(grid) -> tuple[int, int]:
     return n_target, n_perturber
 
 
-def _secular_rate(gm_central, target: _Elements, perturber: _Elements, gm_perturber,
-                  grid: tuple[int, int]) -> float:
+class _TargetSample:
+    """The target's orbit sampled once, with its radial and transverse directions."""
+
+    def __init__(self, target: _Elements, n: int) -> None:
+        self.elements = target
+        self.r, self.cos_f, self.sin_f, self.positions = target.sample(n)
+        P, Q, self.normal = target.frame()
+        self.radial = self.cos_f[:, None] * P + self.sin_f[:, None] * Q
+        self.transverse = -self.sin_f[:, None] * P + self.cos_f[:, None] * Q
+
+
+def _secular_rate(gm_central, sampled: _TargetSample, perturber: _Elements, gm_perturber,
+                  n_p: int) -> float:
     """dϖ/dt of the target in rad/s, Gauss's method (see the module docstring)."""
-    n_t, n_p = grid
+    target = sampled.elements
     mu = gm_central + target.gm("target", required=False)
-    r, cos_f, sin_f, x_t = target.sample(n_t)
+    r, cos_f, sin_f, x_t = sampled.r, sampled.cos_f, sampled.sin_f, sampled.positions
     _, _, _, x_p = perturber.sample(n_p)
-    P, Q, W = target.frame()
-    radial = cos_f[:, None] * P + sin_f[:, None] * Q
-    transverse = -sin_f[:, None] * P + cos_f[:, None] * Q
+    radial, transverse, W = sampled.radial, sampled.transverse, sampled.normal
     # direct term of the perturbing acceleration, averaged over the perturber's orbit; the
     # indirect term (the perturber's pull on the Sun) averages to zero over its period
     d = x_p[None, :, :] - x_t[:, None, :]
@@ -179,7 +188,7 @@ def _secular_rate(gm_central, target: _Elements, perturber: _Elements, gm_pertur
         warn(f"the orbits of the target and `{perturber.label or 'a perturber'}` come within "
              f"{closest / target.a:.2g} a: the averaged rate converges slowly there and "
              "first-order secular theory may not apply")
-    acc = gm_perturber * np.mean(d / dist[:, :, None] ** 3, axis=1)
+    acc = gm_perturber / n_p * np.einsum("tpk,tp->tk", d, dist**-3)
     R = np.einsum("tk,tk->t", acc, radial)
     T = np.einsum("tk,tk->t", acc, transverse)
     N = acc @ W
@@ -225,7 +234,9 @@ def perturbation_rate(M: Mass, target: Orbit, perturber: Orbit,
     gm = check.gravitational_parameter(M)
     tgt = _target_elements(target)
     pert = _Elements(perturber, "perturber")
-    rate = _secular_rate(gm, tgt, pert, pert.gm("perturber", required=True), _grid(grid))
+    n_t, n_p = _grid(grid)
+    rate = _secular_rate(gm, _TargetSample(tgt, n_t), pert, pert.gm("perturber", required=True),
+                         n_p)
     return quantity(rate * _CENTURY_S / _ARCSEC, _RATE_UNIT)
 
 
@@ -270,12 +281,13 @@ def periapsis_budget(M: Mass, target: Orbit, perturbers: Orbits, J2: Dimensionle
     if not isinstance(perturbers, (Record, RecordList)):
         raise ArgumentError("`perturbers` must be an array of orbit records, such as "
                             "[venus, earth]", "perturbers")
-    grid_size = _grid(grid)
+    n_t, n_p = _grid(grid)
+    sampled = _TargetSample(tgt, n_t)
     fields: dict[str, u.Quantity] = {}
     total = 0.0
     for name, record in zip(_names(items), items):
         pert = _Elements(record, "perturbers")
-        rate = _secular_rate(gm, tgt, pert, pert.gm("perturbers", required=True), grid_size)
+        rate = _secular_rate(gm, sampled, pert, pert.gm("perturbers", required=True), n_p)
         fields[name] = quantity(rate * _CENTURY_S / _ARCSEC, _RATE_UNIT)
         total += rate
     if (J2 is None) != (R is None):
