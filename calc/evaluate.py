@@ -21,7 +21,7 @@ from operator import itemgetter
 import astropy.units as u
 import numpy as np
 
-from . import functions
+from . import functions, validity
 from .errors import (
     ArgumentError,
     DomainError,
@@ -66,7 +66,6 @@ from .units import (
     unit_quotient,
     value_in,
 )
-from .validity import collecting
 
 #: Deepest nesting of operations in one expression (keeps recursion far from Python's limit).
 MAX_EXPRESSION_DEPTH = 150
@@ -330,19 +329,6 @@ def _number(value: float) -> u.Quantity:
     return q
 
 
-def _parameter_names(spec, npositional: int, keywords: list[str]) -> list[str]:
-    """The parameter each value of a call goes to, positional ones first."""
-    names: list[str] = []
-    for param in spec.signature.parameters.values():
-        if len(names) == npositional:
-            break
-        if param.kind is param.VAR_POSITIONAL:
-            names += [f"value {i + 1}" for i in range(npositional - len(names))]
-            break
-        names.append(param.name)
-    return names + list(keywords)
-
-
 def _record_list(values, spans) -> RecordList:
     for value, span in zip(values, spans):
         if not isinstance(value, Record):
@@ -543,31 +529,26 @@ class _Compiler:
                                       hint=hint)
         keywords = {k.name: k for k in node.keywords}
         try:
-            bound = spec.bind(node.args, keywords)
+            slots, omitted = spec.plan(len(node.args), tuple(keywords))
         except ArgumentError as err:
             raise err.located(node.span) from None
-        arg_spans: dict[str, Span] = {}
-        for pname, value in bound.arguments.items():
-            if isinstance(value, tuple):
-                for i, item in enumerate(value):
-                    arg_spans[f"value {i + 1}"] = item.span
-            else:
-                arg_spans[pname] = value.span
+        values = [*node.args, *(k.value for k in node.keywords)]
+        arg_spans = {slot: value.span for slot, value in zip(slots, values)}
         arg_codes = [self.expr(a, depth + 1) for a in node.args]
         names = list(keywords)
         kw_codes = [self.expr(keywords[k].value, depth + 1) for k in names]
         for parameter in PPN_PARAMETERS:
             # an omitted gamma or beta takes the sheet's `ppn` value (else 1)
-            if parameter in spec.signature.parameters and parameter not in bound.arguments:
+            if parameter in omitted:
                 self.looked_up.add(f"ppn.{parameter}")
                 names.append(parameter)
                 kw_codes.append(self.resolved(self.scope.ppn(parameter, node.span), node.span))
+        slots = (*slots, *names[len(keywords):])
         implementation = spec.implementation
         fname = spec.name
         span = node.span
         npos = len(arg_codes)
         takes_records = spec.record_parameters
-        slots = _parameter_names(spec, len(node.args), names)
 
         def apply(*values):
             for value, pname in zip(values, slots):
@@ -656,9 +637,11 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
         return program
-    with collecting() as found:
+    handle = validity.start()
+    try:
         _compile_into(program, compiler, definition, scope, source, display_unit)
-    program.warnings = found
+    finally:
+        program.warnings = validity.stop(handle)
     program.deps = compiler.deps
     program.looked_up = compiler.looked_up
     return program

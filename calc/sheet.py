@@ -18,6 +18,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from . import validity
 from .constants import ConstantSelection, default_selection, parse_selection, using
 from .errors import (
     CycleError,
@@ -35,7 +36,6 @@ from .records import is_record
 from .scope import PPN_PARAMETERS, Scope
 from .sheetfile import read_sheet
 from .syntax import CellDef, ConstantsDef, Note, PPNDef
-from .validity import collecting
 
 
 class Cell:
@@ -225,9 +225,9 @@ class Sheet:
                                           span=program.deps[failed[0]], source=program.source)
             return
         cell.warnings = list(program.warnings)
+        handle = validity.start()
         try:
-            with collecting() as found:
-                value = run_cell(program, self._values)
+            value = run_cell(program, self._values)
         except SheetError as err:
             cell.error = err
             return
@@ -238,6 +238,8 @@ class Sheet:
             err.__cause__ = exc
             cell.error = err
             return
+        finally:
+            found = validity.stop(handle)
         cell.warnings.extend(w for w in found if w not in cell.warnings)
         cell.error = None
         cell.value = value

@@ -29,3 +29,15 @@ def collecting():
         yield found
     finally:
         _collector.reset(token)
+
+
+def start() -> tuple:
+    """Begin collecting (a cheaper form of :func:`collecting` for hot paths)."""
+    found: list[str] = []
+    return found, _collector.set(found)
+
+
+def stop(handle: tuple) -> list[str]:
+    found, token = handle
+    _collector.reset(token)
+    return found

@@ -13,8 +13,11 @@ from calc.catalog import CAUTION, entry, listing
 
 ROOT = Path(__file__).resolve().parent.parent
 
-# DESIGN §4 (orbit, perturbation_rate and periapsis_budget come with the next issue)
+# DESIGN §4; periapsis_budget also takes the PPN parameters and perturbation_rate a grid
 DESIGN_FUNCTIONS = {
+    "orbit": ("a", "e", "i", "node", "long_peri", "arg_peri", "m"),
+    "perturbation_rate": ("M", "target", "perturber", "grid"),
+    "periapsis_budget": ("M", "target", "perturbers", "J2", "R", "J", "gamma", "beta", "grid"),
     "schwarzschild_radius": ("M",), "proper_radial_distance": ("M", "r1", "r2"),
     "gravitational_redshift": ("M", "r_emit", "r_obs"), "clock_rate": ("M", "r", "v"),
     "eccentricity_clock_term": ("M", "a", "e"), "orbital_period": ("M", "a"),

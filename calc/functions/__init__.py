@@ -44,6 +44,29 @@ class FunctionSpec:
                 f"{self.name}{self.display_signature()}: {_bind_message(exc)}") from None
         return bound
 
+    def plan(self, npositional: int, keywords: tuple[str, ...]) -> tuple[tuple[str, ...], frozenset]:
+        """For a call with this many positional arguments and these keywords: the parameter
+        each value goes to (``value 1`` … for variadic ones), and the parameters left out.
+
+        Raises ArgumentError for a call that does not fit the signature. Cached: sheets
+        repeat the same call shapes.
+        """
+        key = (self.name, npositional, keywords)
+        hit = _PLANS.get(key)
+        if hit is None:
+            bound = self.bind(tuple(range(npositional)), {k: None for k in keywords})
+            slots: list[str] = []
+            for name, value in bound.arguments.items():
+                if name in keywords:
+                    continue
+                if isinstance(value, tuple):
+                    slots += [f"value {i + 1}" for i in range(len(value))]
+                else:
+                    slots.append(name)
+            omitted = frozenset(p for p in self.signature.parameters if p not in bound.arguments)
+            hit = _PLANS[key] = (tuple(slots) + keywords, omitted)
+        return hit
+
     def display_signature(self) -> str:
         """``(M, a, e, gamma=…, beta=…)``: what a sheet writes in the call."""
         parts = []
@@ -104,6 +127,7 @@ def _bind_message(exc: TypeError) -> str:
 
 
 _REGISTRY: dict[str, FunctionSpec] = {}
+_PLANS: dict[tuple, tuple] = {}
 _loaded = False
 
 
