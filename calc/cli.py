@@ -45,6 +45,11 @@ def build_parser() -> argparse.ArgumentParser:
                     help="text for people (default), json for programs")
     ev.add_argument("--digits", type=int, default=6, metavar="N",
                     help="significant digits in text output (1-17, default 6)")
+    ev.add_argument("--mc", type=int, metavar="N",
+                    help="Monte Carlo propagation with N samples (default: first-order)")
+    ev.add_argument("--seed", type=int, metavar="S", help="seed of the Monte Carlo draws")
+    ev.add_argument("--sigma-budget", metavar="CELL", dest="sigma_budget",
+                    help="list each input's share of the uncertainty of CELL")
     ev.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
     fn = commands.add_parser("funcs", help="list the functions, or show one",
@@ -122,35 +127,119 @@ def cmd_eval(args) -> int:
 
     if not 1 <= args.digits <= 17:
         raise UsageError(f"--digits must be between 1 and 17, got {args.digits}")
+    if args.mc is not None and not 2 <= args.mc <= 10_000_000:
+        raise UsageError(f"--mc takes between 2 and 10,000,000 samples, got {args.mc}")
+    if args.seed is not None and args.mc is None:
+        raise UsageError("--seed goes with --mc")
     sheet = Sheet.load(args.file)
     _apply_overrides(sheet, args.overrides)
+    if args.sigma_budget is not None and args.sigma_budget not in sheet:
+        from .units import close_matches, did_you_mean
+
+        raise UsageError(f"--sigma-budget: the sheet has no cell `{args.sigma_budget}`",
+                         hint=did_you_mean(close_matches(args.sigma_budget, sheet.names())))
+    monte_carlo = None
+    if args.mc is not None:
+        progress = _Progress()
+        try:
+            monte_carlo = sheet.monte_carlo(args.mc, args.seed, progress)
+        finally:
+            progress.close()
+        monte_carlo["__samples__"] = args.mc
     if args.format == "json":
         from .export import to_json
 
-        print(to_json(sheet))
+        print(to_json(sheet, monte_carlo))
     else:
-        print(render_text(sheet, args.digits))
+        print(render_text(sheet, args.digits, monte_carlo))
+    if args.sigma_budget is not None:
+        print(render_sigma_budget(sheet, args.sigma_budget, args.digits))
     _report_warnings(sheet)
     _report(sheet.all_errors(), args.debug)
     return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
 
 
-def render_text(sheet, digits: int) -> str:
+class _Progress:
+    """A progress bar on a terminal, shown only once a Monte Carlo run passes one second."""
+
+    def __init__(self) -> None:
+        import time
+
+        self._clock = time.monotonic
+        self._start = self._clock()
+        self._bar = None
+        self._counter = None
+        self._total = None
+
+    def __call__(self, done: int, total: int) -> None:
+        if self._bar is None:
+            if self._clock() - self._start < 1.0 or not sys.stderr.isatty():
+                return
+            from prompt_toolkit.shortcuts import ProgressBar
+
+            self._bar = ProgressBar(title="Monte Carlo", file=sys.stderr)
+            self._bar.__enter__()
+        if total != self._total:
+            self._counter = self._bar(label="samples" if total > 1000 else "cells", total=total)
+            self._total = total
+        self._counter.items_completed = done
+        self._bar.invalidate()
+
+    def close(self) -> None:
+        if self._bar is not None:
+            self._bar.__exit__(None, None, None)
+
+
+def render_sigma_budget(sheet, name: str, digits: int) -> str:
+    """Each independent input's share of σ² of one cell, largest first."""
+    from .format import format_quantity
+    from .units import unit_string
+
+    cell = sheet.cell(name)
+    if cell.error is not None:
+        return f"\nuncertainty budget of `{name}`: the cell failed ({cell.error.message})"
+    rows = sheet.sigma_budget(name)
+    if not rows:
+        return f"\nuncertainty budget of `{name}`: it depends on no uncertain input"
+    sigma = cell.sigma
+    lines = ["", f"uncertainty budget of `{name}`  (σ = {format_quantity(sigma, digits)[0]} "
+             f"{unit_string(sigma.unit)})"]
+    width = max(len(inp.name) for inp, _, _ in rows)
+    for inp, part, share in rows:
+        value = f"{format_quantity(inp.nominal, digits)[0]} ± {format_quantity(inp.sigma, 2)[0]}"
+        unit = unit_string(inp.nominal.unit)
+        contribution = f"{format_quantity(part, 2)[0]} {unit_string(part.unit)}".strip()
+        lines.append(f"  {inp.name:<{width}}  {share * 100:6.2f} %   {contribution:<22} "
+                     f"from {value} {unit}".rstrip())
+    return "\n".join(lines)
+
+
+def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
     """Headings, then aligned name / value / unit; errors inline."""
-    from .format import format_quantity, record_rows, record_summary
+    from .format import format_quantity, format_with_sigma, record_rows, record_summary
     from .records import is_record
     from .sheet import Cell
+    from .uncertain import Summary
+    from .units import unit_string
 
     rows: list[tuple[str, ...]] = []
     for item in sheet.items:
         if isinstance(item, Cell):
+            summary = (monte_carlo or {}).get(item.name)
             if item.error is not None:
                 rows.append(("cell", item.name, f"error: {item.error.message}", ""))
-            elif is_record(item.value):
-                rows.append(("cell", item.name, record_summary(item.value), ""))
-                rows += [("field", *row) for row in record_rows(item.value, digits)]
+            elif isinstance(summary, Summary):
+                rows.append(("cell", item.name, format_with_sigma(summary.mean, summary.std),
+                             unit_string(summary.unit)))
+                quantiles = " / ".join(format_with_sigma(q, summary.std)
+                                       .split(" ±")[0].lstrip("(").replace("[", "")
+                                       for q in (summary.p16, summary.p50, summary.p84))
+                rows.append(("warning", f"16 / 50 / 84 %: {quantiles}"))
+            elif is_record(item.raw):
+                rows.append(("cell", item.name, record_summary(item.raw), ""))
+                rows += [("field", *row) for row in record_rows(item.raw, digits)]
             else:
-                rows.append(("cell", item.name, *format_quantity(item.value, digits)))
+                rows.append(("cell", item.name, *format_quantity(item.raw, digits)))
             rows += [("warning", text) for text in item.warnings]
         elif item.heading:
             rows.append(("heading", item.text))
@@ -159,12 +248,18 @@ def render_text(sheet, digits: int) -> str:
     scalars = [len(r[2]) for r in rows
                if r[0] in ("cell", "field") and r[3] and not r[2].startswith("[")]
     value_width = min(24, max(scalars, default=0))
-    lines = [f"{sheet.source.label}  ·  constants {', '.join(sheet.selection.names)}"]
+    header = f"{sheet.source.label}  ·  constants {', '.join(sheet.selection.names)}"
+    if sheet.uncertain_constants:
+        header += " (with their uncertainties)"
+    if monte_carlo is not None:
+        header += f"  ·  Monte Carlo, {monte_carlo.get('__samples__', 0):,} samples"
+    lines = [header]
     for row in rows:
         if row[0] == "heading":
             lines += ["", row[1]]
         elif row[0] == "warning":
-            lines.append(f"  {'':<{name_width}}  warning: {row[1]}")
+            label = "" if row[1].startswith("16 / 50 / 84 %") else "warning: "
+            lines.append(f"  {'':<{name_width}}  {label}{row[1]}")
         elif row[0] == "field":
             _, name, value, unit = row
             lines.append(f"    {name:<{name_width - 2}}  {value:<{value_width}}  {unit}".rstrip())

@@ -101,17 +101,24 @@ def constant_table(selection: ConstantSelection) -> dict[str, ConstantEntry]:
     return table
 
 
+#: The word of a ``constants`` line that turns on the constants' published uncertainties.
+UNCERTAIN_FLAG = "uncertain"
+
+
 def parse_selection(names: list[str]) -> tuple[ConstantSelection, list[tuple[int, str, str]]]:
     """Turn the words of a ``constants`` line into a selection.
 
     Returns the selection and a list of problems ``(index, message, hint)``
-    for words that name no set or a second set of the same kind.
+    for words that name no set or a second set of the same kind. The word
+    ``uncertain`` (see :data:`UNCERTAIN_FLAG`) is not a set and is skipped here.
     """
     default = default_selection()
     codata = iau = None
     problems: list[tuple[int, str, str]] = []
     known = ", ".join(CODATA_SETS + IAU_SETS)
     for index, word in enumerate(names):
+        if word == UNCERTAIN_FLAG:
+            continue
         if word in CODATA_SETS:
             if codata is not None:
                 problems.append((index, f"two CODATA editions pinned: `{codata}` and `{word}`",
@@ -123,7 +130,8 @@ def parse_selection(names: list[str]) -> tuple[ConstantSelection, list[tuple[int
                                  "pin one CODATA edition and one IAU set"))
             iau = word
         else:
-            problems.append((index, f"unknown constant set `{word}`", f"known sets: {known}"))
+            problems.append((index, f"unknown constant set `{word}`",
+                             f"known sets: {known}; `{UNCERTAIN_FLAG}` uses their uncertainties"))
     return ConstantSelection(codata or default.codata, iau or default.iau), problems
 
 

@@ -21,7 +21,7 @@ from operator import itemgetter
 import astropy.units as u
 import numpy as np
 
-from . import functions, validity
+from . import functions, uncertain, validity
 from .errors import (
     ArgumentError,
     DomainError,
@@ -47,10 +47,12 @@ from .syntax import (
     Number,
     Percent,
     PercentUnit,
+    PlusMinus,
     Power,
     UnaryOp,
     UnitProduct,
 )
+from .uncertain import Uncertain
 from .units import (
     angle_equivalencies,
     close_matches,
@@ -236,6 +238,13 @@ def neg_op(span: Span):
 
 def power_op(span: Span, exponent_span: Span):
     def apply(base, exponent):
+        if isinstance(base, Uncertain) or isinstance(exponent, Uncertain):
+            try:
+                return _finite(uncertain.power(base, exponent), (base, exponent), span, "the power")
+            except SheetError as err:
+                raise err.located(span) from None
+            except (u.UnitsError, ValueError) as exc:
+                raise UnitError(f"cannot raise to this power: {exc}", span) from None
         try:
             e = value_in(exponent, _ONE)
         except u.UnitConversionError:
@@ -282,6 +291,8 @@ def field_op(parts: tuple[str, ...], span: Span):
 
 def convert(value: u.Quantity, unit: u.UnitBase, span: Span) -> u.Quantity:
     try:
+        if isinstance(value, Uncertain):
+            return value.to(unit)
         return quantity(value_in(value, unit), unit)
     except u.UnitConversionError:
         raise UnitError(f"cannot show {describe(value.unit)} in {describe(unit)}", span,
@@ -291,6 +302,8 @@ def convert(value: u.Quantity, unit: u.UnitBase, span: Span) -> u.Quantity:
 def normalise(value: u.Quantity) -> u.Quantity:
     """Collapse a scaled dimensionless unit (`km / m`) into a plain number."""
     if plain_number_unit(value.unit):
+        if isinstance(value, Uncertain):
+            return value.to(_ONE)
         return quantity(value_in(value, _ONE), _ONE)
     return value
 
@@ -318,6 +331,11 @@ def _lift(fn, *codes: Code) -> Code:
     return lambda env: fn(*(r(env) for r in runners))
 
 
+def _input_code(ids: tuple, nominal_value: u.Quantity, sigma_value: u.Quantity):
+    value_of = uncertain.mode.value
+    return lambda env: value_of(ids, nominal_value, sigma_value)
+
+
 _NUMBERS: dict[float, u.Quantity] = {}
 
 
@@ -327,6 +345,41 @@ def _number(value: float) -> u.Quantity:
     if q is None:
         q = _NUMBERS[value] = u.Quantity(value)
     return q
+
+
+def _uncertain_array(values, spans) -> Uncertain:
+    """An array literal whose items carry uncertainties: one array of contributions per input."""
+    unit = values[0].unit
+    nominal_values, parts = [], {}
+    for index, (value, span) in enumerate(zip(values, spans)):
+        if np.ndim(value.value) != 0:
+            raise DomainError("arrays hold single values, not arrays", span)
+        try:
+            scale = conversion_scale(value.unit, unit)
+        except u.UnitConversionError:
+            raise UnitError(f"array items must share a dimension: {describe(value.unit)} "
+                            f"is not {describe(unit)}", span) from None
+        nominal_values.append(float(value.value) * scale)
+        for key, part in getattr(value, "parts", {}).items():
+            column = parts.setdefault(key, np.zeros(len(values)))
+            column[index] += float(part) * scale
+    return Uncertain(quantity(np.array(nominal_values), unit), parts)
+
+
+def _sampled_array(values, spans) -> u.Quantity:
+    """Under Monte Carlo: items that are sample columns (N, 1) make an (N, n) array."""
+    unit = values[0].unit
+    n = uncertain.mode.samples
+    columns = []
+    for value, span in zip(values, spans):
+        try:
+            column = np.asarray(value_in(value, unit), dtype=float)
+        except u.UnitConversionError:
+            raise UnitError(f"array items must share a dimension: {describe(value.unit)} "
+                            f"is not {describe(unit)}", span) from None
+        columns.append(np.broadcast_to(column.reshape(-1, 1) if column.ndim == 2 else column,
+                                       (n, 1)))
+    return quantity(np.concatenate(columns, axis=1), unit)
 
 
 def _record_list(values, spans) -> RecordList:
@@ -342,9 +395,11 @@ def _is_unit_item(node) -> bool:
 
 
 class _Compiler:
-    def __init__(self, scope: Scope, source: Source) -> None:
+    def __init__(self, scope: Scope, source: Source, cell_name: str = "") -> None:
         self.scope = scope
         self.source = source
+        self.cell_name = cell_name
+        self.inputs_made = 0
         self.deps: dict[str, Span] = {}
         self.looked_up: set[str] = set()
 
@@ -361,7 +416,56 @@ class _Compiler:
             return Const(resolved.unit)
         if resolved.kind == "cell":
             return self.cell_ref(resolved.cell, span)
+        ids = self.scope.constant_input(resolved.name) if resolved.name else None
+        if ids is not None:
+            return _input_code(ids, resolved.value, self.scope.inputs.inputs[ids[0]].sigma)
         return Const(resolved.value)
+
+    def plus_minus(self, node: PlusMinus, depth: int) -> Code:
+        """`value ± sigma`: an independent input (never folded, so Monte Carlo can sample it)."""
+        value_node, sigma_node = node.value, node.sigma
+        scale = None
+        if isinstance(value_node, (Number, Percent)) and isinstance(sigma_node, Chain) \
+                and isinstance(sigma_node.head, (Number, Percent)):
+            # `1.438 ± 0.001 Msun`: the units after the uncertainty belong to both numbers
+            units = self.expr(Chain(Number(1.0, "1", sigma_node.head.span), sigma_node.items,
+                                    sigma_node.span), depth + 1)
+            if not isinstance(units, Const):
+                head = PlusMinus(value_node, sigma_node.head,
+                                 value_node.span.to(sigma_node.head.span))
+                return self.expr(Chain(head, sigma_node.items, node.span), depth)
+            scale = units.value
+            sigma_node = sigma_node.head
+        value = self.expr(value_node, depth + 1)
+        sigma = self.expr(sigma_node, depth + 1)
+        if scale is not None and isinstance(value, Const) and isinstance(sigma, Const):
+            value, sigma = Const(value.value * scale), Const(sigma.value * scale)
+        if not isinstance(value, Const) or not isinstance(sigma, Const) \
+                or isinstance(value.value, u.UnitBase) or isinstance(sigma.value, u.UnitBase):
+            raise UnitError("a value with `±` is a measured input: write it in numbers and units, "
+                            "without cells", node.span)
+        nominal_value, sigma_value = value.value, sigma.value
+        if isinstance(nominal_value, RECORD_TYPES) or isinstance(sigma_value, RECORD_TYPES):
+            raise UnitError("a record cannot carry `±`; give its fields uncertainties", node.span)
+        try:
+            sigma_value = quantity(value_in(sigma_value, nominal_value.unit), nominal_value.unit)
+        except u.UnitConversionError:
+            raise UnitError(f"the uncertainty is {describe(sigma_value.unit)}, the value "
+                            f"{describe(nominal_value.unit)}", sigma_node.span) from None
+        sv, nv = np.asarray(sigma_value.value), np.asarray(nominal_value.value)
+        if np.any(sv < 0):
+            raise DomainError("an uncertainty must not be negative", sigma_node.span)
+        if sv.ndim and sv.shape != nv.shape:
+            raise DomainError(f"{sv.size} uncertainties for {nv.size} values", sigma_node.span)
+        self.inputs_made += 1
+        name = self.cell_name if self.inputs_made == 1 else f"{self.cell_name} ({self.inputs_made})"
+        try:
+            ids = uncertain.make_input(self.scope.inputs, name, nominal_value, sigma_value)
+        except DomainError as err:
+            raise err.located(node.span) from None
+        if isinstance(ids, u.Quantity):
+            return Const(ids)
+        return _input_code(ids, nominal_value, sigma_value)
 
     def exponent_number(self, node, depth: int) -> float:
         code = self.expr(node, depth + 1)
@@ -401,6 +505,8 @@ class _Compiler:
         if kind is UnaryOp:
             operand = self.expr(node.operand, depth + 1)
             return operand if node.op == "+" else _lift(neg_op(node.span), operand)
+        if kind is PlusMinus:
+            return self.plus_minus(node, depth)
         if kind is Power:
             base = self.expr(node.base, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
@@ -550,12 +656,22 @@ class _Compiler:
         npos = len(arg_codes)
         takes_records = spec.record_parameters
 
+        samplewise = spec.samplewise
+
         def apply(*values):
             for value, pname in zip(values, slots):
                 if isinstance(value, RECORD_TYPES) and pname not in takes_records:
                     what = "an array of records" if isinstance(value, RecordList) else "a record"
                     raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not {what}",
                                         pname, span=arg_spans.get(pname, span))
+            if any(type(v) is Uncertain or (type(v) is not u.Quantity and uncertain.is_uncertain(v))
+                   for v in values):
+                return uncertain.through(call, values)
+            if samplewise and uncertain.mode.monte_carlo:
+                return uncertain.per_sample(call, values)
+            return call(*values)
+
+        def call(*values):
             try:
                 if names:
                     result = implementation(*values[:npos], **dict(zip(names, values[npos:])))
@@ -582,6 +698,10 @@ class _Compiler:
         def build(*values):
             if any(isinstance(v, RECORD_TYPES) for v in values):
                 return _record_list(values, spans)
+            if any(isinstance(v, Uncertain) for v in values):
+                return _uncertain_array(values, spans)
+            if uncertain.mode.monte_carlo and any(np.ndim(v.value) == 2 for v in values):
+                return _sampled_array(values, spans)
             unit = values[0].unit
             plain = []
             for value, span in zip(values, spans):
@@ -632,7 +752,7 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
 
     ``display_unit`` (unit, span) applies when the definition has no ``in`` of its own.
     """
-    compiler = _Compiler(scope, source)
+    compiler = _Compiler(scope, source, definition.name)
     program = CellProgram(definition, source)
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
@@ -660,7 +780,8 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
             program.constant = finish(program, code.value)
             if not all_finite(program.constant):
                 program.constant = checked(
-                    lambda: finish(program, _Compiler(scope, source).expr(definition.expr).value))
+                    lambda: finish(program, _Compiler(scope, source, definition.name)
+                                   .expr(definition.expr).value))
         else:
             program.run = code
     except SheetError as err:

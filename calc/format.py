@@ -7,6 +7,8 @@ so a printed value can be pasted back into a sheet.
 
 from __future__ import annotations
 
+import math
+
 import astropy.units as u
 import numpy as np
 
@@ -42,9 +44,39 @@ def format_magnitude(value, digits: int = DEFAULT_DIGITS) -> str:
     return f"[{head}, …, {tail}] ({flat.size:,} values)"
 
 
-def format_quantity(q: u.Quantity, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
-    """(number text, unit text) of a quantity."""
+def format_quantity(q, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
+    """(number text, unit text) of a quantity; `value ± σ` when it carries an uncertainty."""
+    sigma = getattr(q, "sigma", None)
+    if sigma is not None and not isinstance(q, u.Quantity):
+        return format_with_sigma(q.nominal.value, q.sigma_value(), digits), unit_string(q.unit)
     return format_magnitude(q.value, digits), unit_string(q.unit)
+
+
+def format_measured(value: float, sigma: float) -> str:
+    """`value ± σ` with σ to two significant digits and the value to the same decimal place
+    (GUM, JCGM 100:2008, §7.2.6; common practice). Very large or small values share one
+    power of ten: `(1.4380 ± 0.0010)e30`."""
+    value, sigma = float(value), float(sigma)
+    if not (math.isfinite(value) and math.isfinite(sigma)) or sigma <= 0:
+        return format_number(value)
+    magnitude = abs(value) if value else sigma
+    k = 0 if 1e-3 <= magnitude < 1e6 else math.floor(math.log10(magnitude))
+    mv, ms = value / 10**k, sigma / 10**k
+    place = math.floor(math.log10(ms)) - 1          # the second significant digit of σ
+    if round(ms, -place) >= 10 ** (place + 2):      # σ rounded up to a new power of ten
+        place += 1
+    decimals = max(0, -place)
+    text = f"{round(mv, -place):.{decimals}f} ± {round(ms, -place):.{decimals}f}"
+    return f"({text})e{k}" if k else text
+
+
+def format_with_sigma(value, sigma, digits: int = DEFAULT_DIGITS) -> str:
+    if np.ndim(value) == 0:
+        return format_measured(value, sigma)
+    flat, spread = np.ravel(value), np.ravel(np.broadcast_to(sigma, np.shape(value)))
+    items = [format_measured(v, s) for v, s in zip(flat[:ARRAY_PREVIEW], spread[:ARRAY_PREVIEW])]
+    more = f", … ({flat.size:,} values)" if flat.size > ARRAY_PREVIEW else ""
+    return "[" + ", ".join(items) + more + "]"
 
 
 def record_rows(value, digits: int = DEFAULT_DIGITS) -> list[tuple[str, str, str]]:

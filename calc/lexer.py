@@ -26,7 +26,7 @@ _PATTERN_TERMINALS = ("_NL", "HASH_TEXT", "PERCENT", "NUMBER", "DOTTED_NAME", "N
 
 # Operators that the grammar spells as alternatives under one terminal.
 _MULTI = {"^": "_POW", "**": "_POW", "*": "_TIMES", "\u00d7": "_TIMES", "\u00b7": "_TIMES",
-          "-": "MINUS", "\u2212": "MINUS"}
+          "-": "MINUS", "\u2212": "MINUS", "\u00b1": "PM", "+/-": "PM"}
 
 
 class SheetLexer(Lexer):

@@ -35,7 +35,7 @@ _TERMINAL_WORDS = {
     "LPAR": "`(`", "RPAR": "`)`", "LSQB": "`[`", "RSQB": "`]`", "COMMA": "`,`",
     "EQUAL": "`=`", "PLUS": "`+`", "MINUS": "`-`", "SLASH": "`/`", "_TIMES": "`*`",
     "_POW": "`^`", "IN": "`in`", "_NL": "the end of the line", "$END": "the end of the input",
-    "HASH_TEXT": "a comment", "PERCENT_SIGN": "`%`", "CONSTANTS": "`constants`", "PPN": "`ppn`",
+    "HASH_TEXT": "a comment", "PERCENT_SIGN": "`%`", "CONSTANTS": "`constants`", "PPN": "`ppn`", "PM": "`±`",
 }
 
 
@@ -195,7 +195,6 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> She
 
 def _character_hint(ch: str) -> str | None:
     return {
-        "\u00b1": "uncertainties (`±`) are not part of this version of relsheet",
         "\u00b0": "write the unit `deg`",
         "\u2032": "write the unit `arcmin`",
         "\u2033": "write the unit `arcsec`",

@@ -22,6 +22,7 @@ import astropy.units as u
 from .constants import ConstantEntry, ConstantSelection, constant_table
 from .errors import NameResolutionError, Span
 from .syntax import Name
+from .uncertain import InputRegistry
 from .units import UnitTable, close_matches, did_you_mean, long_name, unit_table
 
 
@@ -33,6 +34,8 @@ class Resolved:
     unit: u.UnitBase | None = None
     cell: str | None = None
     value: u.Quantity | None = None
+    #: the constant's name, for constants (its uncertainty may apply)
+    name: str | None = None
 
 
 #: The PPN parameters a sheet can set with a `ppn` line.
@@ -43,9 +46,13 @@ _GR_VALUE = u.Quantity(1.0)
 class Scope:
     """Resolves names for one sheet: its cell names, units and constants."""
 
-    def __init__(self, cell_names, selection: ConstantSelection) -> None:
+    def __init__(self, cell_names, selection: ConstantSelection,
+                 inputs: InputRegistry | None = None, uncertain_constants: bool = False) -> None:
         self.cell_names = cell_names
         self.selection = selection
+        self.inputs = inputs if inputs is not None else InputRegistry()
+        self.uncertain_constants = uncertain_constants
+        self._constant_inputs: dict[str, tuple] = {}
         self.units: UnitTable = unit_table(selection)
         self.constants: dict[str, ConstantEntry] = constant_table(selection)
 
@@ -81,10 +88,25 @@ class Scope:
             return Resolved("cell", cell=name.id)
         constant = self.constants.get(name.id)
         if constant is not None:
-            return Resolved("constant", value=constant.quantity)
+            return Resolved("constant", value=constant.quantity, name=name.id)
         raise NameResolutionError(
             f"unknown unit `{name.id}`", name.span,
             hint=did_you_mean(self.units.suggestions(name.id, list(self.cell_names))))
+
+    def constant_input(self, name: str):
+        """Under ``constants … uncertain``: the input ids of constant ``name`` (one input for
+        the whole sheet however often it is used), or None when it is exact."""
+        if not self.uncertain_constants:
+            return None
+        entry = self.constants.get(name)
+        if entry is None or not entry.uncertainty:
+            return None
+        ids = self._constant_inputs.get(name)
+        if ids is None:
+            sigma = u.Quantity(entry.uncertainty, entry.quantity.unit)
+            ids = self._constant_inputs[name] = (
+                self.inputs.new(f"const.{name}", entry.quantity, sigma),)
+        return ids
 
     def plain(self, name: Name) -> Resolved:
         """A name outside a chain: a cell, else a built-in constant."""
@@ -92,7 +114,7 @@ class Scope:
             return Resolved("cell", cell=name.id)
         constant = self.constants.get(name.id)
         if constant is not None:
-            return Resolved("constant", value=constant.quantity)
+            return Resolved("constant", value=constant.quantity, name=name.id)
         if self.units.lookup(name.id) is not None:
             raise NameResolutionError(
                 f"`{name.id}` is a unit, not a value", name.span,
@@ -118,7 +140,7 @@ class Scope:
         """``const.NAME`` (a built-in constant) or ``ppn.gamma`` / ``ppn.beta``."""
         if parts[0] == "ppn":
             return self.ppn(parts[1] if len(parts) == 2 else ".".join(parts[1:]), span)
-        return Resolved("constant", value=self.builtin(parts, span))
+        return Resolved("constant", value=self.builtin(parts, span), name=parts[-1])
 
     def ppn(self, parameter: str, span: Span) -> Resolved:
         """A PPN parameter: the sheet's ``ppn`` line, else its general-relativity value 1."""

@@ -18,8 +18,8 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from . import validity
-from .constants import ConstantSelection, default_selection, parse_selection, using
+from . import uncertain, validity
+from .constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection, using
 from .errors import (
     CycleError,
     DuplicateCellError,
@@ -36,20 +36,33 @@ from .records import is_record
 from .scope import PPN_PARAMETERS, Scope
 from .sheetfile import read_sheet
 from .syntax import CellDef, ConstantsDef, Note, PPNDef
+from .units import quantity
 
 
 class Cell:
     """One cell as evaluated: its definition and either a value or an error."""
 
-    __slots__ = ("definition", "source", "value", "error", "warnings")
+    __slots__ = ("definition", "source", "raw", "error", "warnings")
 
     def __init__(self, definition: CellDef, source: Source) -> None:
         self.definition = definition
         self.source = source
-        self.value: u.Quantity | None = None
+        #: the computed value: a Quantity, a record, or an Uncertain carrying contributions
+        self.raw = None
         self.error: SheetError | None = None
         #: validity warnings of the last computation ("r is 3 r_s: …")
         self.warnings: list[str] = []
+
+    @property
+    def value(self):
+        """The value (the nominal value when it carries an uncertainty)."""
+        return uncertain.nominal(self.raw)
+
+    @property
+    def sigma(self) -> u.Quantity | None:
+        """The standard uncertainty in the value's unit (first-order propagation), or None."""
+        raw = self.raw
+        return raw.sigma if isinstance(raw, uncertain.Uncertain) else None
 
     @property
     def name(self) -> str:
@@ -91,6 +104,8 @@ class Sheet:
         self.items: list[Note | Cell] = []
         self.errors: list[SheetError] = []
         self.selection: ConstantSelection = default_selection()
+        #: `constants … uncertain`: named constants carry their published uncertainties
+        self.uncertain_constants = False
         self.evaluations = 0
         self._cells: dict[str, Cell] = {}
         self._fixed_errors: dict[str, SheetError] = {}
@@ -151,7 +166,9 @@ class Sheet:
                     hint="rename one of them or delete one", source=self.source)
                 cell.error = err
                 self._fixed_errors[statement.name] = err
-        self._scope = Scope(self._cells.keys(), self.selection)
+        self.inputs = uncertain.InputRegistry()
+        self._scope = Scope(self._cells.keys(), self.selection, self.inputs,
+                            uncertain_constants=self.uncertain_constants)
         with using(self.selection):
             for rank, (name, cell) in enumerate(self._cells.items()):
                 program = self._compile(cell.definition, self.source)
@@ -178,7 +195,9 @@ class Sheet:
                        None, statement.comment, statement.marker, statement.span)
 
     def _pin(self, statement: ConstantsDef) -> None:
-        selection, problems = parse_selection([name for name, _ in statement.sets])
+        words = [name for name, _ in statement.sets]
+        self.uncertain_constants = UNCERTAIN_FLAG in words
+        selection, problems = parse_selection(words)
         for index, message, hint in problems:
             self.errors.append(NameResolutionError(message, statement.sets[index][1], hint=hint,
                                                    source=self.source))
@@ -195,7 +214,7 @@ class Sheet:
             for name in set(path):
                 members.add(name)
                 cell = self._cells[name]
-                cell.value = None
+                cell.raw = None
                 cell.error = CycleError(
                     f"cycle: {text}", path, span=cell.definition.name_span,
                     hint="a cell cannot depend on itself, directly or through other cells",
@@ -209,7 +228,7 @@ class Sheet:
         cell = self._cells[name]
         program = self._programs[name]
         self.evaluations += 1
-        cell.value = None
+        cell.raw = None
         self._values.pop(name, None)
         fixed = self._fixed_errors.get(name)
         if fixed is not None:
@@ -242,7 +261,7 @@ class Sheet:
             found = validity.stop(handle)
         cell.warnings.extend(w for w in found if w not in cell.warnings)
         cell.error = None
-        cell.value = value
+        cell.raw = value
         self._values[name] = value
 
     def set(self, name: str, text: str, label: str | None = None) -> list[Cell]:
@@ -319,9 +338,9 @@ class Sheet:
         while heap:
             _, n = heapq.heappop(heap)
             cell = self._cells[n]
-            before_value, before_error = cell.value, cell.error
+            before_value, before_error = cell.raw, cell.error
             self._compute(n)
-            if not _same(before_value, cell.value) or _error_text(before_error) != _error_text(cell.error):
+            if not _same(before_value, cell.raw) or _error_text(before_error) != _error_text(cell.error):
                 changed.append(cell)
                 for user in self._graph.users.get(n, ()):
                     push(user)
@@ -335,6 +354,64 @@ class Sheet:
             raise KeyError(name)
         with numeric_context(), using(self.selection):
             return self._assign(name, definition.expr, definition.unit, self.source)
+
+    # -- uncertainties
+    def sigma(self, name: str) -> u.Quantity | None:
+        """The standard uncertainty of cell ``name`` (first order), or None if it has none."""
+        cell = self.cell(name)
+        if cell.error is not None:
+            raise cell.error
+        return cell.sigma
+
+    def sigma_budget(self, name: str) -> list[tuple[uncertain.Input, u.Quantity, float]]:
+        """Each independent input's contribution to cell ``name`` and its share of σ²,
+        largest first."""
+        cell = self.cell(name)
+        if cell.error is not None:
+            raise cell.error
+        raw = cell.raw
+        rows = []
+        for key, share in uncertain.budget(raw):
+            part = raw.parts[key]
+            rows.append((self.inputs.inputs[key], quantity(np.abs(part), raw.unit), share))
+        return rows
+
+    def monte_carlo(self, samples: int, seed: int | None = None, progress=None
+                    ) -> dict[str, uncertain.Summary | SheetError | object]:
+        """Evaluate every cell with its inputs drawn from their distributions, ``samples`` at
+        once; returns per cell a Summary (quantities), the value itself (records and cells
+        that depend on no input), or the error."""
+        env: dict = {}
+        out: dict = {}
+        with numeric_context(), using(self.selection):
+            uncertain.mode.start_monte_carlo(samples, seed, progress)
+            try:
+                for index, name in enumerate(self._order):
+                    cell = self._cells[name]
+                    if cell.error is not None:
+                        out[name] = cell.error
+                        continue
+                    program = self._programs[name]
+                    failed = [d for d in program.deps if d not in env]
+                    if failed:
+                        out[name] = InputFailedError(f"input `{failed[0]}` failed", failed,
+                                                     span=program.deps[failed[0]],
+                                                     source=program.source)
+                        continue
+                    try:
+                        value = run_cell(program, env)
+                    except SheetError as err:
+                        out[name] = err
+                        continue
+                    env[name] = value
+                    is_samples = isinstance(value, u.Quantity) and np.ndim(value.value) == 2 \
+                        and value.shape[0] == samples
+                    out[name] = uncertain.summarise(value) if is_samples else value
+                    if progress is not None:
+                        progress(index + 1, len(self._order))
+            finally:
+                uncertain.mode.stop_monte_carlo()
+        return out
 
     # -- access
     @property
@@ -357,6 +434,14 @@ class Sheet:
         if cell.error is not None:
             raise cell.error
         return cell.value
+
+    def uncertain(self, name: str):
+        """The raw value of cell ``name``: an :class:`~calc.uncertain.Uncertain` when it
+        carries an uncertainty (nominal, contributions, ``.sigma``), else the value."""
+        cell = self.cell(name)
+        if cell.error is not None:
+            raise cell.error
+        return cell.raw
 
     def names(self) -> list[str]:
         return list(self._cells)
@@ -398,6 +483,9 @@ def _same(a, b) -> bool:
         return False
     if is_record(a) or is_record(b):
         return is_record(a) and a.same_as(b)
+    if isinstance(a, uncertain.Uncertain) or isinstance(b, uncertain.Uncertain):
+        return isinstance(a, uncertain.Uncertain) and isinstance(b, uncertain.Uncertain) \
+            and _same(a.nominal, b.nominal) and _same(a.sigma, b.sigma)
     return a.unit == b.unit and np.shape(a.value) == np.shape(b.value) and \
         bool(np.array_equal(a.value, b.value))
 

@@ -130,6 +130,15 @@ class UnaryOp:
 
 
 @dataclass(frozen=True, slots=True)
+class PlusMinus:
+    """``value ± sigma``: a measured input with its standard uncertainty."""
+
+    value: Expr
+    sigma: Expr
+    span: Span
+
+
+@dataclass(frozen=True, slots=True)
 class Power:
     base: Expr
     exponent: Expr
@@ -138,7 +147,7 @@ class Power:
 
 Expr = Union[
     Number, Percent, Name, NamePower, Dotted, Call, Group, ArrayLiteral, Chain,
-    UnitProduct, PercentUnit, BinaryOp, UnaryOp, Power,
+    UnitProduct, PercentUnit, BinaryOp, UnaryOp, Power, PlusMinus,
 ]
 
 # ---- statements ---------------------------------------------------------------
@@ -329,6 +338,10 @@ class NodeBuilder(Transformer):
         sign, operand = children
         return UnaryOp("+", operand, token_span(sign).to(operand.span))
 
+    def plus_minus(self, children):
+        value, _sign, sigma = children
+        return PlusMinus(value, sigma, value.span.to(sigma.span))
+
     def pow(self, children):
         base, exponent = children
         return Power(base, exponent, base.span.to(exponent.span))
@@ -403,33 +416,3 @@ class NodeBuilder(Transformer):
         if isinstance(items[0], CellDef):
             return items[0]
         return self.expression_input(items)
-
-
-def walk(node):
-    """Yield ``node`` and every expression node below it (iteratively)."""
-    stack = [node]
-    while stack:
-        n = stack.pop()
-        if n is None:
-            continue
-        yield n
-        if isinstance(n, (BinaryOp,)):
-            stack += (n.right, n.left)
-        elif isinstance(n, UnaryOp):
-            stack.append(n.operand)
-        elif isinstance(n, Power):
-            stack += (n.exponent, n.base)
-        elif isinstance(n, NamePower):
-            stack += (n.exponent, n.name)
-        elif isinstance(n, Group):
-            stack.append(n.inner)
-        elif isinstance(n, (ArrayLiteral,)):
-            stack += reversed(n.items)
-        elif isinstance(n, Chain):
-            stack += reversed(n.items)
-            stack.append(n.head)
-        elif isinstance(n, UnitProduct):
-            stack += reversed(n.factors)
-        elif isinstance(n, Call):
-            stack += [k.value for k in reversed(n.keywords)]
-            stack += reversed(n.args)

@@ -148,9 +148,6 @@ def test_expression_input_for_set():
     ("check x == 1\n",
      "t.sheet:1:1: `check` statements are not part of this version of relsheet\n  check x == 1\n  ^~~~~\n"
      "  hint: `check` is reserved for a statement of a later version"),
-    ("x = 2 \u00b1 1\n",
-     "t.sheet:1:7: unexpected character `\u00b1`\n  x = 2 \u00b1 1\n        ^\n"
-     "  hint: uncertainties (`±`) are not part of this version of relsheet"),
     ("in = 3\n",
      "t.sheet:1:1: `in` is a reserved word and cannot name a cell\n  in = 3\n  ^~\n"
      "  hint: choose another name, such as `in_value`"),

@@ -29,6 +29,8 @@ class FunctionSpec:
     implementation: Callable
     signature: inspect.Signature
     summary: str
+    #: cannot take Monte Carlo sample arrays: runs once per sample
+    samplewise: bool = False
 
     def bind(self, args: tuple, kwargs: dict) -> inspect.BoundArguments:
         """Bind call arguments, with errors a sheet author understands."""
@@ -131,13 +133,18 @@ _PLANS: dict[tuple, tuple] = {}
 _loaded = False
 
 
-def register(name: str, topic: str) -> Callable[[Callable], Callable]:
-    """Decorator: make ``fn`` callable from sheets as ``name``."""
+def register(name: str, topic: str, samplewise: bool = False) -> Callable[[Callable], Callable]:
+    """Decorator: make ``fn`` callable from sheets as ``name``.
+
+    ``samplewise`` marks a function that takes single values only: under Monte Carlo it
+    runs once per sample.
+    """
 
     def decorate(fn: Callable) -> Callable:
         doc = inspect.getdoc(fn) or ""
         summary = doc.splitlines()[0] if doc else name
-        _REGISTRY[name] = FunctionSpec(name, topic, fn, inspect.signature(fn), summary)
+        _REGISTRY[name] = FunctionSpec(name, topic, fn, inspect.signature(fn), summary,
+                                       samplewise)
         return fn
 
     return decorate

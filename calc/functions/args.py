@@ -170,14 +170,12 @@ def angular_momentum(q: u.Quantity, name: str = "J"):
     return value
 
 
-def ppn(q: u.Quantity | None, name: str) -> float:
+def ppn(q: u.Quantity | None, name: str):
     """A PPN parameter (γ or β); None means its general-relativity value 1."""
     if q is None:
         return 1.0
     value = dimensionless(q, name)
-    if np.ndim(value) != 0:
-        raise ArgumentError(f"`{name}` must be a single number", name)
-    return float(value)
+    return float(value) if np.ndim(value) == 0 else value
 
 
 def speed_of_light() -> float:

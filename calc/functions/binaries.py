@@ -185,7 +185,7 @@ def peters_integral(e0: float) -> float:
     return e0 ** (48 / 19) * 19 / 48 * 0.5 * float(np.dot(weights, g))
 
 
-@register("merger_time", TOPIC)
+@register("merger_time", TOPIC, samplewise=True)
 def merger_time(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless) -> Time:
     """Time to coalescence by gravitational-wave emission (Peters 1964), eccentric orbits included.
 

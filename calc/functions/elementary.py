@@ -122,11 +122,19 @@ def absolute(x: u.Quantity) -> u.Quantity:
     return np.abs(x)
 
 
+def _reduced(fn, q: u.Quantity) -> u.Quantity:
+    """Reduce an array; under Monte Carlo (samples on a leading axis) per sample."""
+    value = q.value
+    if np.ndim(value) == 2:
+        return quantity(fn(value, axis=-1, keepdims=True), q.unit)
+    return quantity(fn(value), q.unit)
+
+
 def _extreme(values: tuple[u.Quantity, ...], reduce, pairwise, what: str) -> u.Quantity:
     if not values:
         raise ArgumentError(f"{what} needs at least one value")
     if len(values) == 1:
-        return quantity(reduce(values[0].value), values[0].unit)
+        return _reduced(reduce, values[0])
     names = [f"value {i + 1}" for i in range(len(values))]
     plain = check.same_dimension(list(values), names)
     result = plain[0]
@@ -150,16 +158,16 @@ def maximum(*values: u.Quantity) -> u.Quantity:
 @register("sum", TOPIC)
 def total(x: u.Quantity) -> u.Quantity:
     """Sum of the elements of an array."""
-    return quantity(np.sum(x.value), x.unit)
+    return _reduced(np.sum, x)
 
 
 @register("mean", TOPIC)
 def mean(x: u.Quantity) -> u.Quantity:
     """Arithmetic mean of the elements of an array."""
-    return quantity(np.mean(x.value), x.unit)
+    return _reduced(np.mean, x)
 
 
-@register("span", TOPIC)
+@register("span", TOPIC, samplewise=True)
 def span(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
     """n evenly spaced values from start to stop, both included."""
     check.scalar(start, "start")
@@ -169,7 +177,7 @@ def span(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
     return quantity(np.linspace(lo, hi, count), start.unit)
 
 
-@register("logspan", TOPIC)
+@register("logspan", TOPIC, samplewise=True)
 def logspan(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
     """n values from start to stop in equal ratios (both positive, both included)."""
     check.scalar(start, "start")

@@ -39,7 +39,7 @@ _CENTURY_S = 36525 * 86400.0
 _RATE_UNIT = u.arcsec / century
 
 
-@register("orbit", TOPIC)
+@register("orbit", TOPIC, samplewise=True)
 def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | None = None,
           long_peri: Angle | None = None, arg_peri: Angle | None = None,
           m: Mass | None = None) -> Orbit:
@@ -211,7 +211,7 @@ def _target_elements(target) -> _Elements:
     return elements
 
 
-@register("perturbation_rate", TOPIC)
+@register("perturbation_rate", TOPIC, samplewise=True)
 def perturbation_rate(M: Mass, target: Orbit, perturber: Orbit,
                       grid: Dimensionless | None = None) -> Annotated[u.Quantity, "angle per time"]:
     """Secular rate of the target's longitude of periapsis caused by one perturbing body.
@@ -250,7 +250,7 @@ def _names(records: list[Record]) -> list[str]:
     return names
 
 
-@register("periapsis_budget", TOPIC)
+@register("periapsis_budget", TOPIC, samplewise=True)
 def periapsis_budget(M: Mass, target: Orbit, perturbers: Orbits, J2: Dimensionless | None = None,
                      R: Length | None = None, J: AngularMomentum | None = None,
                      gamma: Dimensionless | None = None, beta: Dimensionless | None = None,
