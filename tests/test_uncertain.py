@@ -1,0 +1,173 @@
+"""calc.uncertain: first-order propagation (GUM) and Monte Carlo, against analytic results."""
+
+from __future__ import annotations
+
+import json
+import math
+import subprocess
+import sys
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+from calc import Sheet
+from calc.format import format_measured
+from conftest import evaluate, only_error
+
+
+def sigma(sheet, name):
+    return sheet.sigma(name).value
+
+
+# GUM (JCGM 100:2008) eq. (10) for uncorrelated inputs, eq. (13) with correlations.
+def test_sum_and_difference():
+    s = evaluate("x = 3 ± 0.3\ny = 4 ± 0.4\na = x + y\nb = x - y")
+    assert sigma(s, "a") == pytest.approx(0.5)
+    assert sigma(s, "b") == pytest.approx(0.5)
+
+
+def test_product_quotient_power():
+    s = evaluate("x = 3 ± 0.3\ny = 4 ± 0.4\np = x * y\nq = x / y\nw = x ^ 3")
+    rel = math.hypot(0.1, 0.1)
+    assert sigma(s, "p") == pytest.approx(12 * rel)
+    assert sigma(s, "q") == pytest.approx(0.75 * rel)
+    assert sigma(s, "w") == pytest.approx(27 * 3 * 0.1)     # relative: n σx/x
+
+
+def test_shared_inputs_are_one_input():
+    # GUM eq. (13): x − x has σ = 0; y = 2x and x·y are fully correlated with x
+    s = evaluate("x = 3 ± 0.3\nd = x - x\ny = 2 * x\nz = y - 2 * x\nw = x * y\nr = y / x")
+    assert sigma(s, "d") == 0 and sigma(s, "z") == 0 and sigma(s, "r") == 0
+    assert sigma(s, "w") == pytest.approx(4 * 3 * 0.3)      # d(2x²)/dx σ = 4x σ
+
+
+def test_units_after_the_uncertainty_apply_to_both():
+    s = evaluate("a = 1.438 ± 0.001 Msun\nb = (1.438 ± 0.001) Msun\nc = 1.438 Msun +/- 1 Mjup")
+    assert s["a"].unit == u.Msun and s.sigma("a").to_value(u.Msun) == pytest.approx(0.001)
+    assert s.sigma("b").to_value(u.Msun) == pytest.approx(0.001)
+    assert s.sigma("c").to_value(u.Mjup) == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize("text, message", [
+    ("x = 1 ± -0.1", "an uncertainty must not be negative"),
+    ("x = 1 km ± 1 s", "the uncertainty is `s` (time), the value `km` (length)"),
+    ("y = 2\nx = y ± 0.1", "a value with `±` is a measured input: write it in numbers and units, without cells"),
+    ("x = [1, 2] ± [0.1, 0.2, 0.3]", "3 uncertainties for 2 values"),
+])
+def test_bad_uncertainties(text, message):
+    assert only_error(evaluate(text), "x").message == message
+
+
+def test_arrays_hold_independent_inputs():
+    s = evaluate("a = [1 ± 0.1, 2 ± 0.2] km\nb = [1, 2] km ± [0.1, 0.2] km\nt = sum(a)\nu2 = sum(b)")
+    assert s.sigma("t").to_value(u.km) == pytest.approx(math.hypot(0.1, 0.2))
+    assert s.sigma("u2").to_value(u.km) == pytest.approx(math.hypot(0.1, 0.2))
+
+
+# Propagation through library functions against hand-derived partial derivatives.
+def test_through_deflection():
+    # α = 4GM/(c² b): σ_α/α = √((σ_M/M)² + (σ_b/b)²)
+    s = evaluate("M = 1 ± 0.01 Msun\nb = 2 ± 0.04 Rsun\na = deflection(M, b)")
+    assert s.sigma("a").value / s["a"].value == pytest.approx(math.hypot(0.01, 0.02), rel=1e-6)
+
+
+def test_through_orbital_period():
+    # P = 2π √(a³/GM): ∂lnP/∂ln a = 3/2, ∂lnP/∂ln M = −1/2
+    s = evaluate("M = 1 ± 0.002 Msun\na = 1 ± 0.001 AU\nP = orbital_period(M, a)")
+    assert s.sigma("P").value / s["P"].value == pytest.approx(math.hypot(1.5e-3, 1e-3), rel=1e-6)
+
+
+def test_through_periastron_rate():
+    # ω̇ ∝ (m1 + m2)^(2/3) (1 − e²)^(−1): ∂lnω̇/∂m1 = 2/(3M), ∂lnω̇/∂e = 2e/(1 − e²)
+    s = evaluate("m1 = 1.438 ± 0.01 Msun\nm2 = 1.390 Msun\nPb = 0.322997448918 day\n"
+                 "e = 0.617134 ± 0.001\nw = periastron_rate(m1, m2, Pb, e)")
+    mtot, e = 2.828, 0.617134
+    expected = math.hypot(2 / (3 * mtot) * 0.01, 2 * e / (1 - e**2) * 0.001)
+    assert s.sigma("w").value / s["w"].value == pytest.approx(expected, rel=1e-5)
+
+
+def test_sigma_budget_shares():
+    s = evaluate("x = 10 ± 3\ny = 10 ± 4\nz = x + y")
+    rows = s.sigma_budget("z")
+    assert [r[0].name for r in rows] == ["y", "x"]
+    assert [r[2] for r in rows] == pytest.approx([16 / 25, 9 / 25])
+
+
+def test_constants_uncertainties_only_on_request():
+    # CODATA 2022: G = 6.67430(15)e-11; exact by default
+    assert evaluate("x = G").sigma("x") is None
+    s = evaluate("constants uncertain\nx = G\ny = G * 2 - G")
+    assert s.sigma("x").to_value(u.m**3 / u.kg / u.s**2) == pytest.approx(1.5e-15)
+    assert s.sigma("y").value == pytest.approx(s.sigma("x").value)   # one input, used twice
+
+
+# Monte Carlo.
+def test_monte_carlo_of_a_nonlinear_function_matches_the_lognormal():
+    # y = exp(x), x ~ N(0, 1): lognormal with median 1 and 16/84% points e^∓1 (analytic);
+    # the linear method gives σ = 1 instead. 200,000 samples: percentiles to ~0.5%.
+    s = Sheet.from_text("x = 0 ± 1\ny = exp(x)\n")
+    assert s.sigma("y").value == pytest.approx(1.0)
+    y = s.monte_carlo(200_000, seed=11)["y"]
+    assert y.p50 == pytest.approx(1.0, rel=1e-2)
+    assert y.p16 == pytest.approx(math.exp(-1), rel=1e-2)
+    assert y.p84 == pytest.approx(math.exp(1), rel=1e-2)
+    assert y.mean == pytest.approx(math.exp(0.5), rel=2e-2)   # e^(1/2): the standard error is 0.3%
+
+
+def test_monte_carlo_agrees_with_linear_when_nearly_linear():
+    # small relative uncertainties: the sample std equals σ within sampling error 1/√(2N)
+    s = Sheet.from_text("a = 5 ± 0.01 km\nb = 3 ± 0.02 s\nv = a / b\nP = orbital_period(1 ± 0.001 Msun, a)\n")
+    mc = s.monte_carlo(100_000, seed=5)
+    for name in ("v", "P"):
+        assert mc[name].std == pytest.approx(s.sigma(name).value, rel=1.5e-2)
+        assert mc[name].mean == pytest.approx(s[name].value, rel=1e-4)
+
+
+def test_monte_carlo_is_reproducible_with_a_seed():
+    s = Sheet.from_text("x = 1 ± 0.1\ny = x * x\n")
+    assert s.monte_carlo(1000, seed=2)["y"].mean == s.monte_carlo(1000, seed=2)["y"].mean
+
+
+def test_monte_carlo_through_single_value_functions_and_records():
+    s = Sheet.from_text("t = orbit(1 ± 0.01 AU, 0.1)\np = orbit(3 AU, 0.05, m = 1 Mjup)\n"
+                        "r = perturbation_rate(1 Msun, t, p, grid = 32)\nm = merger_time(1.4 Msun, 1.3 Msun, 0.3 ± 0.003 d, 0.3)\n")
+    mc = s.monte_carlo(40, seed=1)
+    assert mc["r"].mean == pytest.approx(s["r"].value, rel=2e-2)
+    assert mc["m"].mean == pytest.approx(s["m"].value, rel=2e-2)
+    assert s.sigma("r").value > 0 and s.sigma("m").value > 0
+
+
+@pytest.mark.parametrize("value, sigma, text", [
+    # GUM 7.2.6 (common practice): σ to two significant digits, the value to the same place
+    (1.438, 0.001, "1.4380 ± 0.0010"),
+    (42.98, 0.123, "42.98 ± 0.12"),
+    (12345.0, 234.0, "12340 ± 230"),
+    (4.2266, 0.00999, "4.227 ± 0.010"),
+    (1.98e30, 2.1e26, "(1.98000 ± 0.00021)e30"),
+    (2.5e-5, 1.2e-7, "(2.500 ± 0.012)e-5"),
+    (3.0, 0.0, "3"),
+])
+def test_display_rounding(value, sigma, text):
+    assert format_measured(value, sigma) == text
+
+
+def test_command_line_uncertainties(tmp_path):
+    path = tmp_path / "u.sheet"
+    path.write_text("x = 2.0 ± 0.1 km\ny = 3 ± 0.4 km\nz = x + y\n")
+    base = [sys.executable, "-m", "calc", "eval", str(path)]
+    text = subprocess.run(base + ["--sigma-budget", "z"], capture_output=True, text=True)
+    assert text.returncode == 0, text.stderr
+    assert "  z  5.00 ± 0.41  km" in text.stdout.splitlines()
+    assert "uncertainty budget of `z`" in text.stdout and "94.12 %" in text.stdout
+    doc = json.loads(subprocess.run(base + ["--format", "json"], capture_output=True, text=True).stdout)
+    z = {c["name"]: c for c in doc["cells"]}["z"]
+    assert z["sigma"] == pytest.approx(math.hypot(0.1, 0.4)) and z["unit"] == "km"
+    mc = json.loads(subprocess.run(base + ["--format", "json", "--mc", "20000", "--seed", "1"],
+                                   capture_output=True, text=True).stdout)
+    z = {c["name"]: c for c in mc["cells"]}["z"]
+    assert z["sigma"] == pytest.approx(math.hypot(0.1, 0.4), rel=3e-2)
+    assert set(z["percentiles"]) == {"16", "50", "84"}
+    bad = subprocess.run(base + ["--seed", "3"], capture_output=True, text=True)
+    assert bad.returncode == 64 and "--seed goes with --mc" in bad.stderr
+    assert np.isfinite(z["value"])
