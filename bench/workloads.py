@@ -132,3 +132,41 @@ def budget_direct(grid: int = 256):
         rates[name] = np.mean((-p * cf * R + (p + r) * sf * T) / (h * e)
                               + np.tan(i / 2) * r * su * N / h)
     return rates
+
+
+# ---- P7: Monte Carlo ----------------------------------------------------------------
+
+_MC_INPUTS = [("m1", 1.35, 0.02, "Msun"), ("m2", 1.25, 0.02, "Msun"), ("a", 1.0, 0.01, "AU"),
+              ("ecc", 0.2, 0.01, ""), ("b", 2.0, 0.05, "Rsun")]
+
+
+def mc_sheet(samples: int | None = None, cells: int = 50) -> str:
+    """50 cells fed by 5 uncertain inputs. With ``samples``, the inputs are instead
+    deterministic arrays of that many values (the baseline of P7)."""
+    lines = []
+    for name, value, sigma, unit in _MC_INPUTS:
+        if samples is None:
+            lines.append(f"{name} = {value} ± {sigma} {unit}".rstrip())
+        else:
+            lines.append(f"{name} = span({value - sigma} {unit}, {value + sigma} {unit}, {samples})"
+                         .replace(" ,", ","))
+    derived = [
+        "rate{k} = periapsis_rate(m1 + m2, a, ecc)",
+        "bend{k} = deflection(m1, b)",
+        "period{k} = orbital_period(m1 + m2, a * (1 + {k} / 100))",
+        "mix{k} = rate{k} * period{k} in arcsec",
+        "speed{k} = orbital_speed(m1, a, a * 1.01)",
+        "ratio{k} = bend{k} / (1 arcsec) + ecc^2 * {k}",
+        "clock{k} = clock_rate(m2, a, speed{k})",
+        "sum{k} = ratio{k} + clock{k} * 1e8 + sqrt(ecc)",
+        "decay{k} = orbital_decay_rate(m1, m2, period{k}, ecc)",
+    ]
+    k = 0
+    while len(lines) < cells:
+        lines.append(derived[k % len(derived)].format(k=k // len(derived)))
+        k += 1
+        if k % len(derived) == 0 and len(lines) + len(derived) > cells:
+            break
+    while len(lines) < cells:
+        lines.append(f"extra{len(lines)} = m1 * {len(lines)} + m2")
+    return "\n".join(lines) + "\n"

@@ -451,16 +451,33 @@ def budget(value) -> list[tuple[int, float]]:
     return sorted(((k, s / total) for k, s in squares.items()), key=lambda kv: -kv[1])
 
 
-@dataclass
 class Summary:
-    """Monte Carlo statistics of one cell, in its unit."""
+    """Monte Carlo statistics of one cell, in its unit: mean and standard deviation at once,
+    the 16/50/84 % points when first asked for (a partition of the samples each)."""
 
-    mean: object
-    std: object
-    p16: object
-    p50: object
-    p84: object
-    unit: u.UnitBase
+    def __init__(self, values: np.ndarray, unit: u.UnitBase) -> None:
+        self.values = values
+        self.unit = unit
+        self.mean = np.mean(values, axis=0)
+        self.std = np.std(values, axis=0, ddof=1)
+        self._points = None
+
+    def _percentiles(self):
+        if self._points is None:
+            self._points = np.percentile(self.values, [16, 50, 84], axis=0)
+        return self._points
+
+    @property
+    def p16(self):
+        return self._percentiles()[0]
+
+    @property
+    def p50(self):
+        return self._percentiles()[1]
+
+    @property
+    def p84(self):
+        return self._percentiles()[2]
 
 
 def summarise(samples: u.Quantity) -> Summary:
@@ -468,6 +485,4 @@ def summarise(samples: u.Quantity) -> Summary:
     values = np.asarray(samples.value)
     if values.ndim == 2 and values.shape[1] == 1:
         values = values[:, 0]
-    p16, p50, p84 = np.percentile(values, [16, 50, 84], axis=0)
-    return Summary(np.mean(values, axis=0), np.std(values, axis=0, ddof=1), p16, p50, p84,
-                   samples.unit)
+    return Summary(values, samples.unit)
