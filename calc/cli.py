@@ -216,7 +216,9 @@ def render_sigma_budget(sheet, name: str, digits: int) -> str:
 
 def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
     """Headings, then aligned name / value / unit; errors inline."""
-    from .format import format_quantity, format_with_sigma, record_rows, record_summary
+    import numpy as np
+
+    from .format import format_point, format_quantity, format_with_sigma, record_rows, record_summary
     from .records import is_record
     from .sheet import Cell
     from .uncertain import Summary
@@ -231,9 +233,14 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
             elif isinstance(summary, Summary):
                 rows.append(("cell", item.name, format_with_sigma(summary.mean, summary.std),
                              unit_string(summary.unit)))
-                quantiles = " / ".join(format_with_sigma(q, summary.std)
-                                       .split(" ±")[0].lstrip("(").replace("[", "")
-                                       for q in (summary.p16, summary.p50, summary.p84))
+                points = (summary.p16, summary.p50, summary.p84)
+                if np.ndim(summary.mean) == 0:
+                    quantiles = " / ".join(format_point(q, summary.std) for q in points)
+                else:
+                    quantiles = " / ".join(
+                        "[" + ", ".join(format_point(v, s) for v, s in
+                                        zip(np.ravel(q)[:6], np.ravel(summary.std)[:6])) + "]"
+                        for q in points)
                 rows.append(("warning", f"16 / 50 / 84 %: {quantiles}"))
             elif is_record(item.raw):
                 rows.append(("cell", item.name, record_summary(item.raw), ""))

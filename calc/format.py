@@ -70,6 +70,17 @@ def format_measured(value: float, sigma: float) -> str:
     return f"({text})e{k}" if k else text
 
 
+def format_point(value: float, sigma: float) -> str:
+    """A value rounded as it would be beside σ (for percentiles): `1.008e9`."""
+    text = format_measured(value, sigma)
+    if " ± " not in text:
+        return text
+    head, tail = text.split(" ± ")
+    if head.startswith("("):
+        return head[1:] + tail.split(")")[1]
+    return head
+
+
 def format_with_sigma(value, sigma, digits: int = DEFAULT_DIGITS) -> str:
     if np.ndim(value) == 0:
         return format_measured(value, sigma)

@@ -434,6 +434,8 @@ def per_sample(function, values: tuple):
         results.append(function(*(_take(v, k) for v in values)))
         if mode.progress is not None and k % 256 == 0:
             mode.progress(k, mode.samples)
+    if mode.progress is not None:
+        mode.progress(mode.samples, mode.samples)
     return _stack(results)
 
 
