@@ -1,6 +1,7 @@
 """The ``relsheet`` command line.
 
-Exit codes: 0 fine; 2 the sheet has errors; 64 the command line was used
+Exit codes: 0 fine; 1 a check failed (verify) or markers are stale
+(annotate --stale); 2 the sheet has errors; 64 the command line was used
 wrongly; 70 an internal error (a bug: ``--debug`` shows the traceback).
 Errors print as ``file:line:col: message``, the line, a caret and a hint;
 never a Python traceback unless ``--debug`` is given.
@@ -16,6 +17,7 @@ import traceback
 from .errors import SheetError, UsageError
 
 EXIT_OK = 0
+EXIT_CHECK_FAILED = 1
 EXIT_SHEET_ERRORS = 2
 EXIT_USAGE = 64
 EXIT_INTERNAL = 70
@@ -52,6 +54,15 @@ def build_parser() -> argparse.ArgumentParser:
                     help="list each input's share of the uncertainty of CELL")
     ev.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
+    vf = commands.add_parser("verify", help="run the sheets' checks; exit 1 if any fails",
+                             description="Run the `check` lines of each sheet. Prints every "
+                                         "failing check with both sides and the tolerance, then "
+                                         "`N passed, N failed`. Exit 1 if a check fails, 2 if a "
+                                         "sheet has errors.")
+    vf.add_argument("files", metavar="FILE", nargs="+", help="sheets (.sheet)")
+    vf.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                    help="show Python tracebacks of internal errors")
+
     fn = commands.add_parser("funcs", help="list the functions, or show one",
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
@@ -275,7 +286,45 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
             line = f"  {name:<{name_width}}  {value:<{value_width}}  {unit}" if unit \
                 else f"  {name:<{name_width}}  {value}"
             lines.append(line.rstrip())
+    if sheet.checks:
+        lines += ["", "Checks"]
+        for result in sheet.checks:
+            lines.append(f"  {'passed' if result.passed else 'FAILED'}  line {result.line}  "
+                         f"{result.text}")
+            if not result.passed:
+                lines.append(f"          {result.detail}")
     return "\n".join(lines)
+
+
+def cmd_verify(args) -> int:
+    from .sheet import Sheet
+
+    passed = failed = 0
+    broken = False
+    for path in args.files:
+        try:
+            sheet = Sheet.load(path)
+        except SheetError as err:
+            print(err.render(), file=sys.stderr)
+            broken = True
+            continue
+        errors = sheet.all_errors()
+        if errors:
+            broken = True
+            _report(errors, args.debug)
+        for result in sheet.checks:
+            if result.passed:
+                passed += 1
+                continue
+            failed += 1
+            print(f"{path}:{result.line}: FAILED {result.text}")
+            print(f"    {result.detail}")
+        if not sheet.checks:
+            print(f"{path}: no checks")
+    print(f"{passed} passed, {failed} failed")
+    if broken:
+        return EXIT_SHEET_ERRORS
+    return EXIT_CHECK_FAILED if failed else EXIT_OK
 
 
 def cmd_funcs(args) -> int:
@@ -285,7 +334,7 @@ def cmd_funcs(args) -> int:
     return EXIT_OK
 
 
-_COMMANDS = {"eval": cmd_eval, "funcs": cmd_funcs}
+_COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "funcs": cmd_funcs}
 
 
 def run() -> None:

@@ -110,7 +110,8 @@ def sheet_record(sheet: Sheet, monte_carlo: dict | None = None) -> dict:
         "sheet": sheet.source.label,
         "constants": sheet.selection.names,
         "cells": cells,
-        "checks": [],
+        "checks": [{"line": r.line, "text": r.text, "passed": r.passed, "detail": r.detail}
+                   for r in sheet.checks],
     }
     if monte_carlo is not None:
         record["monte_carlo"] = {"samples": sheet_samples(monte_carlo)}

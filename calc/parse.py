@@ -36,6 +36,8 @@ _TERMINAL_WORDS = {
     "EQUAL": "`=`", "PLUS": "`+`", "MINUS": "`-`", "SLASH": "`/`", "_TIMES": "`*`",
     "_POW": "`^`", "IN": "`in`", "_NL": "the end of the line", "$END": "the end of the input",
     "HASH_TEXT": "a comment", "PERCENT_SIGN": "`%`", "CONSTANTS": "`constants`", "PPN": "`ppn`", "PM": "`±`",
+    "CHECK": "`check`", "WITHIN": "`within`",
+    "EQEQ": "`==`", "LE": "`<=`", "GE": "`>=`", "LT": "`<`", "GT": "`>`",
 }
 
 
@@ -165,7 +167,7 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> She
         return SheetSyntaxError(f"`{word}` is a reserved word and cannot name a cell",
                                 Span(tok.line, column, tok.line, column + len(word)),
                                 hint=f"choose another name, such as `{word}_value`")
-    if first_word in RESERVED_WORDS - {"in", "const", "constants", "ppn"}:
+    if first_word in RESERVED_WORDS - {"in", "const", "constants", "ppn", "check", "within"}:
         column = len(lines[tok.line - 1]) - len(lines[tok.line - 1].lstrip()) + 1
         return SheetSyntaxError(
             f"`{first_word}` statements are not part of this version of relsheet",
@@ -202,7 +204,6 @@ def _character_hint(ch: str) -> str | None:
         "'": "text in quotes is not part of this version of relsheet",
         "$": "cells are named by their names, without `$`",
         "\u2013": "use `-` for minus",
-        "=": "`==` comparisons are not part of this version of relsheet",
     }.get(ch)
 
 

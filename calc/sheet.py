@@ -19,6 +19,7 @@ import astropy.units as u
 import numpy as np
 
 from . import uncertain, validity
+from .checks import CheckResult, compile_check, run_check
 from .constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection, using
 from .errors import (
     CycleError,
@@ -35,7 +36,7 @@ from .parse import parse_expression, parse_sheet
 from .records import is_record
 from .scope import PPN_PARAMETERS, Scope
 from .sheetfile import read_sheet
-from .syntax import CellDef, ConstantsDef, Note, PPNDef
+from .syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef
 from .units import quantity
 
 
@@ -115,6 +116,10 @@ class Sheet:
         self._position: dict[str, int] = {}
         self._cycle_members: set[str] = set()
         self._original: dict[str, CellDef] = {}
+        self._check_defs: list[CheckDef] = []
+        self._check_programs: list = []
+        #: results of the sheet's `check` lines, in file order
+        self.checks: list[CheckResult] = []
         with numeric_context():
             self._build()
 
@@ -146,6 +151,8 @@ class Sheet:
                 self._pin(statement)
             elif isinstance(statement, Note):
                 self.items.append(statement)
+            elif isinstance(statement, CheckDef):
+                self._check_defs.append(statement)
             else:
                 if isinstance(statement, PPNDef):
                     statement = self._ppn_cell(statement)
@@ -177,6 +184,13 @@ class Sheet:
             self._reorder()
             for name in self._order:
                 self._compute(name)
+            self._check_programs = [compile_check(d, self._scope, self.source)
+                                    for d in self._check_defs]
+            self._run_checks()
+
+    def _run_checks(self) -> None:
+        failed = {n for n, c in self._cells.items() if c.error is not None}
+        self.checks = [run_check(p, self._values, failed) for p in self._check_programs]
 
     def _compile(self, definition: CellDef, source: Source, keep=None) -> CellProgram:
         if definition.name.startswith("ppn."):
@@ -274,7 +288,9 @@ class Sheet:
         source = Source(label or f"--set {name}", text)
         with numeric_context(), using(self.selection):
             line = parse_expression(text, source)
-            return self._assign(name, line.expr, line.unit, source)
+            changed = self._assign(name, line.expr, line.unit, source)
+            self._run_checks()
+            return changed
 
     def _assign(self, name: str, expr, unit, source: Source) -> list[Cell]:
         old_cell = self._cells.get(name)
@@ -353,7 +369,9 @@ class Sheet:
         if definition is None:
             raise KeyError(name)
         with numeric_context(), using(self.selection):
-            return self._assign(name, definition.expr, definition.unit, self.source)
+            changed = self._assign(name, definition.expr, definition.unit, self.source)
+            self._run_checks()
+            return changed
 
     # -- uncertainties
     def sigma(self, name: str) -> u.Quantity | None:
@@ -469,11 +487,16 @@ class Sheet:
                     continue
                 reported_cycles.add(key)
             found.append(err)
+        for result in self.checks:
+            if result.error is not None and not isinstance(result.error, InputFailedError):
+                found.append(result.error)
         return found
 
     @property
     def ok(self) -> bool:
-        return not self.errors and all(c.error is None for c in self.cells)
+        """No errors anywhere (a failing check is not an error; see :attr:`checks`)."""
+        return not self.errors and all(c.error is None for c in self.cells) \
+            and all(r.error is None for r in self.checks)
 
 
 def _same(a, b) -> bool:

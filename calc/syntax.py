@@ -189,6 +189,18 @@ class PPNDef:
 
 
 @dataclass(frozen=True, slots=True)
+class CheckDef:
+    """``check left OP right [within tolerance]``."""
+
+    left: Expr
+    op: str          # == < <= > >=
+    right: Expr
+    tolerance: Expr | None
+    text: str
+    span: Span
+
+
+@dataclass(frozen=True, slots=True)
 class Note:
     """``## heading`` or ``# note`` on a line of its own."""
 
@@ -206,10 +218,10 @@ class ExpressionLine:
     span: Span
 
 
-Statement = Union[CellDef, ConstantsDef, PPNDef, Note]
+Statement = Union[CellDef, ConstantsDef, PPNDef, CheckDef, Note]
 
 #: Words that start statements now or in later versions of the language.
-RESERVED_WORDS = frozenset({"constants", "use", "check", "ppn", "plot", "in", "const"})
+RESERVED_WORDS = frozenset({"constants", "use", "check", "ppn", "plot", "in", "const", "within"})
 
 # ---- the builder ----------------------------------------------------------------
 
@@ -394,6 +406,16 @@ class NodeBuilder(Transformer):
                 comment, marker = split_trailer(item.value)
         return PPNDef(tok.value, token_span(tok), expr, comment, marker,
                       token_span(keyword).to(expr.span))
+
+    def check(self, children):
+        keyword, left, op, right, *rest = children
+        tolerance = None
+        for item in rest:
+            if item is None or (isinstance(item, Token) and item.type in ("WITHIN", "HASH_TEXT")):
+                continue
+            tolerance = item
+        end = (tolerance or right).span
+        return CheckDef(left, op.value, right, tolerance, "", token_span(keyword).to(end))
 
     def note(self, children):
         tok = children[0]
