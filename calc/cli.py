@@ -63,6 +63,19 @@ def build_parser() -> argparse.ArgumentParser:
     vf.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
 
+    an = commands.add_parser("annotate", help="write each cell's result into the file as `#=`",
+                             description="Write each cell's result after its line as a trailing "
+                                         "`#= value unit` marker, changing nothing else; "
+                                         "atomic. With --stale, write nothing and exit 1 when "
+                                         "a marker is out of date.")
+    an.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    an.add_argument("--stale", action="store_true",
+                    help="only report whether the markers are out of date (exit 1 if so)")
+    an.add_argument("--digits", type=int, default=6, metavar="N",
+                    help="significant digits of the markers (default 6)")
+    an.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                    help="show Python tracebacks of internal errors")
+
     fn = commands.add_parser("funcs", help="list the functions, or show one",
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
@@ -327,6 +340,27 @@ def cmd_verify(args) -> int:
     return EXIT_CHECK_FAILED if failed else EXIT_OK
 
 
+def cmd_annotate(args) -> int:
+    from .annotate import annotate_file
+
+    if not 1 <= args.digits <= 17:
+        raise UsageError(f"--digits must be between 1 and 17, got {args.digits}")
+    sheet, changed = annotate_file(args.file, args.digits, stale_only=args.stale)
+    _report(sheet.all_errors(), args.debug)
+    if args.stale:
+        if changed:
+            lines = ", ".join(map(str, changed[:12])) + (", …" if len(changed) > 12 else "")
+            print(f"{args.file}: markers out of date on line{'s' if len(changed) > 1 else ''} "
+                  f"{lines}; run `relsheet annotate {args.file}`")
+            return EXIT_CHECK_FAILED
+        print(f"{args.file}: markers up to date")
+    elif changed:
+        print(f"{args.file}: {len(changed)} marker{'s' if len(changed) != 1 else ''} written")
+    else:
+        print(f"{args.file}: markers up to date")
+    return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
+
+
 def cmd_funcs(args) -> int:
     from .catalog import entry, listing
 
@@ -334,7 +368,8 @@ def cmd_funcs(args) -> int:
     return EXIT_OK
 
 
-_COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "funcs": cmd_funcs}
+_COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
+             "funcs": cmd_funcs}
 
 
 def run() -> None:

@@ -48,3 +48,37 @@ def read_sheet(path: str | Path) -> Source:
     except OSError as exc:
         raise InputError(f"cannot read {label}: {exc.strerror}", source=Source(label, "")) from None
     return decode_sheet(data, label)
+
+
+def atomic_write(path: str | Path, data: bytes) -> None:
+    """Replace ``path`` with ``data`` so that a crash leaves the old file or the new one,
+    never half of either: a temporary file in the same folder, fsync, then rename."""
+    import os
+    import tempfile
+
+    target = Path(path)
+    folder = target.parent
+    mode = target.stat().st_mode if target.exists() else None
+    handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(handle, "wb") as out:
+            out.write(data)
+            out.flush()
+            os.fsync(out.fileno())
+        if mode is not None:
+            os.chmod(temporary, mode & 0o7777)
+        os.replace(temporary, target)
+    except BaseException:
+        try:
+            os.unlink(temporary)
+        except FileNotFoundError:
+            pass
+        raise
+    try:  # make the rename itself durable
+        directory = os.open(folder, os.O_RDONLY)
+        try:
+            os.fsync(directory)
+        finally:
+            os.close(directory)
+    except OSError:
+        pass
