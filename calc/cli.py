@@ -76,6 +76,17 @@ def build_parser() -> argparse.ArgumentParser:
     an.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
 
+    ex = commands.add_parser("export", help="write a report, a table or LaTeX macros",
+                             description="Export the evaluated sheet: a Markdown report, CSV "
+                                         "(name,value,sigma,unit), JSON (as eval), or LaTeX "
+                                         "macros (siunitx) for papers.")
+    ex.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    ex.add_argument("--to", required=True, choices=["md", "csv", "json", "tex"],
+                    help="the format")
+    ex.add_argument("-o", dest="output", metavar="OUT", help="write to OUT (default: stdout)")
+    ex.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                    help="show Python tracebacks of internal errors")
+
     fn = commands.add_parser("funcs", help="list the functions, or show one",
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
@@ -361,6 +372,25 @@ def cmd_annotate(args) -> int:
     return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
 
 
+def cmd_export(args) -> int:
+    from . import export
+    from .sheet import Sheet
+    from .sheetfile import atomic_write
+
+    sheet = Sheet.load(args.file)
+    writer = {"md": export.to_markdown, "csv": export.to_csv, "json": export.to_json,
+              "tex": export.to_tex}[args.to]
+    text = writer(sheet)
+    if not text.endswith("\n"):
+        text += "\n"
+    if args.output:
+        atomic_write(args.output, text.encode("utf-8"))
+    else:
+        sys.stdout.write(text)
+    _report(sheet.all_errors(), args.debug)
+    return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
+
+
 def cmd_funcs(args) -> int:
     from .catalog import entry, listing
 
@@ -369,7 +399,7 @@ def cmd_funcs(args) -> int:
 
 
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
-             "funcs": cmd_funcs}
+             "export": cmd_export, "funcs": cmd_funcs}
 
 
 def run() -> None:

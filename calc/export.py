@@ -124,3 +124,173 @@ def sheet_samples(monte_carlo: dict) -> int | None:
 
 def to_json(sheet: Sheet, monte_carlo: dict | None = None) -> str:
     return json.dumps(sheet_record(sheet, monte_carlo), ensure_ascii=False, indent=2)
+
+
+# ---- CSV -----------------------------------------------------------------------------
+
+
+def _number_text(value) -> str:
+    if np.ndim(value) == 0:
+        return repr(float(value))
+    return " ".join(repr(float(v)) for v in np.ravel(value))
+
+
+def to_csv(sheet: Sheet) -> str:
+    """``name,value,sigma,unit`` with a header; record fields as ``name.field`` rows, array
+    values as space-separated numbers, failed cells with empty fields."""
+    import csv
+    import io
+
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(["name", "value", "sigma", "unit"])
+
+    def row(name: str, q) -> None:
+        sigma = _number_text(q.sigma_value()) if isinstance(q, Uncertain) else ""
+        writer.writerow([name, _number_text(q.value), sigma, unit_string(q.unit)])
+
+    for cell in sheet.cells:
+        raw = cell.raw
+        if raw is None:
+            writer.writerow([cell.name, "", "", ""])
+        elif isinstance(raw, RecordList):
+            for index, record in enumerate(raw.items):
+                for field, q in record.fields.items():
+                    row(f"{cell.name}[{index}].{field}", q)
+        elif is_record(raw):
+            for field, q in raw.fields.items():
+                row(f"{cell.name}.{field}", q)
+        else:
+            row(cell.name, raw)
+    return buffer.getvalue()
+
+
+# ---- Markdown ------------------------------------------------------------------------
+
+
+def _markdown_value(cell: Cell) -> tuple[str, str]:
+    from .format import format_quantity, record_summary
+
+    if cell.error is not None:
+        return f"**error:** {cell.error.message}", ""
+    if is_record(cell.raw):
+        return record_summary(cell.raw), ""
+    return format_quantity(cell.raw)
+
+
+def _cell_text(text: str) -> str:
+    """Text safe inside a Markdown table cell."""
+    return text.replace("|", "\\|")
+
+
+def to_markdown(sheet: Sheet) -> str:
+    """A report: headings, notes as text, tables of cells, the checks, the constant sets."""
+    from .syntax import Note
+
+    lines = [f"# {sheet.source.label}", "",
+             f"Constants: {', '.join(sheet.selection.names)}"
+             + (" (with their published uncertainties)" if sheet.uncertain_constants else ""), ""]
+    table_open = False
+    for item in sheet.items:
+        if isinstance(item, Note):
+            if table_open:
+                lines.append("")
+                table_open = False
+            lines += [f"## {item.text}" if item.heading else item.text, ""]
+            continue
+        if not table_open:
+            lines += ["| cell | value | unit |", "|---|---|---|"]
+            table_open = True
+        value, unit = _markdown_value(item)
+        lines.append(f"| `{item.name}` | {_cell_text(value)} | {unit} |")
+        for warning in item.warnings:
+            lines.append(f"| | *warning: {_cell_text(warning)}* | |")
+    if table_open:
+        lines.append("")
+    if sheet.checks:
+        lines += ["## Checks", ""]
+        for result in sheet.checks:
+            mark = "passed" if result.passed else "**FAILED**"
+            lines.append(f"- {mark} (line {result.line}): `{result.text}` — {result.detail}")
+        lines.append("")
+    return "\n".join(lines)
+
+
+# ---- LaTeX ---------------------------------------------------------------------------
+
+_DIGITS = "Zero One Two Three Four Five Six Seven Eight Nine".split()
+
+
+def macro_name(cell_name: str) -> str:
+    """The LaTeX macro of a cell: ``\\rs`` and the name in CamelCase, letters only.
+
+    `adv_rate` → ``\\rsAdvRate``, `m1` → ``\\rsMOne``, `ppn.gamma` → ``\\rsPpnGamma``,
+    `ω_dot` → ``\\rsOmegaDot`` (other letters by their Unicode name), digits spelled out.
+    """
+    import unicodedata
+
+    parts: list[str] = []
+    word = ""
+    for ch in cell_name:
+        if ch.isascii() and ch.isalpha():
+            word += ch
+        elif ch.isdigit():
+            if word:
+                parts.append(word)
+            word = ""
+            parts.append(_DIGITS[int(ch)] if ch.isascii() else "")
+        elif ch.isalpha():
+            if word:
+                parts.append(word)
+            word = ""
+            parts.append(unicodedata.name(ch, "X").split()[-1].lower())
+        else:
+            if word:
+                parts.append(word)
+            word = ""
+    if word:
+        parts.append(word)
+    return "\\rs" + "".join(p[:1].upper() + p[1:] for p in parts if p)
+
+
+def _siunitx_unit(unit) -> str:
+    """astropy's generic unit string in siunitx's literal form (`m3 / s2` → `m^3/s^2`)."""
+    import re
+
+    text = unit_string(unit)
+    if text == "%":
+        return "\\percent"
+    text = re.sub(r"([A-Za-z])(-?\d+(\.\d+)?)", r"\1^{\2}", text)
+    text = text.replace(" / ", "/").replace("(", "").replace(")", "").replace(" ", ".")
+    return text
+
+
+def to_tex(sheet: Sheet) -> str:
+    """One ``\\newcommand`` per cell: ``\\qty{value}{unit}`` (siunitx), ``\\num`` when
+    dimensionless, ``\\pm`` for uncertainties; arrays and records are left out with a
+    comment. Two cells with the same macro name are an error naming both."""
+    from .errors import SheetError
+    from .format import format_magnitude, format_quantity
+
+    seen: dict[str, str] = {}
+    lines = [f"% relsheet: {sheet.source.label} (constants {', '.join(sheet.selection.names)})",
+             "% needs \\usepackage{siunitx}"]
+    for cell in sheet.cells:
+        name = macro_name(cell.name)
+        if name in seen:
+            raise SheetError(f"cells `{seen[name]}` and `{cell.name}` would both be the LaTeX "
+                             f"macro {name}", cell.definition.name_span,
+                             hint="rename one of them", source=cell.source)
+        seen[name] = cell.name
+        raw = cell.raw
+        if raw is None or is_record(raw) or np.ndim(raw.value) != 0:
+            what = "failed" if raw is None else "is a record" if is_record(raw) else "is an array"
+            lines.append(f"% {cell.name} {what}: no macro")
+            continue
+        number = format_quantity(raw)[0] if isinstance(raw, Uncertain) else \
+            format_magnitude(raw.value, 6)
+        number = number.replace(" ± ", " \\pm ").replace("(", "").replace(")", "")
+        unit = _siunitx_unit(raw.unit)
+        body = f"\\qty{{{number}}}{{{unit}}}" if unit else f"\\num{{{number}}}"
+        lines.append(f"\\newcommand{{{name}}}{{{body}}}")
+    return "\n".join(lines) + "\n"

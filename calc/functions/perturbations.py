@@ -59,7 +59,7 @@ def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | Non
     """
     for value, name in ((a, "a"), (e, "e")):
         check.scalar(value, name)
-    semi = check.length(a, "a")
+    check.length(a, "a")
     ecc = check.eccentricity(e)
     angles = {}
     for value, name in ((i, "i"), (node, "node"), (long_peri, "long_peri"), (arg_peri, "arg_peri")):
@@ -74,14 +74,27 @@ def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | Non
         omega = angles["long_peri"] - omega_node
     else:
         omega = angles.get("arg_peri", 0.0)
-    deg = 180 / np.pi
+    # fields keep the numbers as written where the unit allows (0.061 AU stays 0.061 AU)
+    def degrees(q, radians):
+        return quantity(check.value_in(q, u.deg), u.deg) if q is not None else \
+            quantity(radians * 180 / np.pi, u.deg)
+
+    given = {"i": i, "node": node, "long_peri": long_peri, "arg_peri": arg_peri}
+    i_deg = degrees(given["i"], inc)
+    node_deg = degrees(given["node"], omega_node)
+    if long_peri is not None:
+        long_deg = degrees(long_peri, 0.0)
+        arg_deg = quantity(long_deg.value - node_deg.value, u.deg)
+    else:
+        arg_deg = degrees(arg_peri, omega)
+        long_deg = quantity(node_deg.value + arg_deg.value, u.deg)
     fields = {
-        "a": quantity(semi / u.AU.to(u.m), u.AU),
+        "a": quantity(check.value_in(a, u.AU), u.AU),
         "e": quantity(float(ecc)),
-        "i": quantity(inc * deg, u.deg),
-        "node": quantity(omega_node * deg, u.deg),
-        "arg_peri": quantity(omega * deg, u.deg),
-        "long_peri": quantity((omega_node + omega) * deg, u.deg),
+        "i": i_deg,
+        "node": node_deg,
+        "arg_peri": arg_deg,
+        "long_peri": long_deg,
     }
     if m is not None:
         check.scalar(m, "m")
