@@ -87,6 +87,32 @@ def build_parser() -> argparse.ArgumentParser:
     ex.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
 
+    dp = commands.add_parser("deps", help="show which cells a cell uses, or which use it",
+                             description="Print the cells CELL depends on as a tree (all cells "
+                                         "and their direct inputs without CELL); --users turns "
+                                         "it around.")
+    dp.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    dp.add_argument("cell", metavar="CELL", nargs="?", help="a cell name")
+    dp.add_argument("--users", action="store_true", help="the cells that use CELL instead")
+
+    df = commands.add_parser("diff", help="compare two evaluations",
+                             description="Compare the results of two evaluations: the sheet "
+                                         "under two constant sets, at a git revision, or "
+                                         "against another file. Only changed cells unless --all.")
+    df.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    df.add_argument("other", metavar="OTHER_FILE", nargs="?", help="a second sheet")
+    df.add_argument("--constants", metavar="SETS", help="old constant sets, e.g. codata2014")
+    df.add_argument("--against", metavar="SETS", help="new constant sets, e.g. codata2018")
+    df.add_argument("--rev", metavar="GITREV", help="compare with the file at a git revision")
+    df.add_argument("--all", action="store_true", help="show unchanged cells too")
+
+    wt = commands.add_parser("watch", help="re-evaluate on every save",
+                             description="Re-evaluate the sheet whenever it is saved and print "
+                                         "the cells that changed. Ctrl-C stops.")
+    wt.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    wt.add_argument("--interval", type=float, default=0.5, metavar="SECONDS",
+                    help="how often to look at the file (default 0.5 s)")
+
     fn = commands.add_parser("funcs", help="list the functions, or show one",
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
@@ -391,6 +417,86 @@ def cmd_export(args) -> int:
     return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
 
 
+def cmd_deps(args) -> int:
+    from .compare import dependency_table, dependency_tree
+    from .sheet import Sheet
+
+    sheet = Sheet.load(args.file)
+    if args.cell is None:
+        print(dependency_table(sheet, args.users))
+        return EXIT_OK
+    if args.cell not in sheet:
+        from .units import close_matches, did_you_mean
+
+        raise UsageError(f"the sheet has no cell `{args.cell}`",
+                         hint=did_you_mean(close_matches(args.cell, sheet.names())))
+    print(dependency_tree(sheet, args.cell, args.users))
+    return EXIT_OK
+
+
+def cmd_diff(args) -> int:
+    from .compare import diff, sheet_at_revision
+    from .sheet import Sheet
+
+    modes = sum(x is not None for x in (args.other, args.rev)) + bool(args.constants or args.against)
+    if modes != 1:
+        raise UsageError("diff compares one way: OTHER_FILE, --rev GITREV, or "
+                         "--constants SETS --against SETS")
+    if args.constants or args.against:
+        if not (args.constants and args.against):
+            raise UsageError("--constants and --against go together")
+        old = Sheet.load(args.file, constants=args.constants.replace(",", " ").split())
+        new = Sheet.load(args.file, constants=args.against.replace(",", " ").split())
+        labels = (args.constants, args.against)
+    elif args.rev is not None:
+        old = sheet_at_revision(args.file, args.rev)
+        new = Sheet.load(args.file)
+        labels = (args.rev, "working copy")
+    else:
+        old, new = Sheet.load(args.file), Sheet.load(args.other)
+        labels = (args.file, args.other)
+    print(diff(old, new, args.all, labels))
+    _report([*old.errors, *new.errors], False)
+    return EXIT_OK if not (old.errors or new.errors) else EXIT_SHEET_ERRORS
+
+
+def cmd_watch(args) -> int:
+    import time
+    from pathlib import Path
+
+    from .compare import diff
+    from .sheet import Sheet
+
+    path = Path(args.file)
+    sheet = Sheet.load(path)
+    print(render_text(sheet, 6), flush=True)
+    _report(sheet.all_errors(), False)
+
+    def stamp():
+        try:
+            info = path.stat()
+            return info.st_mtime_ns, info.st_size
+        except OSError:
+            return None
+
+    seen = stamp()
+    while True:
+        time.sleep(max(0.05, args.interval))
+        now = stamp()
+        if now == seen or now is None:
+            continue
+        seen = now
+        try:
+            fresh = Sheet.load(path)
+        except SheetError as err:
+            print(err.render(), file=sys.stderr, flush=True)
+            continue
+        print(f"\n{time.strftime('%H:%M:%S')}  {path}", flush=True)
+        print(diff(sheet, fresh, labels=("before", "after")), flush=True)
+        _report(fresh.all_errors(), False)
+        sheet = fresh
+
+
 def cmd_funcs(args) -> int:
     from .catalog import entry, listing
 
@@ -399,7 +505,8 @@ def cmd_funcs(args) -> int:
 
 
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
-             "export": cmd_export, "funcs": cmd_funcs}
+             "export": cmd_export, "deps": cmd_deps, "diff": cmd_diff, "watch": cmd_watch,
+             "funcs": cmd_funcs}
 
 
 def run() -> None:

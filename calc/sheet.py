@@ -100,8 +100,10 @@ def numeric_context():
 class Sheet:
     """A parsed and evaluated sheet. Build with :meth:`load` or :meth:`from_text`."""
 
-    def __init__(self, source: Source) -> None:
+    def __init__(self, source: Source, constants: list[str] | None = None) -> None:
+        """``constants`` (words of a `constants` line) replaces the sheet's own pinning."""
         self.source = source
+        self._constants_override = constants
         self.items: list[Note | Cell] = []
         self.errors: list[SheetError] = []
         self.selection: ConstantSelection = default_selection()
@@ -125,9 +127,9 @@ class Sheet:
 
     # -- construction
     @classmethod
-    def load(cls, path: str | Path) -> Sheet:
+    def load(cls, path: str | Path, constants: list[str] | None = None) -> Sheet:
         """Read and evaluate a sheet file. Raises InputError if it cannot be read."""
-        return cls(read_sheet(path))
+        return cls(read_sheet(path), constants)
 
     @classmethod
     def from_text(cls, text: str, label: str = "<text>") -> Sheet:
@@ -139,8 +141,14 @@ class Sheet:
         # a syntax error on a line that names a cell is reported with that cell
         self.errors.extend(e for e in parsed.errors if id(e) not in on_cells)
         pinned: ConstantsDef | None = None
+        if self._constants_override is not None:
+            words = self._constants_override
+            pinned = ConstantsDef(tuple((w, Span(1, 1, 1, 1)) for w in words), Span(1, 1, 1, 1))
+            self._pin(pinned)
         for statement in parsed.statements:
             if isinstance(statement, ConstantsDef):
+                if self._constants_override is not None:
+                    continue
                 if pinned is not None:
                     self.errors.append(DuplicateCellError(
                         f"constant sets are pinned twice (lines {pinned.span.line} "

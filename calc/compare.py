@@ -1,0 +1,118 @@
+"""Comparing evaluations and tracing dependencies: `relsheet diff` and `relsheet deps`."""
+
+from __future__ import annotations
+
+import subprocess
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+from .format import format_quantity
+from .records import is_record
+from .sheet import Cell, Sheet
+from .sheetfile import decode_sheet
+
+
+def _shown(cell: Cell | None) -> str:
+    if cell is None:
+        return "—"
+    if cell.error is not None:
+        return f"error: {cell.error.message}"
+    if is_record(cell.raw):
+        return "(record)"
+    number, unit = format_quantity(cell.raw)
+    return f"{number} {unit}".strip()
+
+
+def _relative(old: Cell | None, new: Cell | None) -> str:
+    if old is None or new is None or old.error or new.error or is_record(old.raw) \
+            or is_record(new.raw):
+        return ""
+    try:
+        a = np.asarray(old.value.to_value(new.value.unit), dtype=float)
+    except Exception:
+        return "unit changed"
+    b = np.asarray(new.value.value, dtype=float)
+    if a.shape != b.shape:
+        return "shape changed"
+    with np.errstate(divide="ignore", invalid="ignore"):
+        change = np.max(np.abs(b - a) / np.abs(a)) if np.any(a != b) else 0.0
+    if not np.isfinite(change):
+        return "from 0"
+    return f"{change:+.3g}" if change else "0"
+
+
+def _same(old: Cell | None, new: Cell | None) -> bool:
+    return _shown(old) == _shown(new) and _relative(old, new) in ("0", "")
+
+
+def diff(old: Sheet, new: Sheet, show_all: bool = False,
+         labels: tuple[str, str] = ("old", "new")) -> str:
+    """A table of cells whose shown values differ (all cells with ``show_all``)."""
+    names = list(dict.fromkeys([*old.names(), *new.names()]))
+    rows = []
+    for name in names:
+        a = old.cell(name) if name in old else None
+        b = new.cell(name) if name in new else None
+        if show_all or not _same(a, b):
+            rows.append((name, _shown(a), _shown(b), _relative(a, b)))
+    header = f"{labels[0]}  →  {labels[1]}"
+    if not rows:
+        return f"{header}\nno cell changed"
+    widths = [max(len(r[i]) for r in rows + [("cell", labels[0], labels[1], "relative")])
+              for i in range(4)]
+    lines = [header, "  ".join(t.ljust(w) for t, w in
+                               zip(("cell", labels[0], labels[1], "relative"), widths)).rstrip()]
+    lines += ["  ".join(t.ljust(w) for t, w in zip(r, widths)).rstrip() for r in rows]
+    return "\n".join(lines)
+
+
+def sheet_at_revision(path: str, revision: str) -> Sheet:
+    """The sheet as committed at a git revision (read with `git show`)."""
+    file = Path(path).resolve()
+    try:
+        top = subprocess.run(["git", "rev-parse", "--show-toplevel"], cwd=file.parent,
+                             capture_output=True, text=True, check=True).stdout.strip()
+        relative = file.relative_to(Path(top).resolve()).as_posix()
+        shown = subprocess.run(["git", "show", f"{revision}:{relative}"], cwd=top,
+                               capture_output=True, check=True)
+    except FileNotFoundError:
+        raise InputError("git is not installed: --rev needs it") from None
+    except subprocess.CalledProcessError as exc:
+        message = (exc.stderr.decode(errors="replace") if isinstance(exc.stderr, bytes)
+                   else exc.stderr or "").strip().splitlines()
+        raise InputError(f"cannot read {path} at {revision}: "
+                         f"{message[-1] if message else 'git failed'}") from None
+    return Sheet(decode_sheet(shown.stdout, f"{path}@{revision}"))
+
+
+def dependency_tree(sheet: Sheet, name: str, users: bool = False) -> str:
+    """The cells `name` uses (or, with ``users``, the cells that use it), as an indented tree;
+    a cell shown once already is marked instead of repeated."""
+    lines: list[str] = []
+    seen: set[str] = set()
+
+    def walk(node: str, depth: int) -> None:
+        cell = sheet.cell(node)
+        mark = "  (above)" if node in seen else ""
+        lines.append(f"{'  ' * depth}{node}  (line {cell.line}){mark}")
+        if node in seen:
+            return
+        seen.add(node)
+        following = sheet.users(node) if users else sheet.uses(node)
+        for nxt in sorted(following, key=lambda n: sheet.cell(n).line):
+            walk(nxt, depth + 1)
+
+    walk(name, 0)
+    return "\n".join(lines)
+
+
+def dependency_table(sheet: Sheet, users: bool = False) -> str:
+    arrow = "→" if users else "←"
+    lines = []
+    for cell in sheet.cells:
+        others = sheet.users(cell.name) if users else sheet.uses(cell.name)
+        listed = ", ".join(sorted(others, key=lambda n: sheet.cell(n).line)) or "—"
+        lines.append(f"{cell.name} {arrow} {listed}")
+    return "\n".join(lines)
