@@ -26,6 +26,7 @@ from .errors import (
     ArgumentError,
     DomainError,
     InputError,
+    InputFailedError,
     NameResolutionError,
     SheetError,
     Source,
@@ -421,6 +422,33 @@ class _Compiler:
             return _input_code(ids, resolved.value, self.scope.inputs.inputs[ids[0]].sigma)
         return Const(resolved.value)
 
+    def imported(self, node: Dotted, depth: int) -> Code:
+        """`ns.name` (and `ns.name.field`): a cell of an imported sheet."""
+        namespace, name, *fields = node.parts
+        self.looked_up.add(namespace)
+        sheet = self.scope.namespaces[namespace]
+        if name not in sheet:
+            options = close_matches(name, sheet.names())
+            raise NameResolutionError(f"{sheet.source.label} has no cell `{name}`", node.span,
+                                      hint=did_you_mean([f"{namespace}.{o}" for o in options]))
+        cell = sheet.cell(name)
+        if cell.error is not None:
+            raise InputFailedError(f"`{namespace}.{name}` failed in {sheet.source.label}: "
+                                   f"{cell.error.message}", [f"{namespace}.{name}"],
+                                   span=node.span)
+        raw = cell.raw
+        if uncertain.is_uncertain(raw):
+            # uncertain: read at run time, so that Monte Carlo sees the imported samples
+            values, samples = sheet._values, sheet._mc_values
+
+            def code(env, name=name):
+                return samples[name] if uncertain.mode.monte_carlo else values[name]
+        else:
+            code = Const(raw)
+        if fields:
+            return _lift(field_op((f"{namespace}.{name}", *fields), node.span), code)
+        return code
+
     def plus_minus(self, node: PlusMinus, depth: int) -> Code:
         """`value ± sigma`: an independent input (never folded, so Monte Carlo can sample it)."""
         value_node, sigma_node = node.value, node.sigma
@@ -519,6 +547,8 @@ class _Compiler:
             return self.array(node, depth)
         if kind is Dotted:
             head = node.parts[0]
+            if head in self.scope.namespaces and head not in self.scope.cell_names:
+                return self.imported(node, depth)
             if head in self.scope.cell_names:
                 # fields of a record: `venus.a`, `budget.total`
                 self.looked_up.add(head)

@@ -36,7 +36,8 @@ _TERMINAL_WORDS = {
     "EQUAL": "`=`", "PLUS": "`+`", "MINUS": "`-`", "SLASH": "`/`", "_TIMES": "`*`",
     "_POW": "`^`", "IN": "`in`", "_NL": "the end of the line", "$END": "the end of the input",
     "HASH_TEXT": "a comment", "PERCENT_SIGN": "`%`", "CONSTANTS": "`constants`", "PPN": "`ppn`", "PM": "`±`",
-    "CHECK": "`check`", "WITHIN": "`within`",
+    "CHECK": "`check`", "WITHIN": "`within`", "USE": "`use`", "AS": "`as`", "WITH": "`with`",
+    "STRING": "a file name in quotes",
     "EQEQ": "`==`", "LE": "`<=`", "GE": "`>=`", "LT": "`<`", "GT": "`>`",
 }
 
@@ -167,7 +168,8 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> She
         return SheetSyntaxError(f"`{word}` is a reserved word and cannot name a cell",
                                 Span(tok.line, column, tok.line, column + len(word)),
                                 hint=f"choose another name, such as `{word}_value`")
-    if first_word in RESERVED_WORDS - {"in", "const", "constants", "ppn", "check", "within"}:
+    if first_word in RESERVED_WORDS - {"in", "const", "constants", "ppn", "check", "within", "use",
+                                       "as", "with"}:
         column = len(lines[tok.line - 1]) - len(lines[tok.line - 1].lstrip()) + 1
         return SheetSyntaxError(
             f"`{first_word}` statements are not part of this version of relsheet",
@@ -200,8 +202,7 @@ def _character_hint(ch: str) -> str | None:
         "\u00b0": "write the unit `deg`",
         "\u2032": "write the unit `arcmin`",
         "\u2033": "write the unit `arcsec`",
-        "\"": "text in quotes is not part of this version of relsheet",
-        "'": "text in quotes is not part of this version of relsheet",
+        "'": "file names go in double quotes: use \"other.sheet\" as ns",
         "$": "cells are named by their names, without `$`",
         "\u2013": "use `-` for minus",
     }.get(ch)

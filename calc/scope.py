@@ -47,8 +47,11 @@ class Scope:
     """Resolves names for one sheet: its cell names, units and constants."""
 
     def __init__(self, cell_names, selection: ConstantSelection,
-                 inputs: InputRegistry | None = None, uncertain_constants: bool = False) -> None:
+                 inputs: InputRegistry | None = None, uncertain_constants: bool = False,
+                 namespaces: dict | None = None) -> None:
         self.cell_names = cell_names
+        #: imported sheets by namespace
+        self.namespaces = namespaces or {}
         self.selection = selection
         self.inputs = inputs if inputs is not None else InputRegistry()
         self.uncertain_constants = uncertain_constants

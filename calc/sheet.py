@@ -24,6 +24,7 @@ from .constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, par
 from .errors import (
     CycleError,
     DuplicateCellError,
+    InputError,
     InputFailedError,
     NameResolutionError,
     SheetError,
@@ -35,9 +36,9 @@ from .graph import DependencyGraph
 from .parse import parse_expression, parse_sheet
 from .records import is_record
 from .scope import PPN_PARAMETERS, Scope
-from .sheetfile import read_sheet
-from .syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef
-from .units import quantity
+from .sheetfile import read_sheet, resolve_import
+from .syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef, UseDef
+from .units import close_matches, did_you_mean, quantity
 
 
 class Cell:
@@ -100,10 +101,24 @@ def numeric_context():
 class Sheet:
     """A parsed and evaluated sheet. Build with :meth:`load` or :meth:`from_text`."""
 
-    def __init__(self, source: Source, constants: list[str] | None = None) -> None:
-        """``constants`` (words of a `constants` line) replaces the sheet's own pinning."""
+    def __init__(self, source: Source, constants: list[str] | None = None,
+                 root: str | Path | None = None, _chain: tuple[Path, ...] = (),
+                 _imports: dict | None = None) -> None:
+        """``constants`` (words of a `constants` line) replaces the sheet's own pinning;
+        ``root`` is the folder imports must stay in (default: this sheet's folder)."""
         self.source = source
         self._constants_override = constants
+        here = Path(source.label).resolve() if not source.label.startswith("<") else None
+        self.root = Path(root).resolve() if root is not None else (
+            here.parent if here is not None else Path.cwd().resolve())
+        self._chain = _chain or ((here,) if here is not None else ())
+        #: imported sheets by namespace (`use "x.sheet" as ns`)
+        self.namespaces: dict[str, Sheet] = {}
+        self._mc_values: dict = {}
+        self._mc_session = None
+        #: sheets imported anywhere below the top sheet, by (file, overrides): a file
+        #: imported twice the same way is one evaluation, so its inputs are shared
+        self._import_cache: dict = _imports if _imports is not None else {}
         self.items: list[Note | Cell] = []
         self.errors: list[SheetError] = []
         self.selection: ConstantSelection = default_selection()
@@ -127,9 +142,10 @@ class Sheet:
 
     # -- construction
     @classmethod
-    def load(cls, path: str | Path, constants: list[str] | None = None) -> Sheet:
+    def load(cls, path: str | Path, constants: list[str] | None = None,
+             root: str | Path | None = None) -> Sheet:
         """Read and evaluate a sheet file. Raises InputError if it cannot be read."""
-        return cls(read_sheet(path), constants)
+        return cls(read_sheet(path), constants, root)
 
     @classmethod
     def from_text(cls, text: str, label: str = "<text>") -> Sheet:
@@ -161,6 +177,8 @@ class Sheet:
                 self.items.append(statement)
             elif isinstance(statement, CheckDef):
                 self._check_defs.append(statement)
+            elif isinstance(statement, UseDef):
+                self._import(statement)
             else:
                 if isinstance(statement, PPNDef):
                     statement = self._ppn_cell(statement)
@@ -182,8 +200,15 @@ class Sheet:
                 cell.error = err
                 self._fixed_errors[statement.name] = err
         self.inputs = uncertain.InputRegistry()
+        for namespace in self.namespaces:
+            if namespace in self._cells:
+                self.errors.append(NameResolutionError(
+                    f"`{namespace}` is both a cell and an imported sheet",
+                    self._cells[namespace].definition.name_span, source=self.source,
+                    hint="rename the cell or the namespace"))
         self._scope = Scope(self._cells.keys(), self.selection, self.inputs,
-                            uncertain_constants=self.uncertain_constants)
+                            uncertain_constants=self.uncertain_constants,
+                            namespaces=self.namespaces)
         with using(self.selection):
             for rank, (name, cell) in enumerate(self._cells.items()):
                 program = self._compile(cell.definition, self.source)
@@ -205,6 +230,45 @@ class Sheet:
             # a PPN parameter is a plain number
             keep = (u.dimensionless_unscaled, definition.expr.span)
         return compile_cell(definition, self._scope, source, display_unit=keep)
+
+    def _import(self, use: UseDef) -> None:
+        """Evaluate the sheet a `use` line names, in its own namespace, with its overrides."""
+        if use.namespace in self.namespaces:
+            self.errors.append(DuplicateCellError(
+                f"namespace `{use.namespace}` is imported twice", use.namespace_span,
+                hint="give each import its own name", source=self.source))
+            return
+        try:
+            path = resolve_import(self.source.label, use.path, self.root, self._chain,
+                                  use.path_span)
+            key = (path, tuple((o.name, self.source.between(o.expr.span)) for o in use.overrides))
+            imported = self._import_cache.get(key)
+            if imported is not None:
+                self.namespaces[use.namespace] = imported
+                return
+            imported = Sheet(read_sheet(path), root=self.root, _chain=(*self._chain, path),
+                             _imports=self._import_cache)
+            self._import_cache[key] = imported
+        except SheetError as err:
+            self.errors.append(err.located(use.span, self.source))
+            return
+        with numeric_context(), using(imported.selection):
+            for override in use.overrides:
+                if override.name not in imported:
+                    self.errors.append(NameResolutionError(
+                        f"{use.path} has no cell `{override.name}` to override",
+                        override.name_span, source=self.source,
+                        hint=did_you_mean(close_matches(override.name, imported.names()))))
+                    continue
+                imported._assign(override.name, override.expr, None, self.source)
+            imported._run_checks()
+        problems = imported.all_errors()
+        if problems:
+            first = problems[0]
+            self.errors.append(InputError(
+                f"{use.path} has {len(problems)} error{'s' if len(problems) > 1 else ''}; the "
+                f"first: {first.location}: {first.message}", use.path_span, source=self.source))
+        self.namespaces[use.namespace] = imported
 
     def _ppn_cell(self, statement: PPNDef) -> CellDef | None:
         """A `ppn gamma = …` line becomes the cell `ppn.gamma`, which calls use by default."""
@@ -399,7 +463,7 @@ class Sheet:
         rows = []
         for key, share in uncertain.budget(raw):
             part = raw.parts[key]
-            rows.append((self.inputs.inputs[key], quantity(np.abs(part), raw.unit), share))
+            rows.append((uncertain.input_info(key), quantity(np.abs(part), raw.unit), share))
         return rows
 
     def monte_carlo(self, samples: int, seed: int | None = None, progress=None
@@ -407,37 +471,50 @@ class Sheet:
         """Evaluate every cell with its inputs drawn from their distributions, ``samples`` at
         once; returns per cell a Summary (quantities), the value itself (records and cells
         that depend on no input), or the error."""
-        env: dict = {}
-        out: dict = {}
         with numeric_context(), using(self.selection):
             uncertain.mode.start_monte_carlo(samples, seed, progress)
             try:
-                for index, name in enumerate(self._order):
-                    cell = self._cells[name]
-                    if cell.error is not None:
-                        out[name] = cell.error
-                        continue
-                    program = self._programs[name]
-                    failed = [d for d in program.deps if d not in env]
-                    if failed:
-                        out[name] = InputFailedError(f"input `{failed[0]}` failed", failed,
-                                                     span=program.deps[failed[0]],
-                                                     source=program.source)
-                        continue
-                    try:
-                        value = run_cell(program, env)
-                    except SheetError as err:
-                        out[name] = err
-                        continue
-                    env[name] = value
-                    is_samples = isinstance(value, u.Quantity) and np.ndim(value.value) == 2 \
-                        and value.shape[0] == samples
-                    out[name] = uncertain.summarise(value) if is_samples else value
-                    if progress is not None:
-                        progress(index + 1, len(self._order))
+                return self._monte_carlo_run(samples, progress)[1]
             finally:
                 uncertain.mode.stop_monte_carlo()
-        return out
+
+    def _monte_carlo_run(self, samples: int, progress) -> tuple[dict, dict]:
+        """One Monte Carlo pass (inside a started mode): imported sheets first, so that
+        inputs they share with this sheet are drawn once."""
+        for imported in self.namespaces.values():
+            if imported._mc_session is uncertain.mode.drawn:
+                continue  # a sheet imported along two paths runs once
+            with using(imported.selection):
+                values = imported._monte_carlo_run(samples, None)[0]
+            imported._mc_values.clear()
+            imported._mc_values.update(values)
+            imported._mc_session = uncertain.mode.drawn
+        env: dict = {}
+        out: dict = {}
+        for index, name in enumerate(self._order):
+            cell = self._cells[name]
+            if cell.error is not None:
+                out[name] = cell.error
+                continue
+            program = self._programs[name]
+            failed = [d for d in program.deps if d not in env]
+            if failed:
+                out[name] = InputFailedError(f"input `{failed[0]}` failed", failed,
+                                             span=program.deps[failed[0]],
+                                             source=program.source)
+                continue
+            try:
+                value = run_cell(program, env)
+            except SheetError as err:
+                out[name] = err
+                continue
+            env[name] = value
+            is_samples = isinstance(value, u.Quantity) and np.ndim(value.value) == 2 \
+                and value.shape[0] == samples
+            out[name] = uncertain.summarise(value) if is_samples else value
+            if progress is not None:
+                progress(index + 1, len(self._order))
+        return env, out
 
     # -- access
     @property

@@ -82,3 +82,30 @@ def atomic_write(path: str | Path, data: bytes) -> None:
             os.close(directory)
     except OSError:
         pass
+
+
+def resolve_import(importer: str, written: str, root: Path, chain: tuple[Path, ...],
+                   span) -> Path:
+    """The file a `use "…"` line names: relative to the importing sheet, a `.sheet` file
+    inside the project root, not already on the chain of imports."""
+    from .errors import InputError as Refused
+
+    if not written.endswith(".sheet"):
+        raise Refused(f"`{written}` is not a sheet: only .sheet files can be imported", span,
+                      hint="name a file ending in .sheet")
+    base = Path(importer).resolve().parent if importer and not importer.startswith("<") \
+        else Path.cwd()
+    path = (base / written).resolve()
+    try:
+        path.relative_to(root)
+    except ValueError:
+        raise Refused(f"`{written}` lies outside the project root {root}", span,
+                      hint="keep shared sheets below the top sheet's folder, or pass --root") \
+            from None
+    if path in chain:
+        names = " → ".join(p.name for p in (*chain[chain.index(path):], path))
+        raise Refused(f"import cycle: {names}", span, hint="a sheet cannot import itself, "
+                      "directly or through others")
+    if not path.is_file():
+        raise Refused(f"no such sheet: {written} (looked for {path})", span)
+    return path

@@ -189,6 +189,25 @@ class PPNDef:
 
 
 @dataclass(frozen=True, slots=True)
+class Override:
+    name: str
+    name_span: Span
+    expr: Expr
+
+
+@dataclass(frozen=True, slots=True)
+class UseDef:
+    """``use "file.sheet" as ns [with a = …, b = …]``."""
+
+    path: str
+    path_span: Span
+    namespace: str
+    namespace_span: Span
+    overrides: tuple[Override, ...]
+    span: Span
+
+
+@dataclass(frozen=True, slots=True)
 class CheckDef:
     """``check left OP right [within tolerance]``."""
 
@@ -218,10 +237,11 @@ class ExpressionLine:
     span: Span
 
 
-Statement = Union[CellDef, ConstantsDef, PPNDef, CheckDef, Note]
+Statement = Union[CellDef, UseDef, ConstantsDef, PPNDef, CheckDef, Note]
 
 #: Words that start statements now or in later versions of the language.
-RESERVED_WORDS = frozenset({"constants", "use", "check", "ppn", "plot", "in", "const", "within"})
+RESERVED_WORDS = frozenset({"constants", "use", "check", "ppn", "plot", "in", "const", "within",
+                            "as", "with"})
 
 # ---- the builder ----------------------------------------------------------------
 
@@ -406,6 +426,17 @@ class NodeBuilder(Transformer):
                 comment, marker = split_trailer(item.value)
         return PPNDef(tok.value, token_span(tok), expr, comment, marker,
                       token_span(keyword).to(expr.span))
+
+    def override(self, children):
+        tok, expr = children
+        return Override(tok.value, token_span(tok), expr)
+
+    def use(self, children):
+        keyword, path, _as, name, *rest = children
+        overrides = tuple(c for c in rest if isinstance(c, Override))
+        end = overrides[-1].expr.span if overrides else token_span(name)
+        return UseDef(path.value[1:-1], token_span(path), name.value, token_span(name), overrides,
+                      token_span(keyword).to(end))
 
     def check(self, children):
         keyword, left, op, right, *rest = children

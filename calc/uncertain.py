@@ -21,6 +21,7 @@ published uncertainty.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass, field
 
@@ -186,17 +187,26 @@ class Input:
     sigma: u.Quantity
 
 
+#: Every input made in this process, by id: ids are unique across sheets, so values
+#: imported from one sheet into another keep their inputs apart (and shared ones shared).
+_ALL_INPUTS: dict[int, Input] = {}
+_ids = itertools.count(1)
+
+
+def input_info(key: int) -> Input:
+    return _ALL_INPUTS[key]
+
+
 @dataclass
 class InputRegistry:
-    """The inputs of one sheet; ids are unique within it."""
+    """The inputs one sheet made."""
 
     inputs: dict[int, Input] = field(default_factory=dict)
-    _next: int = 0
 
     def new(self, name: str, nominal: u.Quantity, sigma: u.Quantity) -> int:
-        self._next += 1
-        self.inputs[self._next] = Input(name, nominal, sigma)
-        return self._next
+        key = next(_ids)
+        self.inputs[key] = _ALL_INPUTS[key] = Input(name, nominal, sigma)
+        return key
 
 
 def make_input(registry: InputRegistry, name: str, nominal: u.Quantity, sigma: u.Quantity):
