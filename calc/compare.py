@@ -36,11 +36,14 @@ def _relative(old: Cell | None, new: Cell | None) -> str:
     b = np.asarray(new.value.value, dtype=float)
     if a.shape != b.shape:
         return "shape changed"
+    if not np.any(a != b):
+        return "0"
     with np.errstate(divide="ignore", invalid="ignore"):
-        change = np.max(np.abs(b - a) / np.abs(a)) if np.any(a != b) else 0.0
+        relative = np.ravel((b - a) / np.abs(a))
+    change = relative[np.argmax(np.abs(relative))]   # the largest, with its sign
     if not np.isfinite(change):
         return "from 0"
-    return f"{change:+.3g}" if change else "0"
+    return f"{change:+.3g}"
 
 
 def _same(old: Cell | None, new: Cell | None) -> bool:

@@ -145,9 +145,9 @@ def test_expression_input_for_set():
     ("x = 1 km in\n",
      "t.sheet:1:12: unexpected end of line: a unit is missing after `in`\n  x = 1 km in\n             ^\n"
      "  hint: write for example `in km / s`"),
-    ("check x == 1\n",
-     "t.sheet:1:1: `check` statements are not part of this version of relsheet\n  check x == 1\n  ^~~~~\n"
-     "  hint: `check` is reserved for a statement of a later version"),
+    ("plot y vs x\n",
+     "t.sheet:1:1: `plot` statements are not part of this version of relsheet\n  plot y vs x\n  ^~~~\n"
+     "  hint: `plot` is reserved for a statement of a later version"),
     ("in = 3\n",
      "t.sheet:1:1: `in` is a reserved word and cannot name a cell\n  in = 3\n  ^~\n"
      "  hint: choose another name, such as `in_value`"),
