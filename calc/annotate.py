@@ -69,13 +69,14 @@ def annotated_text(sheet: Sheet, text: str, digits: int = 6) -> str:
     return "".join(out)
 
 
-def annotate_file(path: str | Path, digits: int = 6, stale_only: bool = False):
+def annotate_file(path: str | Path, digits: int = 6, stale_only: bool = False,
+                  root: str | Path | None = None):
     """Annotate ``path`` in place (atomically). Returns (sheet, changed line numbers)."""
     from .sheetfile import atomic_write, decode_sheet
 
     raw = Path(path).read_bytes()
     source = decode_sheet(raw, str(path))
-    sheet = Sheet(source)
+    sheet = Sheet(source, root=root)
     new_text = annotated_text(sheet, source.text, digits)
     old_lines = source.text.splitlines()
     new_lines = new_text.splitlines()

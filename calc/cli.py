@@ -52,6 +52,8 @@ def build_parser() -> argparse.ArgumentParser:
     ev.add_argument("--seed", type=int, metavar="S", help="seed of the Monte Carlo draws")
     ev.add_argument("--sigma-budget", metavar="CELL", dest="sigma_budget",
                     help="list each input's share of the uncertainty of CELL")
+    ev.add_argument("--root", metavar="DIR",
+                    help="the folder imported sheets must stay in (default: the sheet's folder)")
     ev.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
     vf = commands.add_parser("verify", help="run the sheets' checks; exit 1 if any fails",
@@ -60,6 +62,8 @@ def build_parser() -> argparse.ArgumentParser:
                                          "`N passed, N failed`. Exit 1 if a check fails, 2 if a "
                                          "sheet has errors.")
     vf.add_argument("files", metavar="FILE", nargs="+", help="sheets (.sheet)")
+    vf.add_argument("--root", metavar="DIR",
+                    help="the folder imported sheets must stay in (default: the sheet's folder)")
     vf.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
 
@@ -73,6 +77,8 @@ def build_parser() -> argparse.ArgumentParser:
                     help="only report whether the markers are out of date (exit 1 if so)")
     an.add_argument("--digits", type=int, default=6, metavar="N",
                     help="significant digits of the markers (default 6)")
+    an.add_argument("--root", metavar="DIR",
+                    help="the folder imported sheets must stay in (default: the sheet's folder)")
     an.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
 
@@ -84,6 +90,8 @@ def build_parser() -> argparse.ArgumentParser:
     ex.add_argument("--to", required=True, choices=["md", "csv", "json", "tex"],
                     help="the format")
     ex.add_argument("-o", dest="output", metavar="OUT", help="write to OUT (default: stdout)")
+    ex.add_argument("--root", metavar="DIR",
+                    help="the folder imported sheets must stay in (default: the sheet's folder)")
     ex.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                     help="show Python tracebacks of internal errors")
 
@@ -192,7 +200,7 @@ def cmd_eval(args) -> int:
         raise UsageError(f"--mc takes between 2 and 10,000,000 samples, got {args.mc}")
     if args.seed is not None and args.mc is None:
         raise UsageError("--seed goes with --mc")
-    sheet = Sheet.load(args.file)
+    sheet = Sheet.load(args.file, root=args.root)
     _apply_overrides(sheet, args.overrides)
     if args.sigma_budget is not None and args.sigma_budget not in sheet:
         from .units import close_matches, did_you_mean
@@ -353,7 +361,7 @@ def cmd_verify(args) -> int:
     broken = False
     for path in args.files:
         try:
-            sheet = Sheet.load(path)
+            sheet = Sheet.load(path, root=args.root)
         except SheetError as err:
             print(err.render(), file=sys.stderr)
             broken = True
@@ -382,7 +390,7 @@ def cmd_annotate(args) -> int:
 
     if not 1 <= args.digits <= 17:
         raise UsageError(f"--digits must be between 1 and 17, got {args.digits}")
-    sheet, changed = annotate_file(args.file, args.digits, stale_only=args.stale)
+    sheet, changed = annotate_file(args.file, args.digits, stale_only=args.stale, root=args.root)
     _report(sheet.all_errors(), args.debug)
     if args.stale:
         if changed:
@@ -403,7 +411,7 @@ def cmd_export(args) -> int:
     from .sheet import Sheet
     from .sheetfile import atomic_write
 
-    sheet = Sheet.load(args.file)
+    sheet = Sheet.load(args.file, root=args.root)
     writer = {"md": export.to_markdown, "csv": export.to_csv, "json": export.to_json,
               "tex": export.to_tex}[args.to]
     text = writer(sheet)
