@@ -121,6 +121,11 @@ def build_parser() -> argparse.ArgumentParser:
     wt.add_argument("--interval", type=float, default=0.5, metavar="SECONDS",
                     help="how often to look at the file (default 0.5 s)")
 
+    rp = commands.add_parser("repl", help="what-if questions on a live sheet",
+                             description="An interactive prompt on a sheet: expressions show "
+                                         "their value, `name = expr` shows what changes.")
+    rp.add_argument("file", metavar="FILE", nargs="?", help="the sheet (.sheet)")
+
     fn = commands.add_parser("funcs", help="list the functions, or show one",
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
@@ -505,6 +510,12 @@ def cmd_watch(args) -> int:
         sheet = fresh
 
 
+def cmd_repl(args) -> int:
+    from .repl import run
+
+    return run(args.file)
+
+
 def cmd_funcs(args) -> int:
     from .catalog import entry, listing
 
@@ -514,7 +525,7 @@ def cmd_funcs(args) -> int:
 
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
              "export": cmd_export, "deps": cmd_deps, "diff": cmd_diff, "watch": cmd_watch,
-             "funcs": cmd_funcs}
+             "repl": cmd_repl, "funcs": cmd_funcs}
 
 
 def run() -> None:

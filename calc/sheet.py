@@ -549,6 +549,31 @@ class Sheet:
     def names(self) -> list[str]:
         return list(self._cells)
 
+    def downstream(self, name: str) -> set[str]:
+        """Every cell that depends on cell ``name``, directly or not."""
+        return self._graph.downstream(name)
+
+    def evaluate(self, text: str, label: str = "<expression>"):
+        """The value of an expression (with an optional `in unit`) in this sheet's scope,
+        without adding a cell. Raises SheetError. Returns the raw value (it may be uncertain)."""
+        source = Source(label, text)
+        with numeric_context(), using(self.selection):
+            line = parse_expression(text, source)
+            definition = CellDef("_", Span(1, 1, 1, 2), line.expr, line.unit, None, None,
+                                 line.span)
+            program = compile_cell(definition, self._scope, source)
+            if program.error is not None:
+                raise program.error
+            failed = [d for d in program.deps if self._cells[d].error is not None]
+            if failed:
+                raise InputFailedError(f"input `{failed[0]}` failed", failed,
+                                       span=program.deps[failed[0]], source=source)
+            return run_cell(program, self._values)
+
+    def overridden(self) -> list[str]:
+        """Cells whose definition no longer is the file's: overrides and new cells."""
+        return [name for name, cell in self._cells.items() if cell.source is not self.source]
+
     def uses(self, name: str) -> set[str]:
         """The cells that cell ``name`` uses directly."""
         return set(self._graph.uses.get(name, ()))
