@@ -332,6 +332,19 @@ def _lift(fn, *codes: Code) -> Code:
     return lambda env: fn(*(r(env) for r in runners))
 
 
+def _leading_number(node):
+    """For a unit chain that starts with a number (`0.001 Msun`, `4e-4 deg / yr`): that number
+    and the same expression with 1 in its place; None for anything else (a bare number too)."""
+    if isinstance(node, Chain) and isinstance(node.head, (Number, Percent)):
+        return node.head, Chain(Number(1.0, "1", node.head.span), node.items, node.span)
+    if isinstance(node, BinaryOp) and node.op in "*/":
+        inner = _leading_number(node.left)
+        if inner is not None:
+            number, rest = inner
+            return number, BinaryOp(node.op, rest, node.right, node.span)
+    return None
+
+
 def _input_code(ids: tuple, nominal_value: u.Quantity, sigma_value: u.Quantity):
     value_of = uncertain.mode.value
     return lambda env: value_of(ids, nominal_value, sigma_value)
@@ -453,17 +466,17 @@ class _Compiler:
         """`value ± sigma`: an independent input (never folded, so Monte Carlo can sample it)."""
         value_node, sigma_node = node.value, node.sigma
         scale = None
-        if isinstance(value_node, (Number, Percent)) and isinstance(sigma_node, Chain) \
-                and isinstance(sigma_node.head, (Number, Percent)):
-            # `1.438 ± 0.001 Msun`: the units after the uncertainty belong to both numbers
-            units = self.expr(Chain(Number(1.0, "1", sigma_node.head.span), sigma_node.items,
-                                    sigma_node.span), depth + 1)
-            if not isinstance(units, Const):
-                head = PlusMinus(value_node, sigma_node.head,
-                                 value_node.span.to(sigma_node.head.span))
-                return self.expr(Chain(head, sigma_node.items, node.span), depth)
+        leading = _leading_number(sigma_node)
+        if isinstance(value_node, (Number, Percent)) and leading is not None:
+            # `1.438 ± 0.001 Msun`, `1.805 ± 0.0004 deg / yr`: the units after the
+            # uncertainty belong to both numbers
+            number, unit_only = leading
+            units = self.expr(unit_only, depth + 1)
+            if not isinstance(units, Const) or not isinstance(units.value, u.Quantity):
+                raise UnitError("write the units after `±` as units only (or put the value "
+                                "and its uncertainty in brackets)", sigma_node.span)
             scale = units.value
-            sigma_node = sigma_node.head
+            sigma_node = number
         value = self.expr(value_node, depth + 1)
         sigma = self.expr(sigma_node, depth + 1)
         if scale is not None and isinstance(value, Const) and isinstance(sigma, Const):

@@ -169,7 +169,8 @@ def power(base, exponent):
     rv = np.asarray(result.value)
     bv = np.asarray(b.nominal.value)
     with np.errstate(divide="ignore", invalid="ignore"):
-        factor_b = ev * rv / bv if b.parts else 0.0
+        # p b^(p-1), not p y / b, so that b = 0 with p ≥ 1 stays finite
+        factor_b = ev * np.power(bv, np.asarray(ev) - 1) if b.parts else 0.0
         factor_e = rv * np.log(bv) if e.parts else 0.0
     parts = _merge(b.parts, e.parts, factor_b, factor_e)
     return Uncertain(result, parts)

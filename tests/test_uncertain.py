@@ -171,3 +171,16 @@ def test_command_line_uncertainties(tmp_path):
     bad = subprocess.run(base + ["--seed", "3"], capture_output=True, text=True)
     assert bad.returncode == 64 and "--seed goes with --mc" in bad.stderr
     assert np.isfinite(z["value"])
+
+
+def test_power_at_zero_has_a_finite_sensitivity():
+    # d(x²)/dx = 2x = 0 at x = 0 (not 0/0)
+    s = evaluate("x = 0 ± 0.1\ny = x ^ 2\nz = [0, 1] * (1 ± 0.1)\nw = z ^ 2")
+    assert s.sigma("y").value == 0
+    assert list(s.sigma("w").value) == pytest.approx([0, 0.2])
+
+
+def test_units_after_the_uncertainty_may_be_a_quotient():
+    s = evaluate("w = 1.8052 ± 0.0004 deg / yr")
+    assert s["w"].to_value("deg / yr") == pytest.approx(1.8052)
+    assert s.sigma("w").to_value("deg / yr") == pytest.approx(0.0004)
