@@ -71,3 +71,18 @@ def entry(name: str) -> str:
     if spec.topic != "math":
         lines += ["", CAUTION]
     return "\n".join(lines)
+
+
+def markdown_table() -> str:
+    """The functions by topic as a Markdown table (the README's list is this, verbatim)."""
+    specs = functions.all_functions()
+    rows = ["| topic | functions |", "|---|---|"]
+    for topic in _ORDER:
+        names = sorted(f.name for f in specs if f.topic == topic)
+        if names:
+            rows.append(f"| {TOPIC_TITLES[topic]} | " + ", ".join(f"`{n}`" for n in names) + " |")
+    return "\n".join(rows)
+
+
+if __name__ == "__main__":  # python -m calc.catalog: the README's table of functions
+    print(markdown_table())

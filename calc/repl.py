@@ -93,6 +93,7 @@ class Session:
         watched = [] if new else [name, *sorted(self.sheet.downstream(name),
                                                 key=lambda n: self.sheet.cell(n).line)]
         before = {n: _shown(self.sheet, n) for n in watched}
+        checks_before = [r.passed for r in self.sheet.checks]
         try:
             changed = self.sheet.set(name, expression, label=label)
         except SheetError as err:
@@ -108,6 +109,10 @@ class Session:
             now = _shown(self.sheet, cell.name)
             if old != now:
                 lines.append(f"{cell.name}: {old} → {now}")
+        for was, result in zip(checks_before, self.sheet.checks):
+            if was != result.passed:
+                state = "passed" if result.passed else "FAILED"
+                lines.append(f"check on line {result.line} now {state}: {result.text}")
         error = self.sheet.cell(name).error
         if error is not None:
             lines.append(error.render())

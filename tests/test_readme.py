@@ -29,3 +29,17 @@ def test_ci_runs_the_readme_test_command():
 def test_readme_demo_sheet_exists():
     sheet = quick_start_commands()[0].rsplit(" ", 1)[1]
     assert (ROOT / sheet).is_file()
+
+
+def test_function_list_is_generated_from_the_registry():
+    from calc.catalog import markdown_table
+
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    block = text.split("keeps it current -->\n", 1)[1].split("\n<!-- end of functions -->", 1)[0]
+    assert block == markdown_table()
+
+
+def test_readme_has_the_caution():
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    caution = text.split("## Caution", 1)[1]
+    assert "IERS Conventions" in caution and "IAU" in caution and "engineering authority" in caution
