@@ -30,6 +30,15 @@ class _Parser(argparse.ArgumentParser):
         raise UsageError(message, hint=f"`{self.prog} --help` shows the usage")
 
 
+def _sheet_options(command: argparse.ArgumentParser) -> None:
+    """Options every command that evaluates sheets takes."""
+    command.add_argument("--root", metavar="DIR",
+                         help="the folder imported sheets must stay in (default: the sheet's "
+                              "folder)")
+    command.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                         help="show Python tracebacks of internal errors")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="relsheet",
                      description="Sheets of named quantities with units, for relativistic "
@@ -52,20 +61,14 @@ def build_parser() -> argparse.ArgumentParser:
     ev.add_argument("--seed", type=int, metavar="S", help="seed of the Monte Carlo draws")
     ev.add_argument("--sigma-budget", metavar="CELL", dest="sigma_budget",
                     help="list each input's share of the uncertainty of CELL")
-    ev.add_argument("--root", metavar="DIR",
-                    help="the folder imported sheets must stay in (default: the sheet's folder)")
-    ev.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
-                    help="show Python tracebacks of internal errors")
+    _sheet_options(ev)
     vf = commands.add_parser("verify", help="run the sheets' checks; exit 1 if any fails",
                              description="Run the `check` lines of each sheet. Prints every "
                                          "failing check with both sides and the tolerance, then "
                                          "`N passed, N failed`. Exit 1 if a check fails, 2 if a "
                                          "sheet has errors.")
     vf.add_argument("files", metavar="FILE", nargs="+", help="sheets (.sheet)")
-    vf.add_argument("--root", metavar="DIR",
-                    help="the folder imported sheets must stay in (default: the sheet's folder)")
-    vf.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
-                    help="show Python tracebacks of internal errors")
+    _sheet_options(vf)
 
     an = commands.add_parser("annotate", help="write each cell's result into the file as `#=`",
                              description="Write each cell's result after its line as a trailing "
@@ -77,10 +80,7 @@ def build_parser() -> argparse.ArgumentParser:
                     help="only report whether the markers are out of date (exit 1 if so)")
     an.add_argument("--digits", type=int, default=6, metavar="N",
                     help="significant digits of the markers (default 6)")
-    an.add_argument("--root", metavar="DIR",
-                    help="the folder imported sheets must stay in (default: the sheet's folder)")
-    an.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
-                    help="show Python tracebacks of internal errors")
+    _sheet_options(an)
 
     ex = commands.add_parser("export", help="write a report, a table or LaTeX macros",
                              description="Export the evaluated sheet: a Markdown report, CSV "
@@ -90,10 +90,7 @@ def build_parser() -> argparse.ArgumentParser:
     ex.add_argument("--to", required=True, choices=["md", "csv", "json", "tex"],
                     help="the format")
     ex.add_argument("-o", dest="output", metavar="OUT", help="write to OUT (default: stdout)")
-    ex.add_argument("--root", metavar="DIR",
-                    help="the folder imported sheets must stay in (default: the sheet's folder)")
-    ex.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
-                    help="show Python tracebacks of internal errors")
+    _sheet_options(ex)
 
     dp = commands.add_parser("deps", help="show which cells a cell uses, or which use it",
                              description="Print the cells CELL depends on as a tree (all cells "
