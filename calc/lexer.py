@@ -8,8 +8,8 @@ definitions, and construction fails if the grammar gains a terminal this
 lexer does not know. ``tests/test_lexer.py`` checks that the token stream
 equals the one lark's standard lexer produces.
 
-Keywords (``in``, ``constants``) are reserved everywhere, as the language
-reserves them.
+Keywords (``in``, ``constants``, …) are reserved everywhere, as the language
+reserves them. The lexer also joins lines inside brackets (see :meth:`SheetLexer.lex`).
 """
 
 from __future__ import annotations
@@ -19,6 +19,17 @@ import re
 from lark import Token
 from lark.exceptions import UnexpectedCharacters
 from lark.lexer import Lexer
+
+from .errors import InputError, SheetSyntaxError, Span
+
+#: Brackets nested deeper than this are refused before they reach the parser.
+MAX_BRACKET_DEPTH = 64
+
+_CLOSING = {"LPAR": "RPAR", "LSQB": "RSQB"}
+
+
+def _span(tok: Token) -> Span:
+    return Span(tok.line, tok.column, tok.end_line, tok.end_column)
 
 # Terminals matched by their regular expression from the grammar, longest-first where
 # one pattern is a prefix of another (PERCENT before NUMBER, DOTTED_NAME before NAME).
@@ -63,8 +74,41 @@ class SheetLexer(Lexer):
         parts.insert(0, f"(?P<SPACE>{space})")
         self.master = re.compile("|".join(parts))
         self.group_names = {n.lstrip("_") or n: n for n in _PATTERN_TERMINALS}
+        self.open_brackets: list[Token] = []
+        self.last: Token | None = None
 
     def lex(self, lexer_state, parser_state):
+        """Tokens of the text. Inside brackets a newline or comment does not end the statement,
+        so those tokens are dropped there; brackets nested absurdly deep are refused, one left
+        open is reported at the bracket, and the input always ends with a newline."""
+        for tok in self._tokens(lexer_state):
+            kind = tok.type
+            if kind == "LPAR" or kind == "LSQB":
+                self.open_brackets.append(tok)
+                if len(self.open_brackets) > MAX_BRACKET_DEPTH:
+                    raise InputError(f"brackets nested more than {MAX_BRACKET_DEPTH} deep",
+                                     _span(tok), hint="split the expression into several cells")
+            elif kind == "RPAR" or kind == "RSQB":
+                stack = self.open_brackets
+                if stack and _CLOSING[stack[-1].type] == kind:
+                    stack.pop()
+            elif self.open_brackets and (kind == "_NL" or kind == "HASH_TEXT"):
+                continue
+            self.last = tok
+            yield tok
+        if self.open_brackets:
+            opener = self.open_brackets[-1]
+            raise SheetSyntaxError(f"`{opener.value}` is never closed", _span(opener),
+                                   hint=f"add the closing `{')' if opener.value == '(' else ']'}`")
+        last = self.last
+        if last is not None and last.type != "_NL":
+            yield Token("_NL", "\n", start_pos=last.end_pos, line=last.end_line,
+                        column=last.end_column, end_line=last.end_line,
+                        end_column=last.end_column + 1, end_pos=last.end_pos)
+
+    def _tokens(self, lexer_state):
+        self.open_brackets = []
+        self.last = None
         text_slice = lexer_state.text
         text = text_slice.text
         pos = text_slice.start

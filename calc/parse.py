@@ -23,12 +23,6 @@ from .errors import InputError, SheetError, SheetSyntaxError, Source, Span
 from .lexer import SheetLexer
 from .syntax import RESERVED_WORDS, CellDef, ExpressionLine, NodeBuilder, Statement, token_span
 
-#: Brackets nested deeper than this are refused before they reach the parser.
-MAX_BRACKET_DEPTH = 64
-
-_OPENERS = {"LPAR": "RPAR", "LSQB": "RSQB"}
-_CLOSERS = {"RPAR", "RSQB"}
-
 # Words a reader understands, for the terminals the parser says it expected.
 _TERMINAL_WORDS = {
     "NAME": "a name", "DOTTED_NAME": "a name", "NUMBER": "a number", "PERCENT": "a number",
@@ -57,62 +51,22 @@ def _cache_dir() -> Path:
     return Path(base) / "relsheet"
 
 
-class BracketJoiner:
-    """Post-lexer: inside brackets a newline or comment does not end the statement.
-
-    Also refuses absurd nesting, reports brackets left open, and ends the input
-    with a newline so the last line needs none.
-    """
-
-    always_accept = ("_NL", "HASH_TEXT")
-
-    def __init__(self) -> None:
-        self.open_brackets: list[Token] = []
-
-    def process(self, stream):
-        stack = self.open_brackets = []
-        last = None
-        for tok in stream:
-            kind = tok.type
-            if kind in _OPENERS:
-                stack.append(tok)
-                if len(stack) > MAX_BRACKET_DEPTH:
-                    raise InputError(
-                        f"brackets nested more than {MAX_BRACKET_DEPTH} deep",
-                        token_span(tok), hint="split the expression into several cells")
-            elif kind in _CLOSERS:
-                if stack and _OPENERS[stack[-1].type] == kind:
-                    stack.pop()
-            elif stack and kind in ("_NL", "HASH_TEXT"):
-                continue
-            last = tok
-            yield tok
-        if stack:
-            opener = stack[-1]
-            raise SheetSyntaxError(f"`{opener.value}` is never closed", token_span(opener),
-                                   hint=f"add the closing `{')' if opener.value == '(' else ']'}`")
-        if last is not None and last.type != "_NL":
-            yield Token("_NL", "\n", start_pos=last.end_pos, line=last.end_line,
-                        column=last.end_column, end_line=last.end_line,
-                        end_column=last.end_column + 1, end_pos=last.end_pos)
-
-
 @lru_cache(maxsize=1)
-def _parser() -> tuple[Lark, BracketJoiner]:
+def _parser() -> tuple[Lark, SheetLexer]:
     path = grammar_path()
     text = path.read_text(encoding="utf-8")
-    joiner = BracketJoiner()
     key = hashlib.sha256((text + lark.__version__ + sys.version).encode()).hexdigest()[:16]
-    options = dict(parser="lalr", lexer=SheetLexer, postlex=joiner, transformer=NodeBuilder(),
+    options = dict(parser="lalr", lexer=SheetLexer, transformer=NodeBuilder(),
                    start=["sheet", "expression_input", "prompt_input"], maybe_placeholders=True)
     cache_dir = _cache_dir()
     try:
         cache_dir.mkdir(parents=True, exist_ok=True)
         cache_file = str(cache_dir / f"grammar-{key}.cache")
-        return Lark(text, cache=cache_file, **options), joiner
+        parser = Lark(text, cache=cache_file, **options)
     except OSError:
         # a read-only home still parses, only slower to start
-        return Lark(text, **options), joiner
+        parser = Lark(text, **options)
+    return parser, parser.parser.lexer
 
 
 @dataclass
@@ -137,7 +91,7 @@ def _expected_words(expected: set[str]) -> str | None:
     return "expected " + " or ".join(words)
 
 
-def _syntax_error(err: UnexpectedInput, text: str, joiner: BracketJoiner) -> SheetSyntaxError:
+def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer) -> SheetSyntaxError:
     """Translate a lark exception into a message a sheet author can act on."""
     if isinstance(err, UnexpectedCharacters):
         ch = text[err.pos_in_stream] if err.pos_in_stream < len(text) else ""

@@ -8,7 +8,8 @@ from hypothesis import strategies as st
 
 from calc import Sheet
 from calc.errors import InputError, SheetError, SheetSyntaxError, Source
-from calc.parse import MAX_BRACKET_DEPTH, logical_lines, parse_expression, parse_sheet
+from calc.lexer import MAX_BRACKET_DEPTH
+from calc.parse import logical_lines, parse_expression, parse_sheet
 from calc.syntax import (
     ArrayLiteral,
     BinaryOp,
