@@ -209,7 +209,7 @@ def mul_op(span: Span, divide: bool):
                         result = quantity(x.value / y.value, unit_quotient(x.unit, y.unit))
                     else:
                         result = quantity(x.value * y.value, unit_product(x.unit, y.unit))
-                elif type(y) is u.Unit or type(y) is u.CompositeUnit or type(y) is u.IrreducibleUnit:
+                elif isinstance(y, u.UnitBase):
                     # a unit in a chain: `3 km`, `1 / s`
                     combined = unit_quotient(x.unit, y) if divide else unit_product(x.unit, y)
                     result = quantity(x.value, combined)
@@ -314,20 +314,22 @@ def normalise(value: u.Quantity) -> u.Quantity:
 
 def _lift(fn, *codes: Code) -> Code:
     """Apply ``fn`` to compiled operands: folded now when all are constants."""
-    if all(isinstance(c, Const) for c in codes):
+    if len(codes) == 2:
+        a, b = codes
+        if type(a) is Const and type(b) is Const:
+            return Const(fn(a.value, b.value))
+        if type(a) is Const:
+            av = a.value
+            return lambda env: fn(av, b(env))
+        if type(b) is Const:
+            bv = b.value
+            return lambda env: fn(a(env), bv)
+        return lambda env: fn(a(env), b(env))
+    if all(type(c) is Const for c in codes):
         return Const(fn(*(c.value for c in codes)))
     if len(codes) == 1:
         (a,) = codes
         return lambda env: fn(a(env))
-    if len(codes) == 2:
-        a, b = codes
-        if isinstance(a, Const):
-            av = a.value
-            return lambda env: fn(av, b(env))
-        if isinstance(b, Const):
-            bv = b.value
-            return lambda env: fn(a(env), bv)
-        return lambda env: fn(a(env), b(env))
     runners = [(lambda env, v=c.value: v) if isinstance(c, Const) else c for c in codes]
     return lambda env: fn(*(r(env) for r in runners))
 
