@@ -203,14 +203,46 @@ def plain_number_unit(unit: u.UnitBase) -> bool:
         and unit != u.dimensionless_unscaled
 
 
+def _slow_quantity(value, unit: u.UnitBase) -> u.Quantity:
+    if isinstance(value, np.ndarray):
+        return u.Quantity(value, unit, copy=False)
+    return u.Quantity(value, unit)
+
+
+def _fast_quantity(value, unit: u.UnitBase) -> u.Quantity:
+    q = np.asarray(value, dtype=float).view(u.Quantity)
+    q._set_unit(unit)
+    return q
+
+
+def _fast_path_works() -> bool:
+    """astropy's Quantity constructor validates what the evaluator already knows (a float
+    value, a unit object) and costs five times a view; the view uses astropy's own
+    `_set_unit`, so check once that it still behaves as the public constructor does."""
+    try:
+        for value, unit in ((1.5, u.km), (np.array([1.0, 2.0]), u.s / u.m)):
+            a, b = _fast_quantity(value, unit), _slow_quantity(value, unit)
+            if type(a) is not type(b) or a.unit != b.unit or not np.array_equal(a.value, b.value) \
+                    or a.shape != b.shape:
+                return False
+        return True
+    except Exception:
+        return False
+
+
+_FAST = _fast_path_works()
+
+
 def quantity(value, unit: u.UnitBase = u.dimensionless_unscaled) -> u.Quantity:
     """A Quantity around a freshly computed value, without copying an array.
 
     Values are never changed in place anywhere in relsheet, so sharing is safe.
     """
-    if isinstance(value, np.ndarray):
-        return u.Quantity(value, unit, copy=False)
-    return u.Quantity(value, unit)
+    if _FAST and isinstance(unit, u.UnitBase) and not isinstance(value, u.Quantity):
+        dtype = getattr(value, "dtype", None)
+        if dtype is None or dtype.kind == "f":
+            return _fast_quantity(value, unit)
+    return _slow_quantity(value, unit)
 
 
 def value_in(q: u.Quantity, unit: u.UnitBase):
