@@ -52,8 +52,8 @@ def build_parser() -> argparse.ArgumentParser:
     ev.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
     ev.add_argument("--set", dest="overrides", action="append", default=[], metavar="NAME=EXPR",
                     help="give cell NAME the expression EXPR for this run (repeatable)")
-    ev.add_argument("--format", choices=["text", "json"], default="text",
-                    help="text for people (default), json for programs")
+    ev.add_argument("--format", choices=["text", "json", "csv", "md"], default="text",
+                    help="text for people (default), json for programs, csv, md (Markdown)")
     ev.add_argument("--digits", type=int, default=6, metavar="N",
                     help="significant digits in text output (1-17, default 6)")
     ev.add_argument("--mc", type=int, metavar="N",
@@ -117,6 +117,12 @@ def build_parser() -> argparse.ArgumentParser:
     wt.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
     wt.add_argument("--interval", type=float, default=0.5, metavar="SECONDS",
                     help="how often to look at the file (default 0.5 s)")
+
+    un = commands.add_parser("units", help="look up units by name",
+                             description="List the units whose names contain QUERY (all the "
+                                         "trade's extras without QUERY), with their physical "
+                                         "type and value in SI units.")
+    un.add_argument("query", metavar="QUERY", nargs="?", help="part of a unit name")
 
     rp = commands.add_parser("repl", help="what-if questions on a live sheet",
                              description="An interactive prompt on a sheet: expressions show "
@@ -221,6 +227,12 @@ def cmd_eval(args) -> int:
         from .export import to_json
 
         print(to_json(sheet, monte_carlo))
+    elif args.format in ("csv", "md"):
+        if monte_carlo is not None:
+            raise UsageError("--mc prints as text or json", hint="add --format json")
+        from .export import to_csv, to_markdown
+
+        sys.stdout.write((to_csv if args.format == "csv" else to_markdown)(sheet))
     else:
         print(render_text(sheet, args.digits, monte_carlo))
     if args.sigma_budget is not None:
@@ -507,6 +519,52 @@ def cmd_watch(args) -> int:
         sheet = fresh
 
 
+def cmd_units(args) -> int:
+    from .constants import default_selection
+    from .units import REFUSED_UNITS, unit_table
+
+    print(render_units(unit_table(default_selection()), args.query, REFUSED_UNITS))
+    return EXIT_OK
+
+
+def render_units(table, query: str | None, refused: dict) -> str:
+    """Units matching ``query``: name, physical type, value in SI; refused names explained."""
+    from .units import describe
+
+    trade = ["AU", "au", "pc", "lsec", "lyr", "century", "yr", "d", "Msun", "Rsun", "Mearth",
+             "Rearth", "Mjup", "Rjup", "mas", "uas", "arcsec", "deg", "rad"]
+    names = sorted({n for n in table.names() if query is None or query.lower() in n.lower()})
+    if query is None:
+        names = trade
+    lines = []
+    shown = 0
+    for name in names:
+        unit = table.lookup(name)
+        if unit is None:
+            continue
+        try:
+            si = unit.si
+            value = f"= {si.scale:.10g} {si.to_string(format='generic').split(' ', 1)[-1]}" \
+                if si.bases else f"= {si.scale:.10g}"
+            if si.to_string() == unit.to_string():
+                value = "(SI)"
+        except Exception:
+            value = ""
+        lines.append(f"  {name:<12} {describe(unit):<44} {value}".rstrip())
+        shown += 1
+        if shown >= 200:
+            lines.append(f"  … and {len(names) - shown} more; narrow the query")
+            break
+    for name, (message, hint) in refused.items():
+        if query is None or query.lower() in name:
+            lines.append(f"  {name:<12} refused: {message}; {hint}")
+    if not lines:
+        return f"no unit name contains `{query}`"
+    head = "units of the trade (`relsheet units QUERY` searches all of astropy's)" if query is None \
+        else f"units whose name contains `{query}`"
+    return "\n".join([head, *lines])
+
+
 def cmd_repl(args) -> int:
     from .repl import run
 
@@ -522,7 +580,7 @@ def cmd_funcs(args) -> int:
 
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
              "export": cmd_export, "deps": cmd_deps, "diff": cmd_diff, "watch": cmd_watch,
-             "repl": cmd_repl, "funcs": cmd_funcs}
+             "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs}
 
 
 def run() -> None:

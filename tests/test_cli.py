@@ -135,3 +135,19 @@ def test_demo_sheet_evaluates_cleanly():
 def test_console_script_entry_point_is_declared():
     text = (ROOT / "pyproject.toml").read_text()
     assert 'relsheet = "calc.cli:run"' in text
+
+
+def test_units_command():
+    listing = relsheet("units")
+    assert listing.returncode == 0
+    assert any(line.split()[0] == "century" and "3155760000 s" in line
+               for line in listing.stdout.splitlines()[1:])   # 36525 d (Julian century)
+    search = relsheet("units", "cy")
+    assert "refused: `cy` is ambiguous" in search.stdout
+    assert relsheet("units", "zzzq").stdout.strip() == "no unit name contains `zzzq`"
+
+
+def test_eval_csv_and_markdown(sheet_file):
+    path = sheet_file("a = 2 km\n")
+    assert relsheet("eval", str(path), "--format", "csv").stdout == "name,value,sigma,unit\na,2.0,,km\n"
+    assert "| `a` | 2 | km |" in relsheet("eval", str(path), "--format", "md").stdout
