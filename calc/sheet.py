@@ -570,10 +570,6 @@ class Sheet:
                                        span=program.deps[failed[0]], source=source)
             return run_cell(program, self._values)
 
-    def overridden(self) -> list[str]:
-        """Cells whose definition no longer is the file's: overrides and new cells."""
-        return [name for name, cell in self._cells.items() if cell.source is not self.source]
-
     def uses(self, name: str) -> set[str]:
         """The cells that cell ``name`` uses directly."""
         return set(self._graph.uses.get(name, ()))

@@ -277,10 +277,6 @@ def parse_number(tok: Token) -> float:
     return value
 
 
-def _span_of(node) -> Span:
-    return token_span(node) if isinstance(node, Token) else node.span
-
-
 class NodeBuilder(Transformer):
     """Turns LALR reductions into nodes. Method names follow grammar rules and aliases."""
 

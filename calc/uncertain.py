@@ -70,13 +70,6 @@ class Uncertain:
                          {k: p * scale for k, p in self.parts.items()})
 
     # -- arithmetic (first order)
-    def _other(self, other):
-        if isinstance(other, Uncertain):
-            return other.nominal, other.parts
-        if isinstance(other, (Record, RecordList)):
-            return other._refuse()
-        return other, {}
-
     def __add__(self, other):
         return _add(self, other, sign=1.0)
 

@@ -25,7 +25,6 @@ Angle = Annotated[u.Quantity, "angle"]
 AngularRate = Annotated[u.Quantity, "angle per time"]
 AngularMomentum = Annotated[u.Quantity, "angular momentum"]
 Dimensionless = Annotated[u.Quantity, "dimensionless"]
-Any = Annotated[u.Quantity, "any quantity"]
 
 #: The largest array ``span`` and ``logspan`` will make (memory guard: 80 MB of floats).
 MAX_ARRAY_LENGTH = 10_000_000
