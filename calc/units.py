@@ -5,7 +5,7 @@ Extras beyond astropy: ``century`` (the Julian century, 36525 d, in which
 per-century rates are published). astropy already knows ``AU``, ``Msun``,
 ``Rsun``, ``Mearth``, ``Rearth``, ``Mjup``, ``mas``, ``uas`` and ``lsec``.
 ``cy`` is refused: astropy reads it as the cycle, astronomers write it for the
-century.
+century; so is ``cyr``, astropy's centiyear.
 
 The units built on astronomical constants (solar, terrestrial and jovian
 masses, radii, luminosity) follow the sheet's pinned constant sets.
@@ -31,6 +31,9 @@ REFUSED_UNITS: dict[str, tuple[str, str]] = {
     "cy": ("`cy` is ambiguous: astropy reads it as the cycle (2π rad), "
            "astronomers write it for the century",
            "write `cycle` for the angle or `century` for 36525 days"),
+    "cyr": ("`cyr` is ambiguous: astropy reads it as the centiyear (0.01 yr), "
+            "a reader may take it for the century",
+            "write `century` for 36525 days, or `0.01 yr`"),
 }
 
 # Units that astropy derives from astronomical constants, by the constant they stand for.

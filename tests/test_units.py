@@ -45,6 +45,12 @@ def test_cy_is_refused_with_both_readings():
     assert err.message.startswith("`cy` is ambiguous")
 
 
+def test_cyr_is_refused_too():
+    # astropy reads `cyr` as the centiyear (c- prefix on yr): 0.01 yr, not a century
+    err = only_error(evaluate("x = 2 arcsec / cyr"), "x")
+    assert err.message.startswith("`cyr` is ambiguous: astropy reads it as the centiyear")
+
+
 def test_per_century_rate():
     sheet = evaluate("x = 1 arcsec / yr in arcsec / century")
     assert sheet["x"].value == pytest.approx(100.0)
