@@ -51,6 +51,16 @@ def _cache_dir() -> Path:
     return Path(base) / "relsheet"
 
 
+def _prune_grammar_caches(folder: Path, keep: Path, spare: int = 4) -> None:
+    """Keep the newest few analysed grammars (other installed versions may want theirs)."""
+    caches = sorted(folder.glob("grammar-*.cache"), key=lambda p: p.stat().st_mtime, reverse=True)
+    for old in [p for p in caches if p != keep][spare:]:
+        try:
+            old.unlink()
+        except OSError:
+            pass
+
+
 @lru_cache(maxsize=1)
 def _parser() -> tuple[Lark, SheetLexer]:
     path = grammar_path()
@@ -61,8 +71,11 @@ def _parser() -> tuple[Lark, SheetLexer]:
     cache_dir = _cache_dir()
     try:
         cache_dir.mkdir(parents=True, exist_ok=True)
-        cache_file = str(cache_dir / f"grammar-{key}.cache")
-        parser = Lark(text, cache=cache_file, **options)
+        cache_file = cache_dir / f"grammar-{key}.cache"
+        fresh = not cache_file.exists()
+        parser = Lark(text, cache=str(cache_file), **options)
+        if fresh:
+            _prune_grammar_caches(cache_dir, keep=cache_file)
     except OSError:
         # a read-only home still parses, only slower to start
         parser = Lark(text, **options)
