@@ -87,8 +87,9 @@ class SheetLexer(Lexer):
         ops = sorted(self.operators, key=len, reverse=True)
         parts.append("(?P<OP>" + "|".join(re.escape(o) for o in ops) + ")")
         space = "|".join(by_name[n].pattern.to_regexp() for n in sorted(ignored))
-        parts.insert(0, f"(?P<SPACE>{space})")
-        self.master = re.compile("|".join(parts))
+        # white space before a token is consumed by the same match (half the regex calls)
+        self.master = re.compile(f"(?:{space})*(?:" + "|".join(parts) + ")")
+        self.trailing_space = re.compile(f"(?:{space})*\\Z")
         self.group_names = {n.lstrip("_") or n: n for n in _PATTERN_TERMINALS}
         self.open_brackets: list[Token] = []
         self.last: Token | None = None
@@ -136,16 +137,17 @@ class SheetLexer(Lexer):
         line = 1
         line_start = 0
         while pos < end:
-            m = match(text, pos)
+            m = match(text, pos, end)
             if m is None:
-                raise UnexpectedCharacters(text, pos, line, pos - line_start + 1,
+                if self.trailing_space.match(text, pos, end):
+                    return
+                bad = pos + len(text[pos:end]) - len(text[pos:end].lstrip(" \t\f"))
+                raise UnexpectedCharacters(text, bad, line, bad - line_start + 1,
                                            allowed=None, considered_tokens=None)
             kind = m.lastgroup
             stop = m.end()
-            if kind == "SPACE":
-                pos = stop
-                continue
-            value = m.group()
+            pos = m.start(kind)
+            value = m.group(kind)
             column = pos - line_start + 1
             if kind == "OP":
                 kind = operators[value]
