@@ -58,8 +58,12 @@ def atomic_write(path: str | Path, data: bytes) -> None:
 
     target = Path(path)
     folder = target.parent
-    mode = target.stat().st_mode if target.exists() else None
-    handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    try:
+        mode = target.stat().st_mode if target.exists() else None
+        handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    except OSError as exc:
+        raise InputError(f"cannot write {target}: {exc.strerror}",
+                         source=Source(str(target), "")) from None
     try:
         with os.fdopen(handle, "wb") as out:
             out.write(data)
