@@ -193,7 +193,7 @@ def _apply_overrides(sheet, overrides: list[str]) -> None:
         name = name.strip()
         if not sep or not name:
             raise UsageError(f"--set takes NAME=EXPR, got `{item}`", hint="for example --set a=2 AU")
-        if name not in sheet:
+        if name not in sheet and name not in ("ppn.gamma", "ppn.beta"):
             raise UsageError(f"--set: the sheet has no cell `{name}`",
                              hint=did_you_mean(close_matches(name, sheet.names())))
         sheet.set(name, expr.strip(), label=f"--set {name}")

@@ -70,3 +70,11 @@ def test_set_ppn_from_the_command_line(tmp_path):
     cells = {c["name"]: c for c in json.loads(result.stdout)["cells"]}
     assert cells["ours"]["value"] == pytest.approx(cells["gr"]["value"] / 2)
     assert u.Unit(cells["ours"]["unit"]) == u.arcsec
+
+
+def test_set_ppn_on_a_sheet_without_a_ppn_line():
+    sheet = Sheet.from_text("a = deflection(1 Msun, 1 Rsun)\n")
+    gr = sheet["a"].value
+    changed = {c.name for c in sheet.set("ppn.gamma", "0")}
+    assert changed == {"ppn.gamma", "a"}
+    assert sheet["a"].value == pytest.approx(gr / 2)   # (1 + gamma)/2
