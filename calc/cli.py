@@ -308,7 +308,18 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
     from .units import unit_string
 
     rows: list[tuple[str, ...]] = []
+    pending = sorted(sheet.checks, key=lambda r: r.line)
+
+    def checks_before(line: int | None) -> None:
+        while pending and (line is None or pending[0].line < line):
+            result = pending.pop(0)
+            rows.append(("check", "passed" if result.passed else "FAILED", result.text,
+                         "" if result.passed else result.detail))
+
     for item in sheet.items:
+        own = getattr(item, "source", sheet.source) is sheet.source
+        if own:
+            checks_before(item.line if isinstance(item, Cell) else item.span.line)
         if isinstance(item, Cell):
             summary = (monte_carlo or {}).get(item.name)
             if item.error is not None:
@@ -333,6 +344,7 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
             rows += [("warning", text) for text in item.warnings]
         elif item.heading:
             rows.append(("heading", item.text))
+    checks_before(None)
     name_width = max((len(r[1]) + (2 if r[0] == "field" else 0) for r in rows
                       if r[0] in ("cell", "field")), default=0)
     scalars = [len(r[2]) for r in rows
@@ -347,6 +359,11 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
     for row in rows:
         if row[0] == "heading":
             lines += ["", row[1]]
+        elif row[0] == "check":
+            _, outcome, text, detail = row
+            lines.append(f"  {outcome:<6}  {text}")
+            if detail:
+                lines.append(f"          {detail}")
         elif row[0] == "warning":
             label = "" if row[1].startswith("16 / 50 / 84 %") else "warning: "
             lines.append(f"  {'':<{name_width}}  {label}{row[1]}")
@@ -358,13 +375,6 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
             line = f"  {name:<{name_width}}  {value:<{value_width}}  {unit}" if unit \
                 else f"  {name:<{name_width}}  {value}"
             lines.append(line.rstrip())
-    if sheet.checks:
-        lines += ["", "Checks"]
-        for result in sheet.checks:
-            lines.append(f"  {'passed' if result.passed else 'FAILED'}  line {result.line}  "
-                         f"{result.text}")
-            if not result.passed:
-                lines.append(f"          {result.detail}")
     return "\n".join(lines)
 
 
