@@ -71,3 +71,12 @@ def test_verify_exit_codes_and_summary(tmp_path):
     assert failing.stdout.strip().endswith("1 passed, 1 failed")
     errors = subprocess.run(run + [str(broken)], capture_output=True, text=True)
     assert errors.returncode == 2 and "unknown unit `kmz`" in errors.stderr
+
+
+def test_eval_shows_checks_where_they_stand(tmp_path):
+    path = tmp_path / "c.sheet"
+    path.write_text("## Size\nx = 2 km\ncheck x > 3 km\n## Later\ny = 1\n")
+    out = subprocess.run([sys.executable, "-m", "calc", "eval", str(path)], capture_output=True,
+                         text=True).stdout.splitlines()
+    assert out[2:6] == ["Size", "  x  2  km", "  FAILED  check x > 3 km", "          2 km vs 3 km (>)"]
+    assert out[7] == "Later"
