@@ -64,12 +64,17 @@ class Session:
         self.counter += 1
         label = f"<input {self.counter}>"
         from .parse import parse_prompt_line
-        from .syntax import CellDef
+        from .syntax import CellDef, PPNDef
 
         try:
             parsed = parse_prompt_line(text, Source(label, text))
         except SheetError as err:
             return err.render()
+        if isinstance(parsed, PPNDef):
+            if parsed.parameter not in ("gamma", "beta"):
+                return f"unknown PPN parameter `{parsed.parameter}`: relsheet knows gamma and beta"
+            expression = text.split("=", 1)[1].strip()
+            return self.assign_text(f"ppn.{parsed.parameter}", expression, label)
         if isinstance(parsed, CellDef):
             return self.assign(parsed, text, label)
         try:
@@ -87,11 +92,17 @@ class Session:
         return f"{number} {unit}".strip()
 
     def assign(self, definition, text: str, label: str) -> str:
-        name = definition.name
-        expression = text.split("=", 1)[1].strip()
+        return self.assign_text(definition.name, text.split("=", 1)[1].strip(), label)
+
+    def assign_text(self, name: str, expression: str, label: str) -> str:
         new = name not in self.sheet
-        watched = [] if new else [name, *sorted(self.sheet.downstream(name),
-                                                key=lambda n: self.sheet.cell(n).line)]
+        if new:
+            # a new name can change cells that looked it up (a PPN value, a shadowed constant)
+            seeing = [n for n, p in self.sheet._programs.items() if name in p.looked_up]
+            reached = set(seeing).union(*(self.sheet.downstream(n) for n in seeing))
+        else:
+            reached = {name} | self.sheet.downstream(name)
+        watched = sorted(reached, key=lambda n: self.sheet.cell(n).line)
         before = {n: _shown(self.sheet, n) for n in watched}
         checks_before = [r.passed for r in self.sheet.checks]
         try:
@@ -219,14 +230,16 @@ def written_text(sheet: Sheet, assigned: dict[str, str]) -> str:
     edits = []
     appended = []
     for name, expression in assigned.items():
+        statement = (f"ppn {name[4:]} = {expression}" if name.startswith("ppn.")
+                     else f"{name} = {expression}")
         original = sheet._original.get(name)
-        if original is None or original.name.startswith("ppn."):
-            appended.append(f"{name} = {expression}")
+        if original is None:
+            appended.append(statement)
             continue
         span = original.span
         begin = starts[span.line - 1] + span.column - 1
         end = starts[span.end_line - 1] + span.end_column - 1
-        edits.append((begin, end, f"{name} = {expression}"))
+        edits.append((begin, end, statement))
     for begin, end, replacement in sorted(edits, reverse=True):
         text = text[:begin] + replacement + text[end:]
     if appended:

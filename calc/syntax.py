@@ -462,6 +462,6 @@ class NodeBuilder(Transformer):
 
     def prompt_input(self, children):
         items = [c for c in children if c is not None and not isinstance(c, Token)]
-        if isinstance(items[0], CellDef):
+        if isinstance(items[0], (CellDef, PPNDef)):
             return items[0]
         return self.expression_input(items)

@@ -110,3 +110,25 @@ def test_lexer_covers_every_demo_sheet(path):
     tokens = list(lex(path.read_text(), SheetLexer()))
     assert not [t for t in tokens if t[0] is Error]
     assert "".join(value for _, value in tokens) == path.read_text()
+
+
+def test_ppn_at_the_prompt(tmp_path):
+    path = tmp_path / "d.sheet"
+    path.write_text("a = deflection(1 Msun, 1 Rsun)\n")
+    session = Session(path)
+    answer = session.handle("ppn gamma = 0").splitlines()
+    assert answer[0] == "ppn.gamma = 0  (new cell)"
+    assert answer[1].startswith("a: 1.75119 arcsec → 0.875595 arcsec")
+    assert session.handle("ppn alpha = 1").startswith("unknown PPN parameter `alpha`")
+
+
+def test_write_ppn_lines(tmp_path):
+    path = tmp_path / "p.sheet"
+    path.write_text("ppn beta = 1\na = periapsis_advance(1 Msun, 1 AU, 0.1)\n")
+    session = Session(path)
+    session.handle("ppn beta = 0.9")
+    session.handle("ppn gamma = 1.1")
+    session.handle(":write")
+    assert path.read_text() == ("ppn beta = 0.9\na = periapsis_advance(1 Msun, 1 AU, 0.1)\n"
+                                "ppn gamma = 1.1\n")
+    assert Sheet.load(path).ok
