@@ -831,6 +831,15 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
             program.run = code
     except SheetError as err:
         program.error = err.located(definition.span, source)
+    except (u.UnitScaleError, OverflowError):
+        program.error = _unit_range_error(definition).located(definition.span, source)
+
+
+def _unit_range_error(definition: CellDef) -> UnitError:
+    # astropy decomposes units into SI with a float scale: Msun^11 overflows it
+    return UnitError("a unit's size in SI is outside the range a float can hold",
+                     definition.expr.span,
+                     hint="rescale the inputs or use fewer powers of large units")
 
 
 def finish(program: CellProgram, value) -> u.Quantity:
@@ -860,6 +869,9 @@ def run_cell(program: CellProgram, env: dict) -> u.Quantity:
         return value
     except SheetError as err:
         raise err.located(program.definition.span, program.source) from None
+    except (u.UnitScaleError, OverflowError):
+        raise _unit_range_error(program.definition).located(
+            program.definition.span, program.source) from None
 
 
 def checked(compute):

@@ -89,6 +89,13 @@ def test_percent_unit_after_in():
     assert evaluate("x = 0.25 in %")["x"].to_value(u.percent) == pytest.approx(25)
 
 
+def test_unit_scale_beyond_float_range_is_a_cell_error():
+    # (2e30 kg)^-11 ~ 1e-331 kg^-11 in SI: below the smallest float (common practice: IEEE 754)
+    err = only_error(evaluate("x = 1 / Msun^11"), "x")
+    assert "outside the range a float can hold" in err.message
+    assert err.hint
+
+
 # Property: the unit algebra of a chain agrees with astropy's own.
 _UNITS = ["m", "km", "s", "kg", "AU", "d", "yr", "deg", "arcsec", "W", "J", "Msun", "pc"]
 
@@ -108,6 +115,12 @@ def test_chain_units_agree_with_astropy(factors, number):
         else:
             text += f" {piece}" if " / " not in text else f" / {name}^{-power}"
             expected = expected * getattr(u, name) ** power
+    try:
+        expected.unit.decompose()
+    except u.UnitScaleError:  # e.g. Msun^-11: the SI scale underflows a float
+        assert "outside the range a float can hold" in only_error(
+            evaluate(f"x = {text}"), "x").message
+        return
     got = evaluate(f"x = {text}")["x"]
     assert got.unit.is_equivalent(expected.unit)
     assert got.to_value(expected.unit) == pytest.approx(expected.value, rel=1e-12)
