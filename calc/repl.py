@@ -112,7 +112,9 @@ class Session:
         self.assigned[name] = expression
         lines = []
         if new:
-            lines.append(f"{name} = {_shown(self.sheet, name)}  (new cell)")
+            note = ("the file sets none; general relativity has 1" if name.startswith("ppn.")
+                    else "new cell")
+            lines.append(f"{name} = {_shown(self.sheet, name)}  ({note})")
         for cell in changed:
             if cell.name == name and new:
                 continue
@@ -182,11 +184,16 @@ class Session:
                 continue
             try:
                 self.sheet.revert(name)
+                origin = "from the file"
             except KeyError:
-                lines.append(f"{name} is not in the file; it stays as typed")
-                continue
+                if not name.startswith("ppn."):
+                    lines.append(f"{name} is not in the file; it stays as typed")
+                    continue
+                # a PPN value typed at the prompt goes back to general relativity
+                self.sheet.set(name, "1", label=f"<revert {name}>")
+                origin = "general relativity"
             del self.assigned[name]
-            lines.append(f"{name} = {_shown(self.sheet, name)}  (from the file)")
+            lines.append(f"{name} = {_shown(self.sheet, name)}  ({origin})")
         return "\n".join(lines) if lines else "no overrides to revert"
 
     def cmd_write(self, args) -> str:

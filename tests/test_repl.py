@@ -117,9 +117,21 @@ def test_ppn_at_the_prompt(tmp_path):
     path.write_text("a = deflection(1 Msun, 1 Rsun)\n")
     session = Session(path)
     answer = session.handle("ppn gamma = 0").splitlines()
-    assert answer[0] == "ppn.gamma = 0  (new cell)"
+    assert answer[0] == "ppn.gamma = 0  (the file sets none; general relativity has 1)"
+    # deflection ∝ (1 + γ)/2: Will 2014, Living Rev. Relativ. 17, 4 (section from memory: 3.4)
     assert answer[1].startswith("a: 1.75119 arcsec → 0.875595 arcsec")
     assert session.handle("ppn alpha = 1").startswith("unknown PPN parameter `alpha`")
+
+
+def test_revert_ppn_typed_at_the_prompt_returns_to_general_relativity(tmp_path):
+    path = tmp_path / "d.sheet"
+    path.write_text("a = deflection(1 Msun, 1 Rsun)\n")
+    session = Session(path)
+    session.handle("ppn gamma = 0")
+    assert session.handle(":revert") == "ppn.gamma = 1  (general relativity)"
+    assert session.handle("a") == "1.75119 arcsec"
+    session.handle(":write")
+    assert "ppn" not in path.read_text()
 
 
 def test_write_ppn_lines(tmp_path):
