@@ -9,6 +9,7 @@ from prompt_toolkit.completion import Completer, Completion
 
 from . import functions
 from .constants import constant_table
+from .scope import PPN_PARAMETERS
 
 _WORD = re.compile(r"[\w.]*$")
 _COMMANDS = ["cells", "deps", "users", "revert", "write", "funcs", "help", "quit"]
@@ -39,7 +40,8 @@ class SheetCompleter(Completer):
                 return [(f"const.{n}", e.description) for n, e in sorted(table.items())
                         if n.startswith(rest)]
             if head == "ppn":
-                return [(f"ppn.{n}", "PPN parameter") for n in ("gamma", "beta") if n.startswith(rest)]
+                return [(f"ppn.{n}", "PPN parameter") for n in PPN_PARAMETERS
+                        if n.startswith(rest)]
             imported = sheet.namespaces.get(head)
             if imported is not None:
                 return [(f"{head}.{n}", f"cell of {imported.source.label}")

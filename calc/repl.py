@@ -64,6 +64,7 @@ class Session:
         self.counter += 1
         label = f"<input {self.counter}>"
         from .parse import parse_prompt_line
+        from .scope import PPN_PARAMETERS
         from .syntax import CellDef, PPNDef
 
         try:
@@ -71,8 +72,9 @@ class Session:
         except SheetError as err:
             return err.render()
         if isinstance(parsed, PPNDef):
-            if parsed.parameter not in ("gamma", "beta"):
-                return f"unknown PPN parameter `{parsed.parameter}`: relsheet knows gamma and beta"
+            if parsed.parameter not in PPN_PARAMETERS:
+                return (f"unknown PPN parameter `{parsed.parameter}`: relsheet knows "
+                        + " and ".join(PPN_PARAMETERS))
             expression = text.split("=", 1)[1].strip()
             return self.assign_text(f"ppn.{parsed.parameter}", expression, label)
         if isinstance(parsed, CellDef):

@@ -84,7 +84,16 @@ def test_set_overrides_and_digits(sheet_file):
     assert f"  P  {period:.9g}  d" in result.stdout.splitlines()
 
 
+def test_set_a_ppn_parameter_the_sheet_does_not_declare(sheet_file):
+    path = sheet_file("a = deflection(1 Msun, 1 Rsun)\n")
+    result = relsheet("eval", str(path), "--set", "ppn.gamma=0")
+    assert result.returncode == 0, result.stderr
+    # (1 + γ)/2 times the GR value 1.75119 arcsec: Will 2014, Living Rev. Relativ. 17, 4
+    assert ["a", "0.875595", "arcsec"] in [line.split() for line in result.stdout.splitlines()]
+
+
 @pytest.mark.parametrize("args, message", [
+    (["eval", "{path}", "--set", "gamma=0"], "relsheet: --set: the sheet has no cell `gamma`"),
     (["eval", "{path}", "--set", "nope=1"], "relsheet: --set: the sheet has no cell `nope`"),
     (["eval", "{path}", "--set", "novalue"], "relsheet: --set takes NAME=EXPR, got `novalue`"),
     (["eval", "{path}", "--digits", "40"], "relsheet: --digits must be between 1 and 17, got 40"),
