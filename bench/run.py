@@ -199,7 +199,7 @@ def p8_what_if(repeats: int) -> Figure:
     import tempfile as _tempfile
 
     from calc import Sheet
-    from calc.repl import Session
+    from calc.interfaces.repl import Session
 
     text = workloads.size_sheet(500)
     with _tempfile.TemporaryDirectory() as folder:

@@ -19,7 +19,7 @@ __all__ = ["Sheet", "Cell", "SheetError", "__version__"]
 def __getattr__(name: str):
     # imported lazily so that `relsheet --help` does not load astropy
     if name in ("Sheet", "Cell"):
-        from . import sheet
+        from .engine import sheet
 
         return getattr(sheet, name)
     if name == "SheetError":

@@ -1,5 +1,5 @@
 """``python -m calc`` runs the relsheet command line."""
 
-from .cli import run
+from .interfaces.cli import run
 
 run()

@@ -1,4 +1,4 @@
-"""calc.annotate and atomic writes: markers, byte-exact round trips, interrupted writes."""
+"""calc.outputs.annotate and atomic writes: markers, byte-exact round trips, interrupted writes."""
 
 from __future__ import annotations
 
@@ -8,8 +8,8 @@ import sys
 
 import pytest
 
-from calc.annotate import annotate_file
-from calc.sheetfile import atomic_write
+from calc.files import atomic_write
+from calc.outputs.annotate import annotate_file
 
 
 def run(*args):

@@ -8,8 +8,8 @@ from pathlib import Path
 
 import pytest
 
-from calc import functions
-from calc.catalog import CAUTION, entry, listing
+from calc.physics import functions
+from calc.physics.catalog import CAUTION, entry, listing
 
 ROOT = Path(__file__).resolve().parent.parent
 

@@ -1,4 +1,4 @@
-"""calc.checks and `relsheet verify`: expectations in the sheet."""
+"""calc.engine.checks and `relsheet verify`: expectations in the sheet."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""calc.cli through real processes: output formats, exit codes, error reports."""
+"""calc.interfaces.cli through real processes: output formats, exit codes, error reports."""
 
 from __future__ import annotations
 
@@ -143,7 +143,7 @@ def test_demo_sheet_evaluates_cleanly():
 
 def test_console_script_entry_point_is_declared():
     text = (ROOT / "pyproject.toml").read_text()
-    assert 'relsheet = "calc.cli:run"' in text
+    assert 'relsheet = "calc.interfaces.cli:run"' in text
 
 
 def test_units_command():

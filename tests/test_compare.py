@@ -1,4 +1,4 @@
-"""calc.compare: diff and deps; the watch command."""
+"""calc.outputs.compare: diff and deps; the watch command."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import sys
 import time
 
 from calc import Sheet
-from calc.compare import dependency_table, dependency_tree, diff
+from calc.outputs.compare import dependency_table, dependency_tree, diff
 
 SHEET = "M = 1 Msun\na = 1 AU\nP = orbital_period(M, a)\nm = M in kg\nv = orbital_speed(M, a)\n"
 

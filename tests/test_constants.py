@@ -1,11 +1,11 @@
-"""calc.constants: constant sets, pinning and shadowing, against published CODATA / IAU values."""
+"""calc.physics.constants: constant sets, pinning and shadowing, against published CODATA / IAU values."""
 
 from __future__ import annotations
 
 import astropy.units as u
 import pytest
 
-from calc.constants import ConstantSelection, constant_table, default_selection, parse_selection
+from calc.physics.constants import ConstantSelection, constant_table, default_selection, parse_selection
 from conftest import evaluate, only_error
 
 

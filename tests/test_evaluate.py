@@ -1,4 +1,4 @@
-"""calc.evaluate and calc.scope: values, the chain rule, and the errors of evaluation."""
+"""calc.engine.compile and calc.language.scope: values, the chain rule, and the errors of evaluation."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""calc.export: every format parsed back."""
+"""calc.outputs.export: every format parsed back."""
 
 from __future__ import annotations
 
@@ -13,7 +13,7 @@ import pytest
 
 from calc import Sheet
 from calc.errors import SheetError
-from calc.export import macro_name, to_csv, to_markdown, to_tex
+from calc.outputs.export import macro_name, to_csv, to_markdown, to_tex
 
 SHEET = """## Pulsar
 # masses from a timing fit

@@ -1,4 +1,4 @@
-"""calc.functions.binaries against PSR B1913+16 and Peters' equations."""
+"""calc.physics.functions.binaries against PSR B1913+16 and Peters' equations."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy.integrate import quad, solve_ivp
 
-from calc.functions import binaries
+from calc.physics.functions import binaries
 from conftest import evaluate
 
 # Weisberg & Huang 2016, ApJ 829, 55: PSR B1913+16 (masses rounded to 3 digits, REFERENCES.md)

@@ -1,4 +1,4 @@
-"""calc.functions.elementary: values against Python's math module and numpy (reference libraries)."""
+"""calc.physics.functions.elementary: values against Python's math module and numpy (reference libraries)."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""calc.functions.gyroscopes against the Gravity Probe B predictions."""
+"""calc.physics.functions.gyroscopes against the Gravity Probe B predictions."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""calc.functions.light against published values and ERFA (pyerfa)."""
+"""calc.physics.functions.light against published values and ERFA (pyerfa)."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import erfa
 import numpy as np
 import pytest
 
-from calc.functions import light
+from calc.physics.functions import light
 from conftest import evaluate, only_error
 
 GM_SUN = 1.3271244e20

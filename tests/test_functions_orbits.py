@@ -1,4 +1,4 @@
-"""calc.functions.orbits against published values and limits."""
+"""calc.physics.functions.orbits against published values and limits."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 
-from calc.functions import orbits
+from calc.physics.functions import orbits
 from conftest import evaluate, only_error
 
 GM_SUN = 1.3271244e20   # IAU 2015 Resolution B3, nominal

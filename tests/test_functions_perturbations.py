@@ -1,4 +1,4 @@
-"""calc.functions.perturbations: Gauss's secular rates against Clemence and Laplace–Lagrange."""
+"""calc.physics.functions.perturbations: Gauss's secular rates against Clemence and Laplace–Lagrange."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import pytest
 from scipy.integrate import quad
 
 from calc import Sheet
-from calc.functions import perturbations
+from calc.physics.functions import perturbations
 from conftest import evaluate, only_error
 
 # J2000 mean elements (Standish, "Keplerian elements for approximate positions of the major

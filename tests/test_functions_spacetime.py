@@ -1,4 +1,4 @@
-"""calc.functions.spacetime against published values and reference libraries."""
+"""calc.physics.functions.spacetime against published values and reference libraries."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from calc.functions import spacetime
+from calc.physics.functions import spacetime
 from conftest import evaluate, only_error
 
 GM_SUN = 1.3271244e20      # IAU 2015 Resolution B3, nominal (m^3 s^-2)

@@ -1,4 +1,4 @@
-"""calc.graph and calc.sheet: order, cycles, duplicates, failed inputs, recomputation."""
+"""calc.engine.graph and calc.engine.sheet: order, cycles, duplicates, failed inputs, recomputation."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import astropy.units as u
 import pytest
 
 from calc import Sheet
+from calc.engine.graph import DependencyGraph
 from calc.errors import CycleError, DuplicateCellError, InputFailedError, SheetSyntaxError
-from calc.graph import DependencyGraph
 from conftest import evaluate, only_error
 
 

@@ -1,4 +1,4 @@
-"""calc.lexer: the fast lexer yields exactly the tokens lark's own standard lexer yields
+"""calc.language.lexer: the fast lexer yields exactly the tokens lark's own standard lexer yields
 (after the line joining inside brackets that the language specifies)."""
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ from lark import Lark, Token
 from lark.exceptions import UnexpectedCharacters
 
 from calc.errors import SheetError
-from calc.parse import _parser, grammar_path
+from calc.language.parse import _parser, grammar_path
 
 SAMPLES = [
     "## Heading\n# note\nconstants codata2018 iau2015\n",

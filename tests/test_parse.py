@@ -1,4 +1,4 @@
-"""calc.parse and calc.syntax: the grammar, statements, positions, syntax errors."""
+"""calc.language.parse and calc.language.syntax: the grammar, statements, positions, syntax errors."""
 
 from __future__ import annotations
 
@@ -8,9 +8,9 @@ from hypothesis import strategies as st
 
 from calc import Sheet
 from calc.errors import InputError, SheetError, SheetSyntaxError, Source
-from calc.lexer import MAX_BRACKET_DEPTH
-from calc.parse import logical_lines, parse_expression, parse_sheet
-from calc.syntax import (
+from calc.language.lexer import MAX_BRACKET_DEPTH
+from calc.language.parse import logical_lines, parse_expression, parse_sheet
+from calc.language.syntax import (
     ArrayLiteral,
     BinaryOp,
     Call,

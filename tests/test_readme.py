@@ -32,7 +32,7 @@ def test_readme_demo_sheet_exists():
 
 
 def test_function_list_is_generated_from_the_registry():
-    from calc.catalog import markdown_table
+    from calc.physics.catalog import markdown_table
 
     text = (ROOT / "README.md").read_text(encoding="utf-8")
     block = text.split("keeps it current -->\n", 1)[1].split("\n<!-- end of functions -->", 1)[0]

@@ -1,4 +1,4 @@
-"""calc.records in the language: orbit records, fields, arrays of records, output."""
+"""calc.physics.records in the language: orbit records, fields, arrays of records, output."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ import astropy.units as u
 import pytest
 
 from calc import Sheet
-from calc.records import Record, RecordList
+from calc.physics.records import Record, RecordList
 from conftest import evaluate, only_error
 
 PLANETS = """\

@@ -1,4 +1,4 @@
-"""calc.repl: a real PromptSession driven through a pipe, the completer, :write, the lexer."""
+"""calc.interfaces.repl: a real PromptSession driven through a pipe, the completer, :write, the lexer."""
 
 from __future__ import annotations
 
@@ -12,9 +12,9 @@ from pygments import lex
 from pygments.token import Error
 
 from calc import Sheet
-from calc.completion import SheetCompleter
-from calc.highlight import SheetLexer
-from calc.repl import Session, run
+from calc.interfaces.completion import SheetCompleter
+from calc.interfaces.highlight import SheetLexer
+from calc.interfaces.repl import Session, run
 
 DEMOS = sorted((Path(__file__).resolve().parent.parent / "sheets_demo").glob("*.sheet"))
 SHEET = "## Binary\nm1 = 1.35 Msun  # the pulsar\nm2 = 1.25 Msun\nPb = 0.41 day\n" \

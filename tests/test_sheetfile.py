@@ -1,4 +1,4 @@
-"""calc.sheetfile: reading files (UTF-8, BOM, size, missing files)."""
+"""calc.files: reading files (UTF-8, BOM, size, missing files)."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import pytest
 
 from calc import Sheet
 from calc.errors import InputError
-from calc.sheetfile import MAX_SHEET_BYTES, decode_sheet
+from calc.files import MAX_SHEET_BYTES, decode_sheet
 
 
 def test_invalid_utf8_names_line_and_column(tmp_path):

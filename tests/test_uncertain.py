@@ -1,4 +1,4 @@
-"""calc.uncertain: first-order propagation (GUM) and Monte Carlo, against analytic results."""
+"""calc.engine.uncertain: first-order propagation (GUM) and Monte Carlo, against analytic results."""
 
 from __future__ import annotations
 
@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from calc import Sheet
-from calc.format import format_measured
+from calc.outputs.format import format_measured
 from conftest import evaluate, only_error
 
 

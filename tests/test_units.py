@@ -1,4 +1,4 @@
-"""calc.units: the trade's units, refusals, angle handling, and agreement with astropy."""
+"""calc.physics.units: the trade's units, refusals, angle handling, and agreement with astropy."""
 
 from __future__ import annotations
 

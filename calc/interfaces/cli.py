@@ -14,7 +14,7 @@ import os
 import sys
 import traceback
 
-from .errors import SheetError, UsageError
+from ..errors import SheetError, UsageError
 
 EXIT_OK = 0
 EXIT_CHECK_FAILED = 1
@@ -186,8 +186,8 @@ def _report(errors: list[SheetError], debug: bool) -> None:
 
 
 def _apply_overrides(sheet, overrides: list[str]) -> None:
-    from .scope import PPN_PARAMETERS
-    from .units import close_matches, did_you_mean
+    from ..language.scope import PPN_PARAMETERS
+    from ..physics.units import close_matches, did_you_mean
 
     for item in overrides:
         name, sep, expr = item.partition("=")
@@ -201,7 +201,7 @@ def _apply_overrides(sheet, overrides: list[str]) -> None:
 
 
 def cmd_eval(args) -> int:
-    from .sheet import Sheet
+    from ..engine.sheet import Sheet
 
     if not 1 <= args.digits <= 17:
         raise UsageError(f"--digits must be between 1 and 17, got {args.digits}")
@@ -212,7 +212,7 @@ def cmd_eval(args) -> int:
     sheet = Sheet.load(args.file, root=args.root)
     _apply_overrides(sheet, args.overrides)
     if args.sigma_budget is not None and args.sigma_budget not in sheet:
-        from .units import close_matches, did_you_mean
+        from ..physics.units import close_matches, did_you_mean
 
         raise UsageError(f"--sigma-budget: the sheet has no cell `{args.sigma_budget}`",
                          hint=did_you_mean(close_matches(args.sigma_budget, sheet.names())))
@@ -225,13 +225,13 @@ def cmd_eval(args) -> int:
             progress.close()
         monte_carlo["__samples__"] = args.mc
     if args.format == "json":
-        from .export import to_json
+        from ..outputs.export import to_json
 
         print(to_json(sheet, monte_carlo))
     elif args.format in ("csv", "md"):
         if monte_carlo is not None:
             raise UsageError("--mc prints as text or json", hint="add --format json")
-        from .export import to_csv, to_markdown
+        from ..outputs.export import to_csv, to_markdown
 
         sys.stdout.write((to_csv if args.format == "csv" else to_markdown)(sheet))
     else:
@@ -276,8 +276,8 @@ class _Progress:
 
 def render_sigma_budget(sheet, name: str, digits: int) -> str:
     """Each independent input's share of σ² of one cell, largest first."""
-    from .format import format_quantity
-    from .units import unit_string
+    from ..outputs.format import format_quantity
+    from ..physics.units import unit_string
 
     cell = sheet.cell(name)
     if cell.error is not None:
@@ -302,11 +302,11 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
     """Headings, then aligned name / value / unit; errors inline."""
     import numpy as np
 
-    from .format import format_point, format_quantity, format_with_sigma, record_rows, record_summary
-    from .records import is_record
-    from .sheet import Cell
-    from .uncertain import Summary
-    from .units import unit_string
+    from ..engine.sheet import Cell
+    from ..engine.uncertain import Summary
+    from ..outputs.format import format_point, format_quantity, format_with_sigma, record_rows, record_summary
+    from ..physics.records import is_record
+    from ..physics.units import unit_string
 
     rows: list[tuple[str, ...]] = []
     pending = sorted(sheet.checks, key=lambda r: r.line)
@@ -380,7 +380,7 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
 
 
 def cmd_verify(args) -> int:
-    from .sheet import Sheet
+    from ..engine.sheet import Sheet
 
     passed = failed = 0
     broken = False
@@ -411,7 +411,7 @@ def cmd_verify(args) -> int:
 
 
 def cmd_annotate(args) -> int:
-    from .annotate import annotate_file
+    from ..outputs.annotate import annotate_file
 
     if not 1 <= args.digits <= 17:
         raise UsageError(f"--digits must be between 1 and 17, got {args.digits}")
@@ -432,9 +432,9 @@ def cmd_annotate(args) -> int:
 
 
 def cmd_export(args) -> int:
-    from . import export
-    from .sheet import Sheet
-    from .sheetfile import atomic_write
+    from ..engine.sheet import Sheet
+    from ..files import atomic_write
+    from ..outputs import export
 
     sheet = Sheet.load(args.file, root=args.root)
     writer = {"md": export.to_markdown, "csv": export.to_csv, "json": export.to_json,
@@ -451,15 +451,15 @@ def cmd_export(args) -> int:
 
 
 def cmd_deps(args) -> int:
-    from .compare import dependency_table, dependency_tree
-    from .sheet import Sheet
+    from ..engine.sheet import Sheet
+    from ..outputs.compare import dependency_table, dependency_tree
 
     sheet = Sheet.load(args.file)
     if args.cell is None:
         print(dependency_table(sheet, args.users))
         return EXIT_OK
     if args.cell not in sheet:
-        from .units import close_matches, did_you_mean
+        from ..physics.units import close_matches, did_you_mean
 
         raise UsageError(f"the sheet has no cell `{args.cell}`",
                          hint=did_you_mean(close_matches(args.cell, sheet.names())))
@@ -468,8 +468,8 @@ def cmd_deps(args) -> int:
 
 
 def cmd_diff(args) -> int:
-    from .compare import diff, sheet_at_revision
-    from .sheet import Sheet
+    from ..engine.sheet import Sheet
+    from ..outputs.compare import diff, sheet_at_revision
 
     modes = sum(x is not None for x in (args.other, args.rev)) + bool(args.constants or args.against)
     if modes != 1:
@@ -497,8 +497,8 @@ def cmd_watch(args) -> int:
     import time
     from pathlib import Path
 
-    from .compare import diff
-    from .sheet import Sheet
+    from ..engine.sheet import Sheet
+    from ..outputs.compare import diff
 
     path = Path(args.file)
     sheet = Sheet.load(path)
@@ -531,8 +531,8 @@ def cmd_watch(args) -> int:
 
 
 def cmd_units(args) -> int:
-    from .constants import default_selection
-    from .units import REFUSED_UNITS, unit_table
+    from ..physics.constants import default_selection
+    from ..physics.units import REFUSED_UNITS, unit_table
 
     print(render_units(unit_table(default_selection()), args.query, REFUSED_UNITS))
     return EXIT_OK
@@ -540,7 +540,7 @@ def cmd_units(args) -> int:
 
 def render_units(table, query: str | None, refused: dict) -> str:
     """Units matching ``query``: name, physical type, value in SI; refused names explained."""
-    from .units import describe
+    from ..physics.units import describe
 
     trade = ["AU", "au", "pc", "lsec", "lyr", "century", "yr", "d", "Msun", "Rsun", "Mearth",
              "Rearth", "Mjup", "Rjup", "mas", "uas", "arcsec", "deg", "rad"]
@@ -583,7 +583,7 @@ def cmd_repl(args) -> int:
 
 
 def cmd_funcs(args) -> int:
-    from .catalog import entry, listing
+    from ..physics.catalog import entry, listing
 
     print(entry(args.name) if args.name else listing())
     return EXIT_OK

@@ -15,8 +15,8 @@ from functools import cache
 import astropy.units as u
 import numpy as np
 
+from ...errors import ArgumentError
 from ..constants import active, active_selection
-from ..errors import ArgumentError
 from ..units import quantity, unit_table
 from ..validity import warn
 from . import args as check

@@ -10,7 +10,7 @@ from __future__ import annotations
 import astropy.units as u
 import numpy as np
 
-from ..errors import ArgumentError
+from ...errors import ArgumentError
 from ..units import quantity
 from ..validity import warn
 from . import args as check

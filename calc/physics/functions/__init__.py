@@ -14,7 +14,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from functools import cached_property
 
-from ..errors import ArgumentError
+from ...errors import ArgumentError
 
 #: Topic modules, imported on the first look-up.
 TOPICS = ("spacetime", "orbits", "perturbations", "light", "gyroscopes", "binaries", "elementary")

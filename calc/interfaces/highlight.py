@@ -21,7 +21,7 @@ from pygments.token import (
     Whitespace,
 )
 
-from .syntax import RESERVED_WORDS
+from ..language.syntax import RESERVED_WORDS
 
 _NUMBER = r"(\d[\d_]*(\.[\d_]*)?|\.\d[\d_]*)([eE][+\-\u2212]?\d[\d_]*)?%?"
 _NAME = r"[^\W\d]\w*"

@@ -18,12 +18,12 @@ from dataclasses import dataclass
 import astropy.units as u
 import numpy as np
 
-from .errors import InputFailedError, SheetError, Source, UnitError
-from .evaluate import CellProgram, compile_cell, run_cell
-from .format import format_quantity
-from .syntax import CellDef, Chain, CheckDef, Name, Number, Percent
+from ..errors import InputFailedError, SheetError, Source, UnitError
+from ..language.syntax import CellDef, Chain, CheckDef, Name, Number, Percent
+from ..outputs.format import format_quantity
+from ..physics.units import describe, unit_string, value_in
+from .compile import CellProgram, compile_cell, run_cell
 from .uncertain import Uncertain
-from .units import describe, unit_string, value_in
 
 
 @dataclass

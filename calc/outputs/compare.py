@@ -7,11 +7,11 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+from ..engine.sheet import Cell, Sheet
+from ..errors import InputError
+from ..files import decode_sheet
+from ..physics.records import is_record
 from .format import format_quantity
-from .records import is_record
-from .sheet import Cell, Sheet
-from .sheetfile import decode_sheet
 
 
 def _shown(cell: Cell | None) -> str:

@@ -21,8 +21,7 @@ from operator import itemgetter
 import astropy.units as u
 import numpy as np
 
-from . import functions, uncertain, validity
-from .errors import (
+from ..errors import (
     ArgumentError,
     DomainError,
     InputError,
@@ -33,9 +32,8 @@ from .errors import (
     Span,
     UnitError,
 )
-from .records import RECORD_TYPES, Record, RecordList
-from .scope import PPN_PARAMETERS, Scope
-from .syntax import (
+from ..language.scope import PPN_PARAMETERS, Scope
+from ..language.syntax import (
     ArrayLiteral,
     BinaryOp,
     Call,
@@ -53,8 +51,9 @@ from .syntax import (
     UnaryOp,
     UnitProduct,
 )
-from .uncertain import Uncertain
-from .units import (
+from ..physics import functions, validity
+from ..physics.records import RECORD_TYPES, Record, RecordList
+from ..physics.units import (
     angle_equivalencies,
     close_matches,
     conversion_scale,
@@ -69,6 +68,8 @@ from .units import (
     unit_quotient,
     value_in,
 )
+from . import uncertain
+from .uncertain import Uncertain
 
 #: Deepest nesting of operations in one expression (keeps recursion far from Python's limit).
 MAX_EXPRESSION_DEPTH = 150

@@ -11,8 +11,8 @@ from typing import Annotated
 import astropy.units as u
 import numpy as np
 
+from ...errors import ArgumentError
 from ..constants import active
-from ..errors import ArgumentError
 from ..units import is_one, physical_type, value_in
 from ..validity import warn
 

@@ -16,7 +16,7 @@ from typing import Union
 
 from lark import Token, Transformer
 
-from .errors import SheetSyntaxError, Span
+from ..errors import SheetSyntaxError, Span
 
 # ---- expressions --------------------------------------------------------------
 

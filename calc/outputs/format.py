@@ -12,7 +12,7 @@ import math
 import astropy.units as u
 import numpy as np
 
-from .units import unit_string
+from ..physics.units import unit_string
 
 DEFAULT_DIGITS = 6
 #: Arrays longer than this show their first and last few values.
@@ -92,7 +92,7 @@ def format_with_sigma(value, sigma, digits: int = DEFAULT_DIGITS) -> str:
 
 def record_rows(value, digits: int = DEFAULT_DIGITS) -> list[tuple[str, str, str]]:
     """(field, number text, unit text) rows of a record; one row per item of a record list."""
-    from .records import Record
+    from ..physics.records import Record
 
     if isinstance(value, Record):
         return [(f".{name}", *format_quantity(q, digits)) for name, q in value.fields.items()]
@@ -100,7 +100,7 @@ def record_rows(value, digits: int = DEFAULT_DIGITS) -> list[tuple[str, str, str
 
 
 def record_summary(value) -> str:
-    from .records import Record
+    from ..physics.records import Record
 
     if isinstance(value, Record):
         return f"({value.kind})"

@@ -19,7 +19,7 @@ import lark
 from lark import Lark, Token
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 
-from .errors import InputError, SheetError, SheetSyntaxError, Source, Span
+from ..errors import InputError, SheetError, SheetSyntaxError, Source, Span
 from .lexer import SheetLexer
 from .syntax import RESERVED_WORDS, CellDef, ExpressionLine, NodeBuilder, Statement, token_span
 
@@ -38,7 +38,7 @@ _TERMINAL_WORDS = {
 
 def grammar_path() -> Path:
     """The grammar file: inside the installed package, or beside it in a source checkout."""
-    here = Path(__file__).resolve().parent
+    here = Path(__file__).resolve().parent.parent  # the calc package
     for candidate in (here / "grammar" / "sheet.lark", here.parent / "grammar" / "sheet.lark"):
         if candidate.is_file():
             return candidate

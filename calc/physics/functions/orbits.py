@@ -9,8 +9,8 @@ from __future__ import annotations
 import astropy.units as u
 import numpy as np
 
+from ...errors import ArgumentError
 from ..constants import active
-from ..errors import ArgumentError
 from ..units import century, quantity
 from . import args as check
 from . import register

@@ -18,10 +18,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from . import uncertain, validity
-from .checks import CheckResult, compile_check, run_check
-from .constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection, using
-from .errors import (
+from ..errors import (
     CycleError,
     DuplicateCellError,
     InputError,
@@ -31,14 +28,18 @@ from .errors import (
     Source,
     Span,
 )
-from .evaluate import CellProgram, compile_cell, run_cell
+from ..files import read_sheet, resolve_import
+from ..language.parse import parse_expression, parse_sheet
+from ..language.scope import PPN_PARAMETERS, Scope
+from ..language.syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef, UseDef
+from ..physics import validity
+from ..physics.constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection, using
+from ..physics.records import is_record
+from ..physics.units import close_matches, did_you_mean, quantity
+from . import uncertain
+from .checks import CheckResult, compile_check, run_check
+from .compile import CellProgram, compile_cell, run_cell
 from .graph import DependencyGraph
-from .parse import parse_expression, parse_sheet
-from .records import is_record
-from .scope import PPN_PARAMETERS, Scope
-from .sheetfile import read_sheet, resolve_import
-from .syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef, UseDef
-from .units import close_matches, did_you_mean, quantity
 
 
 class Cell:

@@ -28,9 +28,9 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
-from .errors import ArgumentError, DomainError
-from .records import Record, RecordList
-from .units import conversion_scale, quantity
+from ..errors import ArgumentError, DomainError
+from ..physics.records import Record, RecordList
+from ..physics.units import conversion_scale, quantity
 
 #: Largest array that may carry `±` (each element is an input of its own).
 MAX_UNCERTAIN_ELEMENTS = 1000

@@ -7,9 +7,9 @@ import re
 
 from prompt_toolkit.completion import Completer, Completion
 
-from . import functions
-from .constants import constant_table
-from .scope import PPN_PARAMETERS
+from ..language.scope import PPN_PARAMETERS
+from ..physics import functions
+from ..physics.constants import constant_table
 
 _WORD = re.compile(r"[\w.]*$")
 _COMMANDS = ["cells", "deps", "users", "revert", "write", "funcs", "help", "quit"]

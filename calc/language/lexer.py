@@ -20,7 +20,7 @@ from lark import Token
 from lark.exceptions import UnexpectedCharacters
 from lark.lexer import Lexer
 
-from .errors import InputError, SheetSyntaxError, Span
+from ..errors import InputError, SheetSyntaxError, Span
 
 #: Brackets nested deeper than this are refused before they reach the parser.
 MAX_BRACKET_DEPTH = 64

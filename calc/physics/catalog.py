@@ -6,8 +6,8 @@ registry, so it cannot drift from what sheets can call.
 
 from __future__ import annotations
 
+from ..errors import UsageError
 from . import functions
-from .errors import UsageError
 from .units import close_matches, did_you_mean
 
 TOPIC_TITLES = {

@@ -10,9 +10,9 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..engine.sheet import Cell, Sheet
+from ..physics.records import is_record
 from .format import format_quantity, record_summary
-from .records import is_record
-from .sheet import Cell, Sheet
 
 _BOM = b"\xef\xbb\xbf"
 
@@ -72,7 +72,7 @@ def annotated_text(sheet: Sheet, text: str, digits: int = 6) -> str:
 def annotate_file(path: str | Path, digits: int = 6, stale_only: bool = False,
                   root: str | Path | None = None):
     """Annotate ``path`` in place (atomically). Returns (sheet, changed line numbers)."""
-    from .sheetfile import atomic_write, decode_sheet
+    from ..files import atomic_write, decode_sheet
 
     raw = Path(path).read_bytes()
     source = decode_sheet(raw, str(path))

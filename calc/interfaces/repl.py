@@ -13,8 +13,8 @@ import hashlib
 import os
 from pathlib import Path
 
-from .errors import SheetError, Source
-from .sheet import Sheet
+from ..engine.sheet import Sheet
+from ..errors import SheetError, Source
 
 HELP = """\
 expression            show its value (`adv in arcsec / century`)
@@ -28,8 +28,8 @@ name = expression     add a cell or override one; shows what changed (old → ne
 
 
 def _shown(sheet: Sheet, name: str) -> str:
-    from .format import format_quantity, record_summary
-    from .records import is_record
+    from ..outputs.format import format_quantity, record_summary
+    from ..physics.records import is_record
 
     cell = sheet.cell(name)
     if cell.error is not None:
@@ -63,9 +63,9 @@ class Session:
             return self.command(text[1:].split())
         self.counter += 1
         label = f"<input {self.counter}>"
-        from .parse import parse_prompt_line
-        from .scope import PPN_PARAMETERS
-        from .syntax import CellDef, PPNDef
+        from ..language.parse import parse_prompt_line
+        from ..language.scope import PPN_PARAMETERS
+        from ..language.syntax import CellDef, PPNDef
 
         try:
             parsed = parse_prompt_line(text, Source(label, text))
@@ -83,8 +83,8 @@ class Session:
             value = self.sheet.evaluate(text, label)
         except SheetError as err:
             return err.render()
-        from .format import format_quantity, record_rows, record_summary
-        from .records import is_record
+        from ..outputs.format import format_quantity, record_rows, record_summary
+        from ..physics.records import is_record
 
         if is_record(value):
             rows = record_rows(value)
@@ -140,7 +140,7 @@ class Session:
         name, args = words[0], words[1:]
         handler = getattr(self, f"cmd_{name}", None)
         if handler is None:
-            from .units import close_matches, did_you_mean
+            from ..physics.units import close_matches, did_you_mean
 
             known = [m[4:] for m in dir(self) if m.startswith("cmd_")]
             hint = did_you_mean([f":{o}" for o in close_matches(name, known)])
@@ -154,7 +154,7 @@ class Session:
         if len(args) != 1:
             raise SheetError(f":{command} takes one cell name")
         if args[0] not in self.sheet:
-            from .units import close_matches, did_you_mean
+            from ..physics.units import close_matches, did_you_mean
 
             raise SheetError(f"no cell `{args[0]}`",
                              hint=did_you_mean(close_matches(args[0], self.sheet.names())))
@@ -168,12 +168,12 @@ class Session:
         return "\n".join(f"{n:<{width}}  {_shown(self.sheet, n)}" for n in names)
 
     def cmd_deps(self, args) -> str:
-        from .compare import dependency_tree
+        from ..outputs.compare import dependency_tree
 
         return dependency_tree(self.sheet, self._cell_argument(args, "deps"))
 
     def cmd_users(self, args) -> str:
-        from .compare import dependency_tree
+        from ..outputs.compare import dependency_tree
 
         return dependency_tree(self.sheet, self._cell_argument(args, "users"), users=True)
 
@@ -205,7 +205,7 @@ class Session:
         if target is None:
             raise SheetError(":write needs a file name: this session has no sheet file")
         text = written_text(self.sheet, self.assigned)
-        from .sheetfile import atomic_write
+        from ..files import atomic_write
 
         atomic_write(target, text.encode("utf-8"))
         count = len(self.assigned)
@@ -216,7 +216,7 @@ class Session:
         return f"wrote {target} ({count} change{'s' if count != 1 else ''})"
 
     def cmd_funcs(self, args) -> str:
-        from .catalog import entry, listing
+        from ..physics.catalog import entry, listing
 
         return entry(args[0]) if args else listing()
 

@@ -26,10 +26,10 @@ import math
 
 import numpy as np
 
-from .records import RecordList, is_record
-from .sheet import Cell, Sheet
-from .uncertain import Summary, Uncertain
-from .units import unit_string
+from ..engine.sheet import Cell, Sheet
+from ..engine.uncertain import Summary, Uncertain
+from ..physics.records import RecordList, is_record
+from ..physics.units import unit_string
 
 
 def _number(x: float):
@@ -185,7 +185,7 @@ def _cell_text(text: str) -> str:
 
 def to_markdown(sheet: Sheet) -> str:
     """A report: headings, notes as text, tables of cells, the checks, the constant sets."""
-    from .syntax import Note
+    from ..language.syntax import Note
 
     lines = [f"# {sheet.source.label}", "",
              f"Constants: {', '.join(sheet.selection.names)}"
@@ -269,7 +269,7 @@ def to_tex(sheet: Sheet) -> str:
     """One ``\\newcommand`` per cell: ``\\qty{value}{unit}`` (siunitx), ``\\num`` when
     dimensionless, ``\\pm`` for uncertainties; arrays and records are left out with a
     comment. Two cells with the same macro name are an error naming both."""
-    from .errors import SheetError
+    from ..errors import SheetError
     from .format import format_magnitude, format_quantity
 
     seen: dict[str, str] = {}

@@ -12,7 +12,7 @@ from __future__ import annotations
 import astropy.units as u
 import numpy as np
 
-from ..errors import ArgumentError
+from ...errors import ArgumentError
 from ..units import quantity, unit_power
 from . import args as check
 from . import register

@@ -19,11 +19,11 @@ from typing import Literal
 
 import astropy.units as u
 
-from .constants import ConstantEntry, ConstantSelection, constant_table
-from .errors import NameResolutionError, Span
+from ..engine.uncertain import InputRegistry
+from ..errors import NameResolutionError, Span
+from ..physics.constants import ConstantEntry, ConstantSelection, constant_table
+from ..physics.units import UnitTable, close_matches, did_you_mean, long_name, unit_table
 from .syntax import Name
-from .uncertain import InputRegistry
-from .units import UnitTable, close_matches, did_you_mean, long_name, unit_table
 
 
 @dataclass(frozen=True, slots=True)

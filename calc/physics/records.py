@@ -12,7 +12,7 @@ from __future__ import annotations
 import astropy.units as u
 import numpy as np
 
-from .errors import DomainError, NameResolutionError
+from ..errors import DomainError, NameResolutionError
 from .units import close_matches, did_you_mean
 
 

@@ -17,7 +17,7 @@ from typing import Annotated
 import astropy.units as u
 import numpy as np
 
-from ..errors import ArgumentError
+from ...errors import ArgumentError
 from ..records import Record, RecordList
 from ..units import century, quantity
 from ..validity import warn
