@@ -51,7 +51,8 @@ from ..language.syntax import (
     UnaryOp,
     UnitProduct,
 )
-from ..physics import functions, validity
+from ..physics import functions
+from ..physics.environment import _start_warnings, _stop_warnings
 from ..physics.records import RECORD_TYPES, Record, RecordList
 from ..physics.units import (
     angle_equivalencies,
@@ -803,11 +804,11 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
         return program
-    handle = validity.start()
+    handle = _start_warnings()
     try:
         _compile_into(program, compiler, definition, scope, source, display_unit)
     finally:
-        program.warnings = validity.stop(handle)
+        program.warnings = _stop_warnings(handle)
     program.deps = compiler.deps
     program.looked_up = compiler.looked_up
     return program

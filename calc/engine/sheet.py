@@ -32,8 +32,8 @@ from ..files import read_sheet, resolve_import
 from ..language.parse import parse_expression, parse_sheet
 from ..language.scope import PPN_PARAMETERS, Scope
 from ..language.syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef, UseDef
-from ..physics import validity
-from ..physics.constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection, using
+from ..physics.constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection
+from ..physics.environment import _start_warnings, _stop_warnings, _using
 from ..physics.records import is_record
 from ..physics.units import close_matches, did_you_mean, quantity
 from . import uncertain
@@ -210,7 +210,7 @@ class Sheet:
         self._scope = Scope(self._cells.keys(), self.selection, self.inputs,
                             uncertain_constants=self.uncertain_constants,
                             namespaces=self.namespaces)
-        with using(self.selection):
+        with _using(self.selection):
             for rank, (name, cell) in enumerate(self._cells.items()):
                 program = self._compile(cell.definition, self.source)
                 self._programs[name] = program
@@ -253,7 +253,7 @@ class Sheet:
         except SheetError as err:
             self.errors.append(err.located(use.span, self.source))
             return
-        with numeric_context(), using(imported.selection):
+        with numeric_context(), _using(imported.selection):
             for override in use.overrides:
                 if override.name not in imported:
                     self.errors.append(NameResolutionError(
@@ -331,7 +331,7 @@ class Sheet:
                                           span=program.deps[failed[0]], source=program.source)
             return
         cell.warnings = list(program.warnings)
-        handle = validity.start()
+        handle = _start_warnings()
         try:
             value = run_cell(program, self._values)
         except SheetError as err:
@@ -345,7 +345,7 @@ class Sheet:
             cell.error = err
             return
         finally:
-            found = validity.stop(handle)
+            found = _stop_warnings(handle)
         cell.warnings.extend(w for w in found if w not in cell.warnings)
         cell.error = None
         cell.raw = value
@@ -359,7 +359,7 @@ class Sheet:
         :class:`~calc.errors.SheetSyntaxError` and changes nothing.
         """
         source = Source(label or f"--set {name}", text)
-        with numeric_context(), using(self.selection):
+        with numeric_context(), _using(self.selection):
             line = parse_expression(text, source)
             changed = self._assign(name, line.expr, line.unit, source)
             self._run_checks()
@@ -441,7 +441,7 @@ class Sheet:
         definition = self._original.get(name)
         if definition is None:
             raise KeyError(name)
-        with numeric_context(), using(self.selection):
+        with numeric_context(), _using(self.selection):
             changed = self._assign(name, definition.expr, definition.unit, self.source)
             self._run_checks()
             return changed
@@ -472,7 +472,7 @@ class Sheet:
         """Evaluate every cell with its inputs drawn from their distributions, ``samples`` at
         once; returns per cell a Summary (quantities), the value itself (records and cells
         that depend on no input), or the error."""
-        with numeric_context(), using(self.selection):
+        with numeric_context(), _using(self.selection):
             uncertain.mode.start_monte_carlo(samples, seed, progress)
             try:
                 return self._monte_carlo_run(samples, progress)[1]
@@ -485,7 +485,7 @@ class Sheet:
         for imported in self.namespaces.values():
             if imported._mc_session is uncertain.mode.drawn:
                 continue  # a sheet imported along two paths runs once
-            with using(imported.selection):
+            with _using(imported.selection):
                 values = imported._monte_carlo_run(samples, None)[0]
             imported._mc_values.clear()
             imported._mc_values.update(values)
@@ -558,7 +558,7 @@ class Sheet:
         """The value of an expression (with an optional `in unit`) in this sheet's scope,
         without adding a cell. Raises SheetError. Returns the raw value (it may be uncertain)."""
         source = Source(label, text)
-        with numeric_context(), using(self.selection):
+        with numeric_context(), _using(self.selection):
             line = parse_expression(text, source)
             definition = CellDef("_", Span(1, 1, 1, 2), line.expr, line.unit, None, None,
                                  line.span)

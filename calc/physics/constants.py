@@ -16,8 +16,6 @@ masses only; its GM values are G · M.
 from __future__ import annotations
 
 import importlib
-from contextlib import contextmanager
-from contextvars import ContextVar
 from dataclasses import dataclass
 from functools import cache
 
@@ -136,26 +134,19 @@ def parse_selection(names: list[str]) -> tuple[ConstantSelection, list[tuple[int
 
 
 # ---- the selection in force while a sheet evaluates -------------------------------
-# Library functions read G (and c) from here, so that a sheet's `constants` line
+# Library functions read G (and c) through these, so that a sheet's `constants` line
 # reaches them; outside a sheet astropy's defaults apply.
-
-_active: ContextVar[ConstantSelection | None] = ContextVar("relsheet_constants", default=None)
-
-
-@contextmanager
-def using(selection: ConstantSelection):
-    token = _active.set(selection)
-    try:
-        yield
-    finally:
-        _active.reset(token)
 
 
 def active_selection() -> ConstantSelection:
     """The selection in force: the evaluating sheet's, else astropy's defaults."""
-    return _active.get() or default_selection()
+    return current().selection
 
 
 def active(name: str) -> u.Quantity:
     """The constant ``name`` (``G``, ``c``, ...) of the selection in force."""
     return constant_table(active_selection())[name].quantity
+
+
+# The environment module needs the selection types above; imported last to break the cycle.
+from .environment import current  # noqa: E402
