@@ -189,6 +189,25 @@ class ArgumentError(SheetError):
         self.argument = argument
 
 
+class InternalError(SheetError):
+    """A bug of relsheet's own, not of the sheet: the command line exits 70 and says so."""
+
+    kind = "internal"
+
+    #: where to report such bugs
+    REPORT = "please report this to the relsheet developers with the sheet that shows it"
+
+    @classmethod
+    def wrapping(cls, exc: BaseException, doing: str, span: Span | None = None,
+                 source: Source | None = None) -> InternalError:
+        """The internal error that ``exc`` (an unexpected Python exception) is, raised while
+        ``doing`` something ("computing `x`"); ``--debug`` shows its traceback."""
+        err = cls(f"internal error while {doing}: {type(exc).__name__}: {exc}", span,
+                  hint=f"{cls.REPORT}; --debug shows the traceback", source=source)
+        err.__cause__ = exc
+        return err
+
+
 class UsageError(SheetError):
     """The command line was used wrongly (exit code 64)."""
 

@@ -8,6 +8,7 @@ import sys
 import pytest
 
 from calc import Sheet
+from calc.outputs.format import check_detail
 from conftest import evaluate
 
 MERCURY = "a = 0.38709927 AU\ne = 0.20563593\nadv = periapsis_rate(1 Msun, a, e)\n"
@@ -26,7 +27,7 @@ MERCURY = "a = 0.38709927 AU\ne = 0.20563593\nadv = periapsis_rate(1 Msun, a, e)
 ])
 def test_check_outcomes(line, passed):
     (result,) = evaluate(MERCURY + line).checks
-    assert result.passed is passed, result.detail
+    assert result.passed is passed, check_detail(result)
     assert result.text == line
 
 
@@ -36,15 +37,15 @@ def test_sigma_checks_use_the_sigma_of_the_difference():
     independent, shared = sheet.checks
     assert independent.passed                     # 0.05 apart, σ = 0.14
     assert not shared.passed                      # 0.01 apart, σ of the difference only 0.001
-    assert "σ of the difference 0.001" in shared.detail
+    assert "σ of the difference 0.001" in check_detail(shared)
 
 
 def test_check_errors():
     sheet = evaluate(MERCURY + "check adv == 3 km\ncheck nope == 1\ncheck adv > 1 within 1%")
     assert [r.passed for r in sheet.checks] == [False, False, False]
-    assert sheet.checks[0].detail.startswith("error: the two sides cannot be compared")
-    assert sheet.checks[1].detail == "error: unknown name `nope`"
-    assert sheet.checks[2].detail == "error: `within` goes with `==` checks only"
+    assert check_detail(sheet.checks[0]).startswith("error: the two sides cannot be compared")
+    assert check_detail(sheet.checks[1]) == "error: unknown name `nope`"
+    assert check_detail(sheet.checks[2]) == "error: `within` goes with `==` checks only"
     assert not sheet.ok
 
 

@@ -9,30 +9,59 @@
 so inputs shared by both sides are counted once (GUM eq. 13). `==` without a
 tolerance asks for equality after conversion to a common unit. Arrays pass
 when every element does.
+
+A :class:`CheckResult` holds what was compared and found; the outputs turn it
+into words (``calc.outputs.format.check_detail``).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Literal
 
 import astropy.units as u
 import numpy as np
 
 from ..errors import InputFailedError, SheetError, Source, UnitError
+from ..language.scope import Scope
 from ..language.syntax import CellDef, Chain, CheckDef, Name, Number, Percent
-from ..outputs.format import format_quantity
-from ..physics.units import describe, unit_string, value_in
-from .compile import CellProgram, compile_cell, run_cell
+from ..physics.units import describe, value_in
+from .compile import ConstantInputs, compile_cell
+from .run import CellProgram, Env, run_cell
 from .uncertain import Uncertain
+from .values import CONTAINERS, Shown, shown
+
+CheckKind = Literal["exact", "relative", "absolute", "sigma", "order"]
 
 
 @dataclass
 class CheckResult:
+    """The outcome of one `check` line."""
+
     line: int
     text: str
     passed: bool
-    detail: str
+    kind: CheckKind
+    op: str
+    left: Shown | None = None
+    right: Shown | None = None
+    #: the largest difference of the two sides, in the left side's unit
+    gap: float = 0.0
+    #: the largest relative difference (relative checks)
+    relative: float = 0.0
+    #: the tolerance: a fraction (relative) or a number of σ (sigma)
+    amount: float = 0.0
+    #: the tolerance of an absolute check
+    tolerance: Shown | None = None
+    #: σ of the difference (sigma checks), in the left side's unit; None: neither side has one
+    sigma: float | None = None
+    #: the largest difference in units of that σ (sigma checks)
+    ratio: float = 0.0
     error: SheetError | None = None
+
+    @property
+    def unit(self) -> u.UnitBase | None:
+        return self.left.unit if self.left is not None else None
 
 
 @dataclass
@@ -41,28 +70,25 @@ class CheckProgram:
     text: str
     left: CellProgram
     right: CellProgram
-    kind: str                      # "exact", "relative", "absolute", "sigma", "order"
-    amount: float | None = None    # relative fraction or number of sigmas
+    kind: CheckKind
+    amount: float = 0.0
     absolute: CellProgram | None = None
-
-    @property
-    def deps(self) -> set[str]:
-        names = set(self.left.deps) | set(self.right.deps)
-        if self.absolute is not None:
-            names |= set(self.absolute.deps)
-        return names
 
 
 def _side(expr, name: str, definition: CheckDef) -> CellDef:
     return CellDef(name, definition.span, expr, None, None, None, expr.span)
 
 
-def compile_check(definition: CheckDef, scope, source: Source) -> CheckProgram:
+def compile_check(definition: CheckDef, scope: Scope, source: Source,
+                  constant_inputs: ConstantInputs | None = None) -> CheckProgram:
     line = definition.span.line
     text = source.between(definition.span)
-    left = compile_cell(_side(definition.left, f"check {line} (left)", definition), scope, source)
-    right = compile_cell(_side(definition.right, f"check {line} (right)", definition), scope,
-                         source)
+
+    def side(expr, name: str) -> CellProgram:
+        return compile_cell(_side(expr, f"check {line} ({name})", definition), scope, source,
+                            constant_inputs=constant_inputs)
+
+    left, right = side(definition.left, "left"), side(definition.right, "right")
     tol = definition.tolerance
     if definition.op != "==":
         program = CheckProgram(definition, text, left, right, "order")
@@ -77,11 +103,11 @@ def compile_check(definition: CheckDef, scope, source: Source) -> CheckProgram:
     if isinstance(tol, Chain) and isinstance(tol.head, Number) and len(tol.items) == 1 \
             and isinstance(tol.items[0], Name) and tol.items[0].id == "sigma":
         return CheckProgram(definition, text, left, right, "sigma", tol.head.value)
-    absolute = compile_cell(_side(tol, f"check {line} (tolerance)", definition), scope, source)
+    absolute = side(tol, "tolerance")
     return CheckProgram(definition, text, left, right, "absolute", absolute=absolute)
 
 
-def _value(program: CellProgram, env: dict, failed: set[str]):
+def _value(program: CellProgram, env: Env, failed: set[str]):
     bad = [d for d in program.deps if d in failed or d not in env]
     if bad:
         raise InputFailedError(f"input `{bad[0]}` failed", bad, span=program.deps[bad[0]],
@@ -91,18 +117,15 @@ def _value(program: CellProgram, env: dict, failed: set[str]):
     return run_cell(program, env)
 
 
-def _show(q) -> str:
-    number, unit = format_quantity(q)
-    return f"{number} {unit}".strip()
-
-
-def run_check(program: CheckProgram, env: dict, failed: set[str]) -> CheckResult:
+def run_check(program: CheckProgram, env: Env, failed: set[str]) -> CheckResult:
     d = program.definition
-    line = d.span.line
+    result = CheckResult(d.span.line, program.text, False, program.kind, d.op,
+                         amount=program.amount)
     try:
         left = _value(program.left, env, failed)
         right = _value(program.right, env, failed)
         lv, rv = _plain(left), _plain(right)
+        result.left, result.right = shown(left), shown(right)
         try:
             rv_in_left = value_in(rv, lv.unit)
         except u.UnitConversionError:
@@ -110,49 +133,54 @@ def run_check(program: CheckProgram, env: dict, failed: set[str]) -> CheckResult
                             f"{describe(rv.unit)}", d.span, source=program.left.source) from None
         a = np.asarray(lv.value, dtype=float)
         b = np.asarray(rv_in_left, dtype=float)
-        both = f"{_show(left)} vs {_show(right)}"
         if program.kind == "order":
             ok = {"<": a < b, "<=": a <= b, ">": a > b, ">=": a >= b}[d.op]
-            return CheckResult(line, program.text, bool(np.all(ok)), f"{both} ({d.op})")
+            result.passed = bool(np.all(ok))
+            return result
         gap = np.abs(a - b)
+        result.gap = float(np.max(gap))
         if program.kind == "exact":
-            return CheckResult(line, program.text, bool(np.all(gap == 0)), f"{both} (exactly)")
-        if program.kind == "relative":
+            result.passed = bool(np.all(gap == 0))
+        elif program.kind == "relative":
             allowed = program.amount * np.abs(b)
-            rel = np.max(gap / np.where(b == 0, np.inf, np.abs(b)))
-            return CheckResult(line, program.text, bool(np.all(gap <= allowed)),
-                               f"{both}: differ by {rel * 100:.3g}% (tolerance "
-                               f"{program.amount * 100:g}%)")
-        if program.kind == "absolute":
+            result.relative = float(np.max(gap / np.where(b == 0, np.inf, np.abs(b))))
+            result.passed = bool(np.all(gap <= allowed))
+        elif program.kind == "absolute":
+            assert program.absolute is not None
             tol = _plain(_value(program.absolute, env, failed))
+            result.tolerance = shown(tol)
             try:
                 allowed = value_in(tol, lv.unit)
             except u.UnitConversionError:
+                span = d.tolerance.span if d.tolerance is not None else d.span
                 raise UnitError(f"the tolerance is {describe(tol.unit)}, the check compares "
-                                f"{describe(lv.unit)}", d.tolerance.span,
+                                f"{describe(lv.unit)}", span,
                                 source=program.left.source) from None
-            return CheckResult(line, program.text, bool(np.all(gap <= allowed)),
-                               f"{both}: differ by {float(np.max(gap)):.4g} {unit_string(lv.unit)} "
-                               f"(tolerance {_show(tol)})")
-        # sigma: the σ of the difference, correlations included
-        difference = left - right if isinstance(left, Uncertain) or isinstance(right, Uncertain) \
-            else None
-        sigma = 0.0 if difference is None else np.asarray(
-            difference.to(lv.unit).sigma_value() if isinstance(difference, Uncertain) else 0.0)
-        allowed = program.amount * sigma
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.max(np.where(sigma > 0, gap / sigma, np.where(gap == 0, 0.0, np.inf)))
-        return CheckResult(line, program.text, bool(np.all(gap <= allowed)),
-                           f"{both}: differ by {ratio:.3g} σ (tolerance {program.amount:g} σ; "
-                           f"σ of the difference {float(np.max(sigma)):.3g} {unit_string(lv.unit)})")
+            result.passed = bool(np.all(gap <= allowed))
+        else:
+            # sigma: the σ of the difference, correlations included
+            if isinstance(left, Uncertain) or isinstance(right, Uncertain):
+                difference = left - right
+                sigma = np.asarray(difference.to(lv.unit).sigma_value()
+                                   if isinstance(difference, Uncertain) else 0.0)
+                result.sigma = float(np.max(sigma))
+            else:
+                sigma = np.asarray(0.0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                result.ratio = float(np.max(np.where(sigma > 0, gap / sigma,
+                                                     np.where(gap == 0, 0.0, np.inf))))
+            result.passed = bool(np.all(gap <= program.amount * sigma))
+        return result
     except SheetError as err:
-        return CheckResult(line, program.text, False, f"error: {err.message}", err)
+        result.passed = False
+        result.error = err
+        return result
 
 
 def _plain(value):
     """The nominal Quantity of a side (records cannot be compared)."""
     if isinstance(value, Uncertain):
         return value.nominal
-    if not isinstance(value, u.Quantity):
+    if isinstance(value, CONTAINERS) or not isinstance(value, u.Quantity):
         raise UnitError("a check compares quantities, not records")
     return value

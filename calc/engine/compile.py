@@ -1,20 +1,19 @@
-"""From nodes to values: each cell is compiled once into a closure over its inputs.
+"""From nodes to code: each cell is compiled once into a closure over its inputs.
 
-Compiling resolves every name (:mod:`calc.scope`), records the cells a cell
-uses, folds everything that does not depend on a cell into a constant (so
+Compiling resolves every name (:mod:`calc.language.scope`), records the cells a
+cell uses, folds everything that does not depend on a cell into a constant (so
 ``9.81 m s^-2`` costs nothing at evaluation time), and wraps each operation so
-that a failure names its own place in the source. Evaluating a cell is then a
-call of its closure with the values of the cells it uses.
+that a failure names its own place in the source (:mod:`calc.engine.run` holds
+the operations). Evaluating a cell is then a call of its closure with the
+values of the cells it uses.
 
-Values are astropy Quantities (dimensionless ones for plain numbers). Inside
-a unit chain a bare astropy unit may appear as an intermediate value; it is
-always multiplied into a Quantity before the chain ends.
+A `±` literal compiles to an input that is never folded: it evaluates to a
+first-order uncertain value, or to Monte Carlo samples, as the evaluation
+context says at run time.
 """
 
 from __future__ import annotations
 
-import math
-from collections.abc import Callable
 from dataclasses import dataclass, field
 from operator import itemgetter
 
@@ -52,263 +51,31 @@ from ..language.syntax import (
     UnitProduct,
 )
 from ..physics import functions
-from ..physics.environment import _start_warnings, _stop_warnings
-from ..physics.records import RECORD_TYPES, Record, RecordList
-from ..physics.units import (
-    angle_equivalencies,
-    close_matches,
-    conversion_scale,
-    describe,
-    did_you_mean,
-    is_one,
-    physical_type,
-    plain_number_unit,
-    quantity,
-    unit_power,
-    unit_product,
-    unit_quotient,
-    value_in,
+from ..physics.records import Record, RecordList
+from ..physics.units import close_matches, conversion_scale, describe, did_you_mean, quantity, value_in
+from .context import context
+from .run import (
+    CellProgram,
+    Code,
+    Const,
+    _finite,
+    add_op,
+    checked,
+    field_op,
+    finish,
+    mul_op,
+    neg_op,
+    power_op,
+    unit_range_error,
 )
-from . import uncertain
-from .uncertain import Uncertain
+from .samples import Samples, draw
+from .uncertain import Input, Uncertain, linear_value, make_inputs
+from .values import CONTAINERS, all_finite, apply_function, is_uncertain
 
 #: Deepest nesting of operations in one expression (keeps recursion far from Python's limit).
 MAX_EXPRESSION_DEPTH = 150
 
 _ONE = u.dimensionless_unscaled
-
-
-class Const:
-    """A compiled value known without evaluating any cell."""
-
-    __slots__ = ("value",)
-
-    def __init__(self, value) -> None:
-        self.value = value
-
-
-Code = Callable[[dict], object] | Const
-
-
-@dataclass
-class CellProgram:
-    """A compiled cell: how to compute it, what it uses, and where it came from."""
-
-    definition: CellDef
-    source: Source
-    run: Callable[[dict], u.Quantity] | None = None
-    constant: u.Quantity | None = None
-    unit: u.UnitBase | None = None
-    unit_span: Span | None = None
-    deps: dict[str, Span] = field(default_factory=dict)
-    looked_up: set[str] = field(default_factory=set)
-    error: SheetError | None = None
-    #: validity warnings raised while compiling (calls folded into constants)
-    warnings: list[str] = field(default_factory=list)
-
-    @property
-    def name(self) -> str:
-        return self.definition.name
-
-
-# ---- operations ------------------------------------------------------------
-
-
-class _Checking:
-    """Whether operations check their results for nan and infinity.
-
-    Checking every operation of a million-element array costs as much as the
-    arithmetic, so cells run unchecked; only a cell whose result is not finite
-    runs again with checks on, which puts the error on the operation that
-    produced it (or lets a written `inf` carry through).
-    """
-
-    on = False
-
-
-_checking = _Checking()
-
-
-def all_finite(value) -> bool:
-    if isinstance(value, RECORD_TYPES):
-        return True  # each field was checked when the record was made
-    v = value.value
-    return math.isfinite(v) if np.ndim(v) == 0 else bool(np.isfinite(v).all())
-
-
-def _finite(result, inputs, span: Span, what: str = "the result"):
-    """Refuse nan, and an infinity that no infinite input explains (overflow, x/0)."""
-    if not _checking.on or isinstance(result, u.UnitBase):
-        return result
-    value = result.value
-    if np.ndim(value) == 0:
-        if math.isfinite(value):
-            return result
-    elif np.isfinite(value).all():
-        return result
-    if np.isnan(value).any():
-        raise DomainError(f"{what} is not a number (nan)", span)
-    for q in inputs:
-        if not isinstance(q, u.UnitBase) and not np.isfinite(q.value).all():
-            return result  # an infinity written into the sheet (`inf`) carries through
-    raise DomainError(f"{what} overflows: it is larger than a float can hold", span,
-                      hint="check the magnitudes and units of the inputs")
-
-
-def _shape_error(x, y, span: Span) -> DomainError:
-    return DomainError(
-        f"arrays of different lengths ({np.size(_raw(x))} and {np.size(_raw(y))})", span)
-
-
-def _raw(x):
-    return x if isinstance(x, u.UnitBase) else x.value
-
-
-def _unit_of(x) -> u.UnitBase:
-    return x if isinstance(x, u.UnitBase) else x.unit
-
-
-def _plain(x) -> bool:
-    """A plain Quantity with an ordinary unit: eligible for the fast arithmetic below."""
-    return type(x) is u.Quantity and isinstance(x.unit, u.UnitBase)
-
-
-def add_op(span: Span, subtract: bool):
-    def fail(x, y):
-        if subtract:
-            message = f"cannot subtract {describe(_unit_of(y))} from {describe(_unit_of(x))}"
-        else:
-            message = f"cannot add {describe(_unit_of(x))} and {describe(_unit_of(y))}"
-        return UnitError(message, span)
-
-    def apply(x, y):
-        if isinstance(x, u.UnitBase) or isinstance(y, u.UnitBase):
-            raise fail(x, y)
-        try:
-            if _plain(x) and _plain(y):
-                # x's unit wins, as in astropy; y is scaled into it
-                scale = conversion_scale(y.unit, x.unit)
-                yv = y.value if scale == 1.0 else y.value * scale
-                result = quantity(x.value - yv if subtract else x.value + yv, x.unit)
-            else:
-                with angle_equivalencies():
-                    result = x - y if subtract else x + y
-        except u.UnitConversionError:
-            raise fail(x, y) from None
-        except ValueError:
-            raise _shape_error(x, y, span) from None
-        return _finite(result, (x, y), span)
-
-    return apply
-
-
-def mul_op(span: Span, divide: bool):
-    def apply(x, y):
-        try:
-            if _plain(x):
-                if _plain(y):
-                    if divide:
-                        result = quantity(x.value / y.value, unit_quotient(x.unit, y.unit))
-                    else:
-                        result = quantity(x.value * y.value, unit_product(x.unit, y.unit))
-                elif isinstance(y, u.UnitBase):
-                    # a unit in a chain: `3 km`, `1 / s`
-                    combined = unit_quotient(x.unit, y) if divide else unit_product(x.unit, y)
-                    result = quantity(x.value, combined)
-                else:
-                    result = x / y if divide else x * y
-            else:
-                result = x / y if divide else x * y
-        except ValueError:
-            raise _shape_error(x, y, span) from None
-        except ZeroDivisionError:
-            raise DomainError("division by zero", span) from None
-        if divide and _checking.on and not isinstance(y, u.UnitBase) \
-                and not isinstance(result, u.UnitBase):
-            if np.any(np.asarray(y.value) == 0) and not np.all(np.isfinite(result.value)):
-                raise DomainError("division by zero", span)
-        return _finite(result, (x, y), span)
-
-    return apply
-
-
-def neg_op(span: Span):
-    def apply(x):
-        return quantity(-x.value, x.unit) if _plain(x) else -x
-
-    return apply
-
-
-def power_op(span: Span, exponent_span: Span):
-    def apply(base, exponent):
-        if isinstance(base, Uncertain) or isinstance(exponent, Uncertain):
-            try:
-                return _finite(uncertain.power(base, exponent), (base, exponent), span, "the power")
-            except SheetError as err:
-                raise err.located(span) from None
-            except (u.UnitsError, ValueError) as exc:
-                raise UnitError(f"cannot raise to this power: {exc}", span) from None
-        try:
-            e = value_in(exponent, _ONE)
-        except u.UnitConversionError:
-            raise UnitError(f"the exponent must be dimensionless, got {describe(exponent.unit)}",
-                            exponent_span) from None
-        try:
-            if is_one(base.unit):
-                result = quantity(np.power(base.value, e), _ONE)
-            else:
-                if np.ndim(e) != 0:
-                    raise UnitError("a quantity with a unit can be raised only to a single number",
-                                    exponent_span)
-                p = float(e)
-                result = (quantity(np.power(base.value, p), unit_power(base.unit, p))
-                          if _plain(base) else base ** p)
-        except OverflowError:
-            raise DomainError("the power overflows", span) from None
-        except ZeroDivisionError:
-            raise DomainError("zero to a negative power", span) from None
-        except ValueError:
-            raise _shape_error(base, exponent, span) from None
-        if _checking.on and np.isnan(result.value).any() and np.any(np.asarray(base.value) < 0):
-            raise DomainError("a negative number to a fractional power", span)
-        return _finite(result, (base, exponent), span, "the power")
-
-    return apply
-
-
-def field_op(parts: tuple[str, ...], span: Span):
-    def apply(value):
-        for depth, name in enumerate(parts[1:], start=1):
-            if not isinstance(value, Record):
-                what = "an array of records" if isinstance(value, RecordList) else "a quantity"
-                raise NameResolutionError(f"`{'.'.join(parts[:depth])}` is {what}, which has no "
-                                          f"field `{name}`", span)
-            try:
-                value = value.field(name)
-            except SheetError as err:
-                raise err.located(span) from None
-        return value
-
-    return apply
-
-
-def convert(value: u.Quantity, unit: u.UnitBase, span: Span) -> u.Quantity:
-    try:
-        if isinstance(value, Uncertain):
-            return value.to(unit)
-        return quantity(value_in(value, unit), unit)
-    except u.UnitConversionError:
-        raise UnitError(f"cannot show {describe(value.unit)} in {describe(unit)}", span,
-                        hint=f"the cell's dimension is {physical_type(value.unit)}") from None
-
-
-def normalise(value: u.Quantity) -> u.Quantity:
-    """Collapse a scaled dimensionless unit (`km / m`) into a plain number."""
-    if plain_number_unit(value.unit):
-        if isinstance(value, Uncertain):
-            return value.to(_ONE)
-        return quantity(value_in(value, _ONE), _ONE)
-    return value
 
 
 # ---- compiling ----------------------------------------------------------------
@@ -349,18 +116,34 @@ def _leading_number(node):
     return None
 
 
-def _input_code(ids: tuple, nominal_value: u.Quantity, sigma_value: u.Quantity):
-    value_of = uncertain.mode.value
-    return lambda env: value_of(ids, nominal_value, sigma_value)
+def _input_code(inputs: tuple[Input, ...], nominal_value: u.Quantity,
+                sigma_value: u.Quantity) -> Code:
+    """The run-time value of a `±` literal: first-order contributions, or Monte Carlo draws,
+    as the evaluation context says."""
+    linear = linear_value(inputs, nominal_value, sigma_value)
+
+    def value(env):
+        sampling = context().sampling
+        if sampling is None:
+            return linear
+        columns = [sampling.normal(key) for key in inputs]
+        return draw(columns[0], nominal_value, sigma_value, columns)
+
+    return value
 
 
+#: Largest number of distinct literal numbers kept as shared Quantities.
+_NUMBERS_KEPT = 4096
 _NUMBERS: dict[float, u.Quantity] = {}
 
 
 def _number(value: float) -> u.Quantity:
-    """The dimensionless Quantity of a literal; shared, as values are never changed in place."""
+    """The dimensionless Quantity of a literal; shared, as values are never changed in place.
+    The table is bounded: sheets built and dropped over a long session do not grow it."""
     q = _NUMBERS.get(value)
     if q is None:
+        if len(_NUMBERS) >= _NUMBERS_KEPT:
+            _NUMBERS.clear()
         q = _NUMBERS[value] = u.Quantity(value)
     return q
 
@@ -384,20 +167,22 @@ def _uncertain_array(values, spans) -> Uncertain:
     return Uncertain(quantity(np.array(nominal_values), unit), parts)
 
 
-def _sampled_array(values, spans) -> u.Quantity:
-    """Under Monte Carlo: items that are sample columns (N, 1) make an (N, n) array."""
+def _sampled_array(values, spans) -> Samples:
+    """Under Monte Carlo: items that are samples (N,) or single values make samples (N, n)."""
     unit = values[0].unit
-    n = uncertain.mode.samples
+    count = next(v.count for v in values if isinstance(v, Samples))
     columns = []
     for value, span in zip(values, spans):
+        if isinstance(value, Samples) and value.shape != ():
+            raise DomainError("arrays hold single values, not arrays", span)
         try:
-            column = np.asarray(value_in(value, unit), dtype=float)
+            scale = conversion_scale(value.unit, unit)
         except u.UnitConversionError:
             raise UnitError(f"array items must share a dimension: {describe(value.unit)} "
                             f"is not {describe(unit)}", span) from None
-        columns.append(np.broadcast_to(column.reshape(-1, 1) if column.ndim == 2 else column,
-                                       (n, 1)))
-    return quantity(np.concatenate(columns, axis=1), unit)
+        column = np.asarray(value.value, dtype=float) * scale
+        columns.append(np.broadcast_to(column, (count,)))
+    return Samples(quantity(np.stack(columns, axis=1), unit))
 
 
 def _record_list(values, spans) -> RecordList:
@@ -412,11 +197,34 @@ def _is_unit_item(node) -> bool:
         isinstance(node, Power) and isinstance(node.base, Name))
 
 
+@dataclass
+class ConstantInputs:
+    """Under ``constants … uncertain``: the input of each named constant with a published
+    uncertainty, made once per sheet however often the constant is used."""
+
+    enabled: bool = False
+    made: dict[str, tuple[Input, ...]] = field(default_factory=dict)
+
+    def input_for(self, scope: Scope, name: str) -> tuple[Input, ...] | None:
+        if not self.enabled:
+            return None
+        entry = scope.constants.get(name)
+        if entry is None or not entry.uncertainty:
+            return None
+        inputs = self.made.get(name)
+        if inputs is None:
+            sigma = u.Quantity(entry.uncertainty, entry.quantity.unit)
+            inputs = self.made[name] = (Input(f"const.{name}", entry.quantity, sigma),)
+        return inputs
+
+
 class _Compiler:
-    def __init__(self, scope: Scope, source: Source, cell_name: str = "") -> None:
+    def __init__(self, scope: Scope, source: Source, cell_name: str = "",
+                 constant_inputs: ConstantInputs | None = None) -> None:
         self.scope = scope
         self.source = source
         self.cell_name = cell_name
+        self.constant_inputs = constant_inputs or ConstantInputs()
         self.inputs_made = 0
         self.deps: dict[str, Span] = {}
         self.looked_up: set[str] = set()
@@ -434,9 +242,10 @@ class _Compiler:
             return Const(resolved.unit)
         if resolved.kind == "cell":
             return self.cell_ref(resolved.cell, span)
-        ids = self.scope.constant_input(resolved.name) if resolved.name else None
-        if ids is not None:
-            return _input_code(ids, resolved.value, self.scope.inputs.inputs[ids[0]].sigma)
+        inputs = self.constant_inputs.input_for(self.scope, resolved.name) if resolved.name \
+            else None
+        if inputs is not None:
+            return _input_code(inputs, resolved.value, inputs[0].sigma)
         return Const(resolved.value)
 
     def imported(self, node: Dotted, depth: int) -> Code:
@@ -454,12 +263,14 @@ class _Compiler:
                                    f"{cell.error.message}", [f"{namespace}.{name}"],
                                    span=node.span)
         raw = cell.raw
-        if uncertain.is_uncertain(raw):
+        code: Code
+        if is_uncertain(raw):
             # uncertain: read at run time, so that Monte Carlo sees the imported samples
-            values, samples = sheet._values, sheet._mc_values
-
             def code(env, name=name):
-                return samples[name] if uncertain.mode.monte_carlo else values[name]
+                sampling = context().sampling
+                if sampling is None:
+                    return sheet.raw(name)
+                return sampling.results[sheet][name]
         else:
             code = Const(raw)
         if fields:
@@ -490,7 +301,7 @@ class _Compiler:
             raise UnitError("a value with `±` is a measured input: write it in numbers and units, "
                             "without cells", node.span)
         nominal_value, sigma_value = value.value, sigma.value
-        if isinstance(nominal_value, RECORD_TYPES) or isinstance(sigma_value, RECORD_TYPES):
+        if isinstance(nominal_value, CONTAINERS) or isinstance(sigma_value, CONTAINERS):
             raise UnitError("a record cannot carry `±`; give its fields uncertainties", node.span)
         try:
             sigma_value = quantity(value_in(sigma_value, nominal_value.unit), nominal_value.unit)
@@ -505,12 +316,12 @@ class _Compiler:
         self.inputs_made += 1
         name = self.cell_name if self.inputs_made == 1 else f"{self.cell_name} ({self.inputs_made})"
         try:
-            ids = uncertain.make_input(self.scope.inputs, name, nominal_value, sigma_value)
+            inputs = make_inputs(name, nominal_value, sigma_value)
         except DomainError as err:
             raise err.located(node.span) from None
-        if isinstance(ids, u.Quantity):
-            return Const(ids)
-        return _input_code(ids, nominal_value, sigma_value)
+        if not inputs:
+            return Const(nominal_value)
+        return _input_code(inputs, nominal_value, sigma_value)
 
     def exponent_number(self, node, depth: int) -> float:
         code = self.expr(node, depth + 1)
@@ -707,16 +518,11 @@ class _Compiler:
 
         def apply(*values):
             for value, pname in zip(values, slots):
-                if isinstance(value, RECORD_TYPES) and pname not in takes_records:
+                if isinstance(value, CONTAINERS) and pname not in takes_records:
                     what = "an array of records" if isinstance(value, RecordList) else "a record"
                     raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not {what}",
                                         pname, span=arg_spans.get(pname, span))
-            if any(type(v) is Uncertain or (type(v) is not u.Quantity and uncertain.is_uncertain(v))
-                   for v in values):
-                return uncertain.through(call, values)
-            if samplewise and uncertain.mode.monte_carlo:
-                return uncertain.per_sample(call, values)
-            return call(*values)
+            return apply_function(call, values, samplewise)
 
         def call(*values):
             try:
@@ -743,11 +549,11 @@ class _Compiler:
         spans = [i.span for i in node.items]
 
         def build(*values):
-            if any(isinstance(v, RECORD_TYPES) for v in values):
+            if any(isinstance(v, CONTAINERS) for v in values):
                 return _record_list(values, spans)
             if any(isinstance(v, Uncertain) for v in values):
                 return _uncertain_array(values, spans)
-            if uncertain.mode.monte_carlo and any(np.ndim(v.value) == 2 for v in values):
+            if any(isinstance(v, Samples) for v in values):
                 return _sampled_array(values, spans)
             unit = values[0].unit
             plain = []
@@ -794,28 +600,31 @@ class _Compiler:
 
 
 def compile_cell(definition: CellDef, scope: Scope, source: Source,
-                 display_unit: tuple[u.UnitBase, Span] | None = None) -> CellProgram:
+                 display_unit: tuple[u.UnitBase, Span] | None = None,
+                 constant_inputs: ConstantInputs | None = None) -> CellProgram:
     """Compile a cell; a compile error (unknown name, folded unit mismatch) is kept on it.
+    Runs inside an evaluation context (constant subexpressions are computed now).
 
     ``display_unit`` (unit, span) applies when the definition has no ``in`` of its own.
     """
-    compiler = _Compiler(scope, source, definition.name)
+    compiler = _Compiler(scope, source, definition.name, constant_inputs)
     program = CellProgram(definition, source)
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
         return program
-    handle = _start_warnings()
+    evaluation = context()
+    before = evaluation.collect_warnings()
     try:
-        _compile_into(program, compiler, definition, scope, source, display_unit)
+        _compile_into(program, compiler, definition, display_unit)
     finally:
-        program.warnings = _stop_warnings(handle)
+        program.warnings = evaluation.stop_warnings(before)
     program.deps = compiler.deps
     program.looked_up = compiler.looked_up
     return program
 
 
-def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef, scope: Scope,
-                  source: Source, display_unit) -> None:
+def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef,
+                  display_unit) -> None:
     try:
         code = compiler.expr(definition.expr)
         if definition.unit is not None:
@@ -826,60 +635,19 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
         if isinstance(code, Const):
             program.constant = finish(program, code.value)
             if not all_finite(program.constant):
+                again = _Compiler(compiler.scope, compiler.source, definition.name,
+                                  compiler.constant_inputs)
                 program.constant = checked(
-                    lambda: finish(program, _Compiler(scope, source, definition.name)
-                                   .expr(definition.expr).value))
+                    lambda: finish(program, _constant(again.expr(definition.expr))))
         else:
             program.run = code
     except SheetError as err:
-        program.error = err.located(definition.span, source)
+        program.error = err.located(definition.span, compiler.source)
     except (u.UnitScaleError, OverflowError):
-        program.error = _unit_range_error(definition).located(definition.span, source)
+        program.error = unit_range_error(definition).located(definition.span, compiler.source)
 
 
-def _unit_range_error(definition: CellDef) -> UnitError:
-    # astropy decomposes units into SI with a float scale: Msun^11 overflows it
-    return UnitError("a unit's size in SI is outside the range a float can hold",
-                     definition.expr.span,
-                     hint="rescale the inputs or use fewer powers of large units")
-
-
-def finish(program: CellProgram, value) -> u.Quantity:
-    """Conversion into the cell's `in` unit, or collapse of scaled dimensionless units."""
-    if isinstance(value, u.UnitBase):  # pragma: no cover - the grammar cannot produce it
-        raise UnitError("a unit needs a number before it", program.definition.expr.span)
-    if isinstance(value, RECORD_TYPES):
-        if program.unit is not None and program.definition.unit is not None:
-            raise UnitError("a record has no unit to show it in; convert its fields instead",
-                            program.unit_span)
-        if isinstance(value, Record):
-            return value.labelled(program.name)
-        return value
-    if program.unit is not None:
-        return convert(value, program.unit, program.unit_span)
-    return normalise(value)
-
-
-def run_cell(program: CellProgram, env: dict) -> u.Quantity:
-    """Evaluate a compiled cell with its inputs in ``env``; raises SheetError."""
-    if program.constant is not None:
-        return program.constant
-    try:
-        value = finish(program, program.run(env))
-        if not all_finite(value):
-            value = checked(lambda: finish(program, program.run(env)))
-        return value
-    except SheetError as err:
-        raise err.located(program.definition.span, program.source) from None
-    except (u.UnitScaleError, OverflowError):
-        raise _unit_range_error(program.definition).located(
-            program.definition.span, program.source) from None
-
-
-def checked(compute):
-    """Run ``compute`` with every operation checking its result."""
-    _checking.on = True
-    try:
-        return compute()
-    finally:
-        _checking.on = False
+def _constant(code: Code):
+    if not isinstance(code, Const):  # pragma: no cover - the same expression folded before
+        raise DomainError("an expression that folded once did not fold again")
+    return code.value

@@ -36,14 +36,16 @@ class DependencyGraph:
         self.users.setdefault(name, set())
         return True
 
-    def order(self) -> tuple[list[str], list[list[str]]]:
-        """(cells in evaluation order, cycles). Cells in a cycle are not in the order."""
+    def order(self) -> tuple[list[str], list[tuple[list[str], set[str]]]]:
+        """(cells in evaluation order, cycles). Each cycle is a closed path through it and
+        every cell of its strongly connected component (a path shows one loop; the component
+        may hold more cells on other loops). Cells in a cycle are not in the order."""
         components = self._components()
         in_cycle: set[str] = set()
-        cycles: list[list[str]] = []
+        cycles: list[tuple[list[str], set[str]]] = []
         for comp in components:
             if len(comp) > 1 or comp[0] in self.uses.get(comp[0], ()):
-                cycles.append(self._cycle_path(set(comp)))
+                cycles.append((self._cycle_path(set(comp)), set(comp)))
                 in_cycle.update(comp)
         # Kahn's algorithm over the rest, smallest file rank first
         remaining = {n: len([d for d in self.uses[n] if d in self.uses and d not in in_cycle])
@@ -59,7 +61,7 @@ class DependencyGraph:
                     remaining[user] -= 1
                     if remaining[user] == 0:
                         heapq.heappush(ready, (self.rank.get(user, 0), user))
-        cycles.sort(key=lambda c: min(self.rank.get(n, 0) for n in c))
+        cycles.sort(key=lambda c: min(self.rank.get(n, 0) for n in c[1]))
         return out, cycles
 
     def _components(self) -> list[list[str]]:

@@ -14,7 +14,7 @@ import os
 import sys
 import traceback
 
-from ..errors import SheetError, UsageError
+from ..errors import InternalError, SheetError, UsageError
 
 EXIT_OK = 0
 EXIT_CHECK_FAILED = 1
@@ -151,6 +151,11 @@ def main(argv: list[str] | None = None) -> int:
         if err.hint:
             print(f"  hint: {err.hint}", file=sys.stderr)
         return EXIT_USAGE
+    except InternalError as err:
+        print(err.render(), file=sys.stderr)
+        if debug and err.__cause__ is not None:
+            traceback.print_exception(err.__cause__, file=sys.stderr)
+        return EXIT_INTERNAL
     except SheetError as err:
         print(err.render(), file=sys.stderr)
         return EXIT_SHEET_ERRORS
@@ -163,7 +168,8 @@ def main(argv: list[str] | None = None) -> int:
             traceback.print_exc()
         else:
             print(f"relsheet: internal error: {type(exc).__name__}: {exc}\n"
-                  "  hint: please report this; --debug shows the traceback", file=sys.stderr)
+                  f"  hint: {InternalError.REPORT}; --debug shows the traceback",
+                  file=sys.stderr)
         return EXIT_INTERNAL
 
 
@@ -173,6 +179,15 @@ def _report_warnings(sheet) -> None:
             span = cell.definition.name_span
             print(f"{cell.source.label}:{span.line}:{span.column}: warning: `{cell.name}`: {text}",
                   file=sys.stderr)
+
+
+def _exit_code(sheet, monte_carlo: dict | None = None, ok: int = EXIT_OK) -> int:
+    """70 when a bug of ours showed up anywhere in the evaluation, else 2 for a sheet with
+    errors, else ``ok``."""
+    if sheet.internal_errors() or any(isinstance(v, InternalError)
+                                      for v in (monte_carlo or {}).values()):
+        return EXIT_INTERNAL
+    return ok if sheet.ok else EXIT_SHEET_ERRORS
 
 
 def _report(errors: list[SheetError], debug: bool) -> None:
@@ -223,11 +238,10 @@ def cmd_eval(args) -> int:
             monte_carlo = sheet.monte_carlo(args.mc, args.seed, progress)
         finally:
             progress.close()
-        monte_carlo["__samples__"] = args.mc
     if args.format == "json":
         from ..outputs.export import to_json
 
-        print(to_json(sheet, monte_carlo))
+        print(to_json(sheet, monte_carlo, args.mc))
     elif args.format in ("csv", "md"):
         if monte_carlo is not None:
             raise UsageError("--mc prints as text or json", hint="add --format json")
@@ -235,12 +249,16 @@ def cmd_eval(args) -> int:
 
         sys.stdout.write((to_csv if args.format == "csv" else to_markdown)(sheet))
     else:
-        print(render_text(sheet, args.digits, monte_carlo))
+        from ..outputs.report import render_text
+
+        print(render_text(sheet, args.digits, monte_carlo, args.mc))
     if args.sigma_budget is not None:
+        from ..outputs.report import render_sigma_budget
+
         print(render_sigma_budget(sheet, args.sigma_budget, args.digits))
     _report_warnings(sheet)
     _report(sheet.all_errors(), args.debug)
-    return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
+    return _exit_code(sheet, monte_carlo)
 
 
 class _Progress:
@@ -274,116 +292,12 @@ class _Progress:
             self._bar.__exit__(None, None, None)
 
 
-def render_sigma_budget(sheet, name: str, digits: int) -> str:
-    """Each independent input's share of σ² of one cell, largest first."""
-    from ..outputs.format import format_quantity
-    from ..physics.units import unit_string
-
-    cell = sheet.cell(name)
-    if cell.error is not None:
-        return f"\nuncertainty budget of `{name}`: the cell failed ({cell.error.message})"
-    rows = sheet.sigma_budget(name)
-    if not rows:
-        return f"\nuncertainty budget of `{name}`: it depends on no uncertain input"
-    sigma = cell.sigma
-    lines = ["", f"uncertainty budget of `{name}`  (σ = {format_quantity(sigma, digits)[0]} "
-             f"{unit_string(sigma.unit)})"]
-    width = max(len(inp.name) for inp, _, _ in rows)
-    for inp, part, share in rows:
-        value = f"{format_quantity(inp.nominal, digits)[0]} ± {format_quantity(inp.sigma, 2)[0]}"
-        unit = unit_string(inp.nominal.unit)
-        contribution = f"{format_quantity(part, 2)[0]} {unit_string(part.unit)}".strip()
-        lines.append(f"  {inp.name:<{width}}  {share * 100:6.2f} %   {contribution:<22} "
-                     f"from {value} {unit}".rstrip())
-    return "\n".join(lines)
-
-
-def render_text(sheet, digits: int, monte_carlo: dict | None = None) -> str:
-    """Headings, then aligned name / value / unit; errors inline."""
-    import numpy as np
-
-    from ..engine.sheet import Cell
-    from ..engine.uncertain import Summary
-    from ..outputs.format import format_point, format_quantity, format_with_sigma, record_rows, record_summary
-    from ..physics.records import is_record
-    from ..physics.units import unit_string
-
-    rows: list[tuple[str, ...]] = []
-    pending = sorted(sheet.checks, key=lambda r: r.line)
-
-    def checks_before(line: int | None) -> None:
-        while pending and (line is None or pending[0].line < line):
-            result = pending.pop(0)
-            rows.append(("check", "passed" if result.passed else "FAILED", result.text,
-                         "" if result.passed else result.detail))
-
-    for item in sheet.items:
-        own = getattr(item, "source", sheet.source) is sheet.source
-        if own:
-            checks_before(item.line if isinstance(item, Cell) else item.span.line)
-        if isinstance(item, Cell):
-            summary = (monte_carlo or {}).get(item.name)
-            if item.error is not None:
-                rows.append(("cell", item.name, f"error: {item.error.message}", ""))
-            elif isinstance(summary, Summary):
-                rows.append(("cell", item.name, format_with_sigma(summary.mean, summary.std),
-                             unit_string(summary.unit)))
-                points = (summary.p16, summary.p50, summary.p84)
-                if np.ndim(summary.mean) == 0:
-                    quantiles = " / ".join(format_point(q, summary.std) for q in points)
-                else:
-                    quantiles = " / ".join(
-                        "[" + ", ".join(format_point(v, s) for v, s in
-                                        zip(np.ravel(q)[:6], np.ravel(summary.std)[:6])) + "]"
-                        for q in points)
-                rows.append(("warning", f"16 / 50 / 84 %: {quantiles}"))
-            elif is_record(item.raw):
-                rows.append(("cell", item.name, record_summary(item.raw), ""))
-                rows += [("field", *row) for row in record_rows(item.raw, digits)]
-            else:
-                rows.append(("cell", item.name, *format_quantity(item.raw, digits)))
-            rows += [("warning", text) for text in item.warnings]
-        elif item.heading:
-            rows.append(("heading", item.text))
-    checks_before(None)
-    name_width = max((len(r[1]) + (2 if r[0] == "field" else 0) for r in rows
-                      if r[0] in ("cell", "field")), default=0)
-    scalars = [len(r[2]) for r in rows
-               if r[0] in ("cell", "field") and r[3] and not r[2].startswith("[")]
-    value_width = min(24, max(scalars, default=0))
-    header = f"{sheet.source.label}  ·  constants {', '.join(sheet.selection.names)}"
-    if sheet.uncertain_constants:
-        header += " (with their uncertainties)"
-    if monte_carlo is not None:
-        header += f"  ·  Monte Carlo, {monte_carlo.get('__samples__', 0):,} samples"
-    lines = [header]
-    for row in rows:
-        if row[0] == "heading":
-            lines += ["", row[1]]
-        elif row[0] == "check":
-            _, outcome, text, detail = row
-            lines.append(f"  {outcome:<6}  {text}")
-            if detail:
-                lines.append(f"          {detail}")
-        elif row[0] == "warning":
-            label = "" if row[1].startswith("16 / 50 / 84 %") else "warning: "
-            lines.append(f"  {'':<{name_width}}  {label}{row[1]}")
-        elif row[0] == "field":
-            _, name, value, unit = row
-            lines.append(f"    {name:<{name_width - 2}}  {value:<{value_width}}  {unit}".rstrip())
-        else:
-            _, name, value, unit = row
-            line = f"  {name:<{name_width}}  {value:<{value_width}}  {unit}" if unit \
-                else f"  {name:<{name_width}}  {value}"
-            lines.append(line.rstrip())
-    return "\n".join(lines)
-
-
 def cmd_verify(args) -> int:
     from ..engine.sheet import Sheet
+    from ..outputs.format import check_detail
 
     passed = failed = 0
-    broken = False
+    broken = internal = False
     for path in args.files:
         try:
             sheet = Sheet.load(path, root=args.root)
@@ -392,6 +306,7 @@ def cmd_verify(args) -> int:
             broken = True
             continue
         errors = sheet.all_errors()
+        internal = internal or bool(sheet.internal_errors())
         if errors:
             broken = True
             _report(errors, args.debug)
@@ -401,10 +316,12 @@ def cmd_verify(args) -> int:
                 continue
             failed += 1
             print(f"{path}:{result.line}: FAILED {result.text}")
-            print(f"    {result.detail}")
+            print(f"    {check_detail(result)}")
         if not sheet.checks:
             print(f"{path}: no checks")
     print(f"{passed} passed, {failed} failed")
+    if internal:
+        return EXIT_INTERNAL
     if broken:
         return EXIT_SHEET_ERRORS
     return EXIT_CHECK_FAILED if failed else EXIT_OK
@@ -428,7 +345,7 @@ def cmd_annotate(args) -> int:
         print(f"{args.file}: {len(changed)} marker{'s' if len(changed) != 1 else ''} written")
     else:
         print(f"{args.file}: markers up to date")
-    return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
+    return _exit_code(sheet)
 
 
 def cmd_export(args) -> int:
@@ -447,7 +364,7 @@ def cmd_export(args) -> int:
     else:
         sys.stdout.write(text)
     _report(sheet.all_errors(), args.debug)
-    return EXIT_OK if sheet.ok else EXIT_SHEET_ERRORS
+    return _exit_code(sheet)
 
 
 def cmd_deps(args) -> int:
@@ -499,6 +416,7 @@ def cmd_watch(args) -> int:
 
     from ..engine.sheet import Sheet
     from ..outputs.compare import diff
+    from ..outputs.report import render_text
 
     path = Path(args.file)
     sheet = Sheet.load(path)
@@ -531,49 +449,12 @@ def cmd_watch(args) -> int:
 
 
 def cmd_units(args) -> int:
+    from ..outputs.report import render_units
     from ..physics.constants import default_selection
     from ..physics.units import REFUSED_UNITS, unit_table
 
     print(render_units(unit_table(default_selection()), args.query, REFUSED_UNITS))
     return EXIT_OK
-
-
-def render_units(table, query: str | None, refused: dict) -> str:
-    """Units matching ``query``: name, physical type, value in SI; refused names explained."""
-    from ..physics.units import describe
-
-    trade = ["AU", "au", "pc", "lsec", "lyr", "century", "yr", "d", "Msun", "Rsun", "Mearth",
-             "Rearth", "Mjup", "Rjup", "mas", "uas", "arcsec", "deg", "rad"]
-    names = sorted({n for n in table.names() if query is None or query.lower() in n.lower()})
-    if query is None:
-        names = trade
-    lines = []
-    shown = 0
-    for name in names:
-        unit = table.lookup(name)
-        if unit is None:
-            continue
-        try:
-            si = unit.si
-            value = f"= {si.scale:.10g} {si.to_string(format='generic').split(' ', 1)[-1]}" \
-                if si.bases else f"= {si.scale:.10g}"
-            if si.to_string() == unit.to_string():
-                value = "(SI)"
-        except Exception:
-            value = ""
-        lines.append(f"  {name:<12} {describe(unit):<44} {value}".rstrip())
-        shown += 1
-        if shown >= 200:
-            lines.append(f"  … and {len(names) - shown} more; narrow the query")
-            break
-    for name, (message, hint) in refused.items():
-        if query is None or query.lower() in name:
-            lines.append(f"  {name:<12} refused: {message}; {hint}")
-    if not lines:
-        return f"no unit name contains `{query}`"
-    head = "units of the trade (`relsheet units QUERY` searches all of astropy's)" if query is None \
-        else f"units whose name contains `{query}`"
-    return "\n".join([head, *lines])
 
 
 def cmd_repl(args) -> int:

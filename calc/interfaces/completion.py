@@ -57,7 +57,7 @@ class SheetCompleter(Completer):
         table = constant_table(sheet.selection)
         found += [(n, f"constant: {e.description}") for n, e in sorted(table.items())
                   if n.startswith(word) and n not in sheet.names()]
-        units = sorted({n for n in sheet._scope.units.names() if n.startswith(word)})
+        units = sorted({n for n in sheet.unit_names() if n.startswith(word)})
         found += [(n, "unit") for n in units[:MAX_UNITS]]
         seen: set[str] = set()
         unique = []

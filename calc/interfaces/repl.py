@@ -28,16 +28,9 @@ name = expression     add a cell or override one; shows what changed (old → ne
 
 
 def _shown(sheet: Sheet, name: str) -> str:
-    from ..outputs.format import format_quantity, record_summary
-    from ..physics.records import is_record
+    from ..outputs.format import cell_text
 
-    cell = sheet.cell(name)
-    if cell.error is not None:
-        return f"error: {cell.error.message}"
-    if is_record(cell.raw):
-        return record_summary(cell.raw)
-    number, unit = format_quantity(cell.raw)
-    return f"{number} {unit}".strip()
+    return cell_text(sheet.cell(name))
 
 
 class Session:
@@ -83,15 +76,11 @@ class Session:
             value = self.sheet.evaluate(text, label)
         except SheetError as err:
             return err.render()
-        from ..outputs.format import format_quantity, record_rows, record_summary
-        from ..physics.records import is_record
+        from ..outputs.format import record_rows, value_text
 
-        if is_record(value):
-            rows = record_rows(value)
-            fields = [f"  {field}  {number} {unit}".rstrip() for field, number, unit in rows]
-            return "\n".join([record_summary(value), *fields])
-        number, unit = format_quantity(value)
-        return f"{number} {unit}".strip()
+        rows = record_rows(value)
+        fields = [f"  {field}  {number} {unit}".rstrip() for field, number, unit in rows]
+        return "\n".join([value_text(value), *fields])
 
     def assign(self, definition, text: str, label: str) -> str:
         return self.assign_text(definition.name, text.split("=", 1)[1].strip(), label)
@@ -100,7 +89,7 @@ class Session:
         new = name not in self.sheet
         if new:
             # a new name can change cells that looked it up (a PPN value, a shadowed constant)
-            seeing = [n for n, p in self.sheet._programs.items() if name in p.looked_up]
+            seeing = self.sheet.cells_seeing(name)
             reached = set(seeing).union(*(self.sheet.downstream(n) for n in seeing))
         else:
             reached = {name} | self.sheet.downstream(name)
@@ -241,7 +230,7 @@ def written_text(sheet: Sheet, assigned: dict[str, str]) -> str:
     for name, expression in assigned.items():
         statement = (f"ppn {name[4:]} = {expression}" if name.startswith("ppn.")
                      else f"{name} = {expression}")
-        original = sheet._original.get(name)
+        original = sheet.file_definition(name)
         if original is None:
             appended.append(statement)
             continue

@@ -19,7 +19,6 @@ from typing import Literal
 
 import astropy.units as u
 
-from ..engine.uncertain import InputRegistry
 from ..errors import NameResolutionError, Span
 from ..physics.constants import ConstantEntry, ConstantSelection, constant_table
 from ..physics.units import UnitTable, close_matches, did_you_mean, long_name, unit_table
@@ -47,15 +46,12 @@ class Scope:
     """Resolves names for one sheet: its cell names, units and constants."""
 
     def __init__(self, cell_names, selection: ConstantSelection,
-                 inputs: InputRegistry | None = None, uncertain_constants: bool = False,
                  namespaces: dict | None = None) -> None:
+        #: the sheet's cell names (a live view: cells added later are seen)
         self.cell_names = cell_names
         #: imported sheets by namespace
         self.namespaces = namespaces or {}
         self.selection = selection
-        self.inputs = inputs if inputs is not None else InputRegistry()
-        self.uncertain_constants = uncertain_constants
-        self._constant_inputs: dict[str, tuple] = {}
         self.units: UnitTable = unit_table(selection)
         self.constants: dict[str, ConstantEntry] = constant_table(selection)
 
@@ -95,21 +91,6 @@ class Scope:
         raise NameResolutionError(
             f"unknown unit `{name.id}`", name.span,
             hint=did_you_mean(self.units.suggestions(name.id, list(self.cell_names))))
-
-    def constant_input(self, name: str):
-        """Under ``constants … uncertain``: the input ids of constant ``name`` (one input for
-        the whole sheet however often it is used), or None when it is exact."""
-        if not self.uncertain_constants:
-            return None
-        entry = self.constants.get(name)
-        if entry is None or not entry.uncertainty:
-            return None
-        ids = self._constant_inputs.get(name)
-        if ids is None:
-            sigma = u.Quantity(entry.uncertainty, entry.quantity.unit)
-            ids = self._constant_inputs[name] = (
-                self.inputs.new(f"const.{name}", entry.quantity, sigma),)
-        return ids
 
     def plain(self, name: Name) -> Resolved:
         """A name outside a chain: a cell, else a built-in constant."""

@@ -10,20 +10,15 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..engine.sheet import Cell, Sheet
-from ..physics.records import is_record
-from .format import format_quantity, record_summary
+from ..engine.cells import Cell
+from ..engine.sheet import Sheet
+from .format import cell_text
 
 _BOM = b"\xef\xbb\xbf"
 
 
 def marker_text(cell: Cell, digits: int = 6) -> str:
-    if cell.error is not None:
-        return f"error: {cell.error.message}"
-    if is_record(cell.raw):
-        return record_summary(cell.raw)
-    number, unit = format_quantity(cell.raw, digits)
-    return f"{number} {unit}".rstrip()
+    return cell_text(cell, digits)
 
 
 def _without_marker(rest: str) -> str:

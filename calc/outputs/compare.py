@@ -7,22 +7,18 @@ from pathlib import Path
 
 import numpy as np
 
-from ..engine.sheet import Cell, Sheet
+from ..engine.cells import Cell
+from ..engine.sheet import Sheet
+from ..engine.values import is_record
 from ..errors import InputError
 from ..files import decode_sheet
-from ..physics.records import is_record
-from .format import format_quantity
+from .format import cell_text
 
 
 def _shown(cell: Cell | None) -> str:
     if cell is None:
         return "—"
-    if cell.error is not None:
-        return f"error: {cell.error.message}"
-    if is_record(cell.raw):
-        return "(record)"
-    number, unit = format_quantity(cell.raw)
-    return f"{number} {unit}".strip()
+    return cell_text(cell)
 
 
 def _relative(old: Cell | None, new: Cell | None) -> str:

@@ -26,10 +26,11 @@ import math
 
 import numpy as np
 
-from ..engine.sheet import Cell, Sheet
-from ..engine.uncertain import Summary, Uncertain
-from ..physics.records import RecordList, is_record
+from ..engine.cells import Cell
+from ..engine.sheet import Sheet
+from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue
 from ..physics.units import unit_string
+from .format import as_shown, format_magnitude, format_quantity
 
 
 def _number(x: float):
@@ -55,41 +56,46 @@ def error_text(cell: Cell) -> str | None:
     return f"{text} (hint: {err.hint})" if err.hint else text
 
 
-def _field(q) -> dict:
-    out = {"value": json_value(q.value), "unit": unit_string(q.unit)}
-    if isinstance(q, Uncertain):
-        out["sigma"] = json_value(q.sigma_value())
+def _leaf(s: Shown) -> dict:
+    out = {"value": json_value(s.value), "unit": unit_string(s.unit)}
+    if s.sigma is not None:
+        out["sigma"] = json_value(s.sigma)
     return out
 
 
-def record_value(value):
+def record_value(value: ShownValue):
     """A record as an object of fields ``{"value", "unit"}`` (and ``"sigma"`` when uncertain);
     a record list as a list of them."""
-    if isinstance(value, RecordList):
+    if isinstance(value, ShownRecords):
         return [record_value(item) for item in value.items]
-    return {name: _field(q) for name, q in value.fields.items()}
+    if isinstance(value, ShownRecord):
+        return {name: record_value(q) for name, q in value.fields.items()}
+    return _leaf(value)
 
 
-def cell_record(cell: Cell, summary=None) -> dict:
-    raw = cell.raw
+def cell_record(cell: Cell, sampled: ShownValue | None = None) -> dict:
     sigma = None
     percentiles = None
-    if raw is not None and is_record(raw):
-        shown, unit = record_value(raw), None
-    elif summary is not None:
-        shown, unit = json_value(summary.mean), unit_string(summary.unit)
-        sigma = json_value(summary.std)
-        percentiles = {"16": json_value(summary.p16), "50": json_value(summary.p50),
-                       "84": json_value(summary.p84)}
+    unit = None
+    if cell.raw is None:
+        shown_value = None
     else:
-        shown = None if raw is None else json_value(raw.value)
-        unit = None if raw is None else unit_string(raw.unit)
-        if isinstance(raw, Uncertain):
-            sigma = json_value(raw.sigma_value())
+        s = sampled if isinstance(sampled, Shown) and sampled.samples is not None \
+            else as_shown(cell.raw)
+        if isinstance(s, Shown):
+            shown_value, unit = json_value(s.value), unit_string(s.unit)
+            if s.sigma is not None:
+                sigma = json_value(s.sigma)
+            points = s.percentiles()
+            if points is not None:
+                percentiles = {"16": json_value(points[0]), "50": json_value(points[1]),
+                               "84": json_value(points[2])}
+        else:
+            shown_value = record_value(s)
     record = {
         "name": cell.name,
         "line": cell.line,
-        "value": shown,
+        "value": shown_value,
         "unit": unit,
         "sigma": sigma,
         "error": error_text(cell),
@@ -100,30 +106,26 @@ def cell_record(cell: Cell, summary=None) -> dict:
     return record
 
 
-def sheet_record(sheet: Sheet, monte_carlo: dict | None = None) -> dict:
-    summaries = monte_carlo or {}
-    cells = []
-    for c in sheet.cells:
-        summary = summaries.get(c.name)
-        cells.append(cell_record(c, summary if isinstance(summary, Summary) else None))
+def sheet_record(sheet: Sheet, monte_carlo: dict | None = None,
+                 samples: int | None = None) -> dict:
+    """The whole evaluation as one JSON-ready object (DESIGN §6)."""
+    from .format import check_detail
+
+    sampled = monte_carlo or {}
     record = {
         "sheet": sheet.source.label,
         "constants": sheet.selection.names,
-        "cells": cells,
-        "checks": [{"line": r.line, "text": r.text, "passed": r.passed, "detail": r.detail}
-                   for r in sheet.checks],
+        "cells": [cell_record(c, sampled.get(c.name)) for c in sheet.cells],
+        "checks": [{"line": r.line, "text": r.text, "passed": r.passed,
+                    "detail": check_detail(r)} for r in sheet.checks],
     }
     if monte_carlo is not None:
-        record["monte_carlo"] = {"samples": sheet_samples(monte_carlo)}
+        record["monte_carlo"] = {"samples": samples}
     return record
 
 
-def sheet_samples(monte_carlo: dict) -> int | None:
-    return monte_carlo.get("__samples__") if monte_carlo else None
-
-
-def to_json(sheet: Sheet, monte_carlo: dict | None = None) -> str:
-    return json.dumps(sheet_record(sheet, monte_carlo), ensure_ascii=False, indent=2)
+def to_json(sheet: Sheet, monte_carlo: dict | None = None, samples: int | None = None) -> str:
+    return json.dumps(sheet_record(sheet, monte_carlo, samples), ensure_ascii=False, indent=2)
 
 
 # ---- CSV -----------------------------------------------------------------------------
@@ -145,23 +147,22 @@ def to_csv(sheet: Sheet) -> str:
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(["name", "value", "sigma", "unit"])
 
-    def row(name: str, q) -> None:
-        sigma = _number_text(q.sigma_value()) if isinstance(q, Uncertain) else ""
-        writer.writerow([name, _number_text(q.value), sigma, unit_string(q.unit)])
+    def rows(name: str, s: ShownValue) -> None:
+        if isinstance(s, ShownRecords):
+            for index, item in enumerate(s.items):
+                rows(f"{name}[{index}]", item)
+        elif isinstance(s, ShownRecord):
+            for field, q in s.fields.items():
+                rows(f"{name}.{field}", q)
+        else:
+            sigma = _number_text(s.sigma) if s.sigma is not None else ""
+            writer.writerow([name, _number_text(s.value), sigma, unit_string(s.unit)])
 
     for cell in sheet.cells:
-        raw = cell.raw
-        if raw is None:
+        if cell.raw is None:
             writer.writerow([cell.name, "", "", ""])
-        elif isinstance(raw, RecordList):
-            for index, record in enumerate(raw.items):
-                for field, q in record.fields.items():
-                    row(f"{cell.name}[{index}].{field}", q)
-        elif is_record(raw):
-            for field, q in raw.fields.items():
-                row(f"{cell.name}.{field}", q)
         else:
-            row(cell.name, raw)
+            rows(cell.name, as_shown(cell.raw))
     return buffer.getvalue()
 
 
@@ -169,12 +170,8 @@ def to_csv(sheet: Sheet) -> str:
 
 
 def _markdown_value(cell: Cell) -> tuple[str, str]:
-    from .format import format_quantity, record_summary
-
     if cell.error is not None:
         return f"**error:** {cell.error.message}", ""
-    if is_record(cell.raw):
-        return record_summary(cell.raw), ""
     return format_quantity(cell.raw)
 
 
@@ -186,6 +183,7 @@ def _cell_text(text: str) -> str:
 def to_markdown(sheet: Sheet) -> str:
     """A report: headings, notes as text, tables of cells, the checks, the constant sets."""
     from ..language.syntax import Note
+    from .format import check_detail
 
     lines = [f"# {sheet.source.label}", "",
              f"Constants: {', '.join(sheet.selection.names)}"
@@ -211,7 +209,7 @@ def to_markdown(sheet: Sheet) -> str:
         lines += ["## Checks", ""]
         for result in sheet.checks:
             mark = "passed" if result.passed else "**FAILED**"
-            lines.append(f"- {mark} (line {result.line}): `{result.text}` — {result.detail}")
+            lines.append(f"- {mark} (line {result.line}): `{result.text}` — {check_detail(result)}")
         lines.append("")
     return "\n".join(lines)
 
@@ -270,7 +268,6 @@ def to_tex(sheet: Sheet) -> str:
     dimensionless, ``\\pm`` for uncertainties; arrays and records are left out with a
     comment. Two cells with the same macro name are an error naming both."""
     from ..errors import SheetError
-    from .format import format_magnitude, format_quantity
 
     seen: dict[str, str] = {}
     lines = [f"% relsheet: {sheet.source.label} (constants {', '.join(sheet.selection.names)})",
@@ -282,15 +279,15 @@ def to_tex(sheet: Sheet) -> str:
                              f"macro {name}", cell.definition.name_span,
                              hint="rename one of them", source=cell.source)
         seen[name] = cell.name
-        raw = cell.raw
-        if raw is None or is_record(raw) or np.ndim(raw.value) != 0:
-            what = "failed" if raw is None else "is a record" if is_record(raw) else "is an array"
+        s = as_shown(cell.raw) if cell.raw is not None else None
+        if not isinstance(s, Shown) or np.ndim(s.value) != 0:
+            what = "failed" if s is None else "is an array" if isinstance(s, Shown) \
+                else "is a record"
             lines.append(f"% {cell.name} {what}: no macro")
             continue
-        number = format_quantity(raw)[0] if isinstance(raw, Uncertain) else \
-            format_magnitude(raw.value, 6)
+        number = format_quantity(s)[0] if s.sigma is not None else format_magnitude(s.value, 6)
         number = number.replace(" ± ", " \\pm ").replace("(", "").replace(")", "")
-        unit = _siunitx_unit(raw.unit)
+        unit = _siunitx_unit(s.unit)
         body = f"\\qty{{{number}}}{{{unit}}}" if unit else f"\\num{{{number}}}"
         lines.append(f"\\newcommand{{{name}}}{{{body}}}")
     return "\n".join(lines) + "\n"

@@ -2,16 +2,18 @@
 
 Numbers use ``digits`` significant digits, drop trailing zeros, and write
 exponents the way the sheet language reads them (``2.99792e8``, ``6.674e-11``),
-so a printed value can be pasted back into a sheet.
+so a printed value can be pasted back into a sheet. Values of every kind are
+printed from their shown form (:func:`calc.engine.values.shown`).
 """
 
 from __future__ import annotations
 
 import math
 
-import astropy.units as u
 import numpy as np
 
+from ..engine.checks import CheckResult
+from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue, shown
 from ..physics.units import unit_string
 
 DEFAULT_DIGITS = 6
@@ -44,12 +46,21 @@ def format_magnitude(value, digits: int = DEFAULT_DIGITS) -> str:
     return f"[{head}, …, {tail}] ({flat.size:,} values)"
 
 
-def format_quantity(q, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
+def as_shown(value) -> ShownValue:
+    """The shown form of a value of any kind (a shown form stays as it is)."""
+    if isinstance(value, (Shown, ShownRecord, ShownRecords)):
+        return value
+    return shown(value)
+
+
+def format_quantity(value, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
     """(number text, unit text) of a quantity; `value ± σ` when it carries an uncertainty."""
-    sigma = getattr(q, "sigma", None)
-    if sigma is not None and not isinstance(q, u.Quantity):
-        return format_with_sigma(q.nominal.value, q.sigma_value(), digits), unit_string(q.unit)
-    return format_magnitude(q.value, digits), unit_string(q.unit)
+    s = as_shown(value)
+    if not isinstance(s, Shown):
+        return s.summary(), ""
+    if s.sigma is not None:
+        return format_with_sigma(s.value, s.sigma, digits), unit_string(s.unit)
+    return format_magnitude(s.value, digits), unit_string(s.unit)
 
 
 def format_measured(value: float, sigma: float) -> str:
@@ -90,18 +101,59 @@ def format_with_sigma(value, sigma, digits: int = DEFAULT_DIGITS) -> str:
     return "[" + ", ".join(items) + more + "]"
 
 
+def format_percentiles(s: Shown) -> str | None:
+    """`16 / 50 / 84 %` points of a sampled value, each rounded as it would be beside σ."""
+    points = s.percentiles()
+    if points is None:
+        return None
+    if np.ndim(s.value) == 0:
+        return " / ".join(format_point(q, s.sigma) for q in points)
+    return " / ".join(
+        "[" + ", ".join(format_point(v, e) for v, e in
+                        zip(np.ravel(q)[:ARRAY_PREVIEW], np.ravel(s.sigma)[:ARRAY_PREVIEW])) + "]"
+        for q in points)
+
+
 def record_rows(value, digits: int = DEFAULT_DIGITS) -> list[tuple[str, str, str]]:
     """(field, number text, unit text) rows of a record; one row per item of a record list."""
-    from ..physics.records import Record
+    s = as_shown(value)
+    if isinstance(s, ShownRecord):
+        return [(f".{name}", *format_quantity(q, digits)) for name, q in s.fields.items()]
+    if isinstance(s, ShownRecords):
+        return [(f"[{i}]", item.label or item.kind, "") for i, item in enumerate(s.items)]
+    return []
 
-    if isinstance(value, Record):
-        return [(f".{name}", *format_quantity(q, digits)) for name, q in value.fields.items()]
-    return [(f"[{i}]", item.label or item.kind, "") for i, item in enumerate(value.items)]
+
+def value_text(value, digits: int = DEFAULT_DIGITS) -> str:
+    """A value as one line of text: `1.5 ± 0.2 km`, `(orbit)`, `[1, 2, 3] s`."""
+    number, unit = format_quantity(value, digits)
+    return f"{number} {unit}".strip()
 
 
-def record_summary(value) -> str:
-    from ..physics.records import Record
+def cell_text(cell, digits: int = DEFAULT_DIGITS) -> str:
+    """A cell as one line of text: its value, or `error: message`."""
+    if cell.error is not None:
+        return f"error: {cell.error.message}"
+    return value_text(cell.raw, digits)
 
-    if isinstance(value, Record):
-        return f"({value.kind})"
-    return f"(array of {len(value.items)} records)"
+
+def check_detail(result: CheckResult) -> str:
+    """What a check compared and found, in words: `42.98 arcsec / century vs 43 … (tolerance
+    0.5%)`."""
+    if result.error is not None:
+        return f"error: {result.error.message}"
+    both = f"{value_text(result.left)} vs {value_text(result.right)}"
+    unit = unit_string(result.unit) if result.unit is not None else ""
+    if result.kind == "order":
+        return f"{both} ({result.op})"
+    if result.kind == "exact":
+        return f"{both} (exactly)"
+    if result.kind == "relative":
+        return (f"{both}: differ by {result.relative * 100:.3g}% (tolerance "
+                f"{result.amount * 100:g}%)")
+    if result.kind == "absolute":
+        return (f"{both}: differ by {result.gap:.4g} {unit} (tolerance "
+                f"{value_text(result.tolerance)})")
+    sigma = result.sigma if result.sigma is not None else 0.0
+    return (f"{both}: differ by {result.ratio:.3g} σ (tolerance {result.amount:g} σ; "
+            f"σ of the difference {sigma:.3g} {unit})")

@@ -63,23 +63,3 @@ def entered(environment: Environment) -> Iterator[Environment]:
     finally:
         _current.reset(token)
 
-
-# ---- transitional helpers (removed when the engine's context lands) ----------------
-def _start_warnings():
-    env = current()
-    before = env.warnings
-    env.warnings = []
-    return env, before
-
-
-def _stop_warnings(handle):
-    env, before = handle
-    found = env.warnings or []
-    env.warnings = before
-    return found
-
-
-@contextmanager
-def _using(selection: ConstantSelection):
-    with entered(Environment(selection)) as env:
-        yield env

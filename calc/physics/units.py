@@ -214,7 +214,8 @@ def _slow_quantity(value, unit: u.UnitBase) -> u.Quantity:
 
 def _fast_quantity(value, unit: u.UnitBase) -> u.Quantity:
     q = np.asarray(value, dtype=float).view(u.Quantity)
-    q._set_unit(unit)
+    # astropy's own unit setter, not relsheet state; checked at import by _fast_path_works
+    q._set_unit(unit)  # noqa: SLF001
     return q
 
 

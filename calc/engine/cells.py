@@ -1,0 +1,294 @@
+"""The cells of one sheet, compiled, ordered and evaluated; and what a change reaches.
+
+:class:`Cells` owns the compiled programs, the dependency graph, the
+evaluation order and the values. Every cell ends with a value or an error; a
+failing cell does not stop the others, and cells that use it say which input
+failed. :meth:`Cells.assign` gives one cell a new expression and evaluates
+only the cells downstream of it, stopping where a value did not change.
+
+Everything here runs inside the sheet's evaluation context (the caller
+enters it).
+"""
+
+from __future__ import annotations
+
+import heapq
+from collections.abc import Iterable
+
+import astropy.units as u
+
+from ..errors import CycleError, InputFailedError, InternalError, SheetError, Source, Span
+from ..language.scope import Scope
+from ..language.syntax import CellDef, Expr
+from .checks import CheckProgram, CheckResult, compile_check, run_check
+from .compile import ConstantInputs, compile_cell
+from .context import context
+from .graph import DependencyGraph
+from .run import CellProgram, Env, run_cell
+from .values import nominal, same, sigma
+
+
+class Cell:
+    """One cell as evaluated: its definition and either a value or an error."""
+
+    __slots__ = ("definition", "source", "raw", "error", "warnings")
+
+    def __init__(self, definition: CellDef, source: Source) -> None:
+        self.definition = definition
+        self.source = source
+        #: the computed value, of any kind (:mod:`calc.engine.values`)
+        self.raw: object = None
+        self.error: SheetError | None = None
+        #: validity warnings of the last computation ("r is 3 r_s: …")
+        self.warnings: list[str] = []
+
+    @property
+    def value(self):
+        """The value (the nominal value when it carries an uncertainty)."""
+        return nominal(self.raw)
+
+    @property
+    def sigma(self) -> u.Quantity | None:
+        """The standard uncertainty in the value's unit (first-order propagation), or None."""
+        return sigma(self.raw)
+
+    @property
+    def name(self) -> str:
+        return self.definition.name
+
+    @property
+    def line(self) -> int:
+        return self.definition.span.line
+
+    def __repr__(self) -> str:
+        shown = self.error.message if self.error else self.value
+        return f"<Cell {self.name} (line {self.line}): {shown}>"
+
+
+def failed_input(program: CellProgram, failed: list[str], source: Source | None = None
+                 ) -> InputFailedError:
+    """The error of a cell (or check) whose inputs failed: it names the first of them."""
+    more = f" (and {len(failed) - 1} more)" if len(failed) > 1 else ""
+    return InputFailedError(f"input `{failed[0]}` failed{more}", failed,
+                            span=program.deps[failed[0]], source=source or program.source)
+
+
+class Cells:
+    """The compiled cells of one sheet, their order and their values."""
+
+    def __init__(self, scope: Scope, constant_inputs: ConstantInputs) -> None:
+        self.scope = scope
+        self.constant_inputs = constant_inputs
+        self.cells: dict[str, Cell] = {}
+        #: definitions as the file has them (for revert and for saving what-ifs)
+        self.original: dict[str, CellDef] = {}
+        #: errors that no evaluation changes (a syntax error, a second definition)
+        self.fixed_errors: dict[str, SheetError] = {}
+        self.programs: dict[str, CellProgram] = {}
+        #: cell name → value, the environment compiled cells read
+        self.values: Env = {}
+        self.graph = DependencyGraph()
+        self.order: list[str] = []
+        self.position: dict[str, int] = {}
+        self.cycle_members: set[str] = set()
+        self.check_programs: list[CheckProgram] = []
+        self.checks: list[CheckResult] = []
+        #: how many cell evaluations ran (tests count recomputation with it)
+        self.evaluations = 0
+
+    # -- building
+    def add(self, cell: Cell) -> None:
+        self.cells[cell.name] = cell
+        self.original[cell.name] = cell.definition
+
+    def compile(self, definition: CellDef, source: Source,
+                keep: tuple[u.UnitBase, Span] | None = None) -> CellProgram:
+        if definition.name.startswith("ppn."):
+            # a PPN parameter is a plain number
+            keep = (u.dimensionless_unscaled, definition.expr.span)
+        return compile_cell(definition, self.scope, source, display_unit=keep,
+                            constant_inputs=self.constant_inputs)
+
+    def compile_all(self, check_definitions: Iterable, source: Source) -> None:
+        """Compile every cell and check, order them, and evaluate everything once."""
+        for rank, (name, cell) in enumerate(self.cells.items()):
+            program = self.compile(cell.definition, cell.source)
+            self.programs[name] = program
+            self.graph.add(name, program.deps, rank)
+        self.reorder()
+        for name in self.order:
+            self.compute(name)
+        self.check_programs = [compile_check(d, self.scope, source, self.constant_inputs)
+                               for d in check_definitions]
+        self.run_checks()
+
+    def reorder(self) -> set[str]:
+        """Recompute the order and cycles; returns cells whose cycle membership changed.
+        Every cell on a cycle gets the cycle's error; cells behind a cycle fail as inputs."""
+        order, cycles = self.graph.order()
+        self.order = order
+        self.position = {name: i for i, name in enumerate(order)}
+        members: set[str] = set()
+        for path, component in cycles:
+            text = " → ".join(path)
+            for name in component:
+                members.add(name)
+                cell = self.cells[name]
+                cell.raw = None
+                cell.error = CycleError(
+                    f"cycle: {text}", path, span=cell.definition.name_span,
+                    hint="a cell cannot depend on itself, directly or through other cells",
+                    source=cell.source)
+        changed = members ^ self.cycle_members
+        self.cycle_members = members
+        return changed
+
+    # -- evaluation
+    def compute(self, name: str) -> None:
+        cell = self.cells[name]
+        program = self.programs[name]
+        self.evaluations += 1
+        cell.raw = None
+        self.values.pop(name, None)
+        fixed = self.fixed_errors.get(name)
+        if fixed is not None:
+            cell.error = fixed
+            return
+        if program.error is not None:
+            cell.error = program.error
+            return
+        failed = [d for d in program.deps if self.cells[d].error is not None
+                  or d not in self.values]
+        if failed:
+            cell.error = failed_input(program, failed)
+            return
+        cell.warnings = list(program.warnings)
+        evaluation = context()
+        before = evaluation.collect_warnings()
+        try:
+            value = run_cell(program, self.values)
+        except SheetError as err:
+            cell.error = err
+            return
+        except Exception as exc:  # a bug of ours: keep the sheet going, say so plainly
+            cell.error = InternalError.wrapping(exc, f"computing `{name}`",
+                                                cell.definition.span, program.source)
+            return
+        finally:
+            found = evaluation.stop_warnings(before)
+        cell.warnings.extend(w for w in found if w not in cell.warnings)
+        cell.error = None
+        cell.raw = value
+        self.values[name] = value
+
+    def run_checks(self) -> None:
+        failed = {n for n, c in self.cells.items() if c.error is not None}
+        results = []
+        for program in self.check_programs:
+            try:
+                results.append(run_check(program, self.values, failed))
+            except Exception as exc:  # a bug of ours
+                result = CheckResult(program.definition.span.line, program.text, False,
+                                     program.kind, program.definition.op)
+                result.error = InternalError.wrapping(exc, "judging a check",
+                                                      program.definition.span,
+                                                      program.left.source)
+                results.append(result)
+        self.checks = results
+
+    # -- what-ifs
+    def assign(self, name: str, expr: Expr, unit: Expr | None, source: Source,
+               definition_span: Span | None = None) -> list[Cell]:
+        """Give cell ``name`` a new expression (a new cell when there is none) and evaluate
+        what it reaches; returns the cells whose value or error changed, in order."""
+        old_cell = self.cells.get(name)
+        forced: set[str] = {name}
+        if old_cell is None:
+            span = Span(1, 1, 1, 1 + len(name))
+            definition = CellDef(name, span, expr, unit, None, None, expr.span)
+            cell = Cell(definition, source)
+            self.cells[name] = cell
+            # cells that looked this name up (as a constant, unit or unknown) now see a cell
+            for other in self.seeing(name):
+                self.recompile(other)
+                forced.add(other)
+            program = self.compile(definition, source)
+            self.programs[name] = program
+            self.graph.add(name, program.deps, len(self.cells))
+            structural = True
+        else:
+            previous = self.programs[name]
+            definition = CellDef(name, old_cell.definition.name_span, expr, unit,
+                                 None, None, definition_span or expr.span)
+            old_cell.definition = definition
+            old_cell.source = source
+            # an override without `in` keeps the unit the sheet shows the cell in
+            keep = (previous.unit, expr.span) if unit is None and previous.unit is not None \
+                else None
+            program = self.compile(definition, source, keep)
+            self.programs[name] = program
+            self.fixed_errors.pop(name, None)
+            structural = self.graph.set_uses(name, program.deps)
+        if structural:
+            forced |= self.reorder()
+        return self.propagate(forced)
+
+    def seeing(self, name: str) -> list[str]:
+        """Cells whose meaning changes when a cell called ``name`` appears (they looked the
+        name up as a constant, a unit or an unknown name)."""
+        return [other for other, program in self.programs.items()
+                if name in program.looked_up and other != name]
+
+    def recompile(self, name: str) -> None:
+        cell = self.cells[name]
+        program = self.compile(cell.definition, cell.source)
+        self.programs[name] = program
+        self.graph.set_uses(name, program.deps)
+
+    def propagate(self, forced: set[str]) -> list[Cell]:
+        """Evaluate ``forced`` cells and, while values change, the cells that use them."""
+        heap: list[tuple[int, str]] = []
+        queued: set[str] = set()
+        changed: list[Cell] = []
+
+        def enqueue(names: Iterable[str]) -> None:
+            # a cell on a cycle has no place in the order: it changed, and so may its users
+            todo = list(names)
+            while todo:
+                n = todo.pop()
+                if n in queued:
+                    continue
+                queued.add(n)
+                if n in self.cycle_members:
+                    changed.append(self.cells[n])
+                    todo.extend(self.graph.users.get(n, ()))
+                else:
+                    heapq.heappush(heap, (self.position[n], n))
+
+        enqueue(forced)
+        while heap:
+            _, n = heapq.heappop(heap)
+            cell = self.cells[n]
+            before_value, before_error = cell.raw, cell.error
+            self.compute(n)
+            if not same(before_value, cell.raw) or _error_text(before_error) != \
+                    _error_text(cell.error):
+                changed.append(cell)
+                enqueue(self.graph.users.get(n, ()))
+        changed.sort(key=lambda c: self.position.get(c.name, -1))
+        return changed
+
+    def evaluate(self, definition: CellDef, source: Source):
+        """The value of an expression in this sheet's scope, without adding a cell."""
+        program = compile_cell(definition, self.scope, source,
+                               constant_inputs=self.constant_inputs)
+        if program.error is not None:
+            raise program.error
+        failed = [d for d in program.deps if self.cells[d].error is not None]
+        if failed:
+            raise failed_input(program, failed, source)
+        return run_cell(program, self.values)
+
+
+def _error_text(err: SheetError | None) -> str | None:
+    return None if err is None else err.message

@@ -1,0 +1,87 @@
+"""Monte Carlo propagation: every cell evaluated once with all its samples at once.
+
+``--mc N`` re-runs the compiled cells with every `±` input drawn N times from
+its normal distribution (jointly, for correlated inputs), on the leading
+axis of the arrays, so the whole evaluation is vectorised numpy
+(:mod:`calc.engine.samples`). Imported sheets run first, each once, in the
+same :class:`~calc.engine.context.Sampling`, so an input they share with the
+importing sheet is drawn once; each runs under its own pinned constants.
+"""
+
+from __future__ import annotations
+
+from ..errors import InternalError, SheetError
+from .cells import failed_input
+from .context import Progress, Sampling, entered
+from .run import Env, run_cell
+from .values import ShownValue, shown
+
+#: Largest number of samples × values a run may hold at once (8 bytes each: 2 GB).
+MAX_SAMPLE_VALUES = 250_000_000
+
+
+def imports_first(sheet) -> list:
+    """The sheet and every sheet it imports, each once, every import before its importer
+    (an iterative depth-first walk: import chains may be deep)."""
+    order: list = []
+    seen: set[int] = set()
+    stack: list[tuple[object, bool]] = [(sheet, False)]
+    while stack:
+        current, expanded = stack.pop()
+        if expanded:
+            order.append(current)
+            continue
+        if id(current) in seen:
+            continue
+        seen.add(id(current))
+        stack.append((current, True))
+        for imported in reversed(list(current.namespaces.values())):
+            if id(imported) not in seen:
+                stack.append((imported, False))
+    return order
+
+
+def run(sheet, samples: int, seed: int | None, progress: Progress | None = None
+        ) -> dict[str, ShownValue | SheetError]:
+    """Per cell of ``sheet``: its shown form under Monte Carlo (sample mean and standard
+    deviation, percentiles on request; cells that depend on no input as they are), or its
+    error."""
+    sampling = Sampling(samples, seed, progress)
+    out: dict[str, ShownValue | SheetError] = {}
+    for each in imports_first(sheet):
+        env, out = _evaluate(each, sampling, progress if each is sheet else None)
+        sampling.results[each] = env
+    return out
+
+
+def _evaluate(sheet, sampling: Sampling, progress: Progress | None
+              ) -> tuple[Env, dict[str, ShownValue | SheetError]]:
+    """One pass over a sheet's cells in order, with its inputs drawn."""
+    cells = sheet.engine
+    env: Env = {}
+    out: dict[str, ShownValue | SheetError] = {}
+    with entered(sheet.context.sampled(sampling)):
+        for index, name in enumerate(cells.order):
+            cell = cells.cells[name]
+            if cell.error is not None:
+                out[name] = cell.error
+                continue
+            program = cells.programs[name]
+            failed = [d for d in program.deps if d not in env]
+            if failed:
+                out[name] = failed_input(program, failed)
+                continue
+            try:
+                value = run_cell(program, env)
+            except SheetError as err:
+                out[name] = err
+                continue
+            except Exception as exc:  # a bug of ours
+                out[name] = InternalError.wrapping(exc, f"sampling `{name}`",
+                                                   cell.definition.span, program.source)
+                continue
+            env[name] = value
+            out[name] = shown(value)
+            if progress is not None:
+                progress(index + 1, len(cells.order))
+    return env, out

@@ -1,0 +1,344 @@
+"""Running compiled cells: the operations a compiled cell is made of, and the cell runner.
+
+Each operation is a small closure made once at compile time (it knows its
+place in the source, so a failure names it) and called at every evaluation.
+Plain Quantities take fast paths on their float values with cached unit
+algebra (:mod:`calc.physics.units`); every other kind of value (uncertain,
+samples, records) goes through its own operators (:mod:`calc.engine.values`).
+
+Results are not checked for nan and infinity operation by operation: a cell
+runs unchecked and is checked once at the end; only a cell whose result is
+not finite runs again with checks on, which puts the error on the operation
+that produced it (or lets a written `inf` carry through).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import astropy.units as u
+import numpy as np
+
+from ..errors import DomainError, NameResolutionError, SheetError, Source, Span, UnitError
+from ..language.syntax import CellDef
+from ..physics.records import Record, RecordList
+from ..physics.units import (
+    angle_equivalencies,
+    conversion_scale,
+    describe,
+    is_one,
+    physical_type,
+    plain_number_unit,
+    quantity,
+    unit_power,
+    unit_product,
+    unit_quotient,
+    value_in,
+)
+from . import uncertain
+from .context import context
+from .samples import Samples
+from .uncertain import Uncertain
+from .values import CONTAINERS, all_finite
+from .values import describe as describe_value
+
+_ONE = u.dimensionless_unscaled
+
+#: the environment a compiled cell reads its inputs from: cell name → value
+Env = dict[str, Any]
+
+
+class Const:
+    """A compiled value known without evaluating any cell."""
+
+    __slots__ = ("value",)
+
+    def __init__(self, value) -> None:
+        self.value = value
+
+
+Code = Callable[[Env], Any] | Const
+
+
+@dataclass
+class CellProgram:
+    """A compiled cell: how to compute it, what it uses, and where it came from."""
+
+    definition: CellDef
+    source: Source
+    run: Callable[[Env], Any] | None = None
+    constant: Any = None
+    unit: u.UnitBase | None = None
+    unit_span: Span | None = None
+    #: the cells it uses, each with the place of its first use
+    deps: dict[str, Span] = field(default_factory=dict)
+    #: every name it looked up (cells, constants, units, unknown names): a new cell of one of
+    #: these names changes its meaning
+    looked_up: set[str] = field(default_factory=set)
+    error: SheetError | None = None
+    #: validity warnings raised while compiling (calls folded into constants)
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def name(self) -> str:
+        return self.definition.name
+
+
+# ---- checks of results ---------------------------------------------------------------
+
+
+def _finite(result, inputs, span: Span, what: str = "the result"):
+    """Refuse nan, and an infinity that no infinite input explains (overflow, x/0)."""
+    if not context().checking or isinstance(result, u.UnitBase) or isinstance(result, CONTAINERS):
+        return result
+    value = result.value
+    if np.ndim(value) == 0:
+        if math.isfinite(value):
+            return result
+    elif np.isfinite(value).all():
+        return result
+    if np.isnan(value).any():
+        raise DomainError(f"{what} is not a number (nan)", span)
+    for q in inputs:
+        if isinstance(q, u.UnitBase) or isinstance(q, CONTAINERS):
+            continue
+        if not np.isfinite(q.value).all():
+            return result  # an infinity written into the sheet (`inf`) carries through
+    raise DomainError(f"{what} overflows: it is larger than a float can hold", span,
+                      hint="check the magnitudes and units of the inputs")
+
+
+def _shape_error(x, y, span: Span) -> DomainError:
+    return DomainError(
+        f"arrays of different lengths ({np.size(_raw(x))} and {np.size(_raw(y))})", span)
+
+
+def _raw(x):
+    return x if isinstance(x, u.UnitBase) else x.value
+
+
+def _unit_of(x) -> u.UnitBase:
+    return x if isinstance(x, u.UnitBase) else x.unit
+
+
+def _plain(x) -> bool:
+    """A plain Quantity with an ordinary unit: eligible for the fast arithmetic below."""
+    return type(x) is u.Quantity and isinstance(x.unit, u.UnitBase)
+
+
+# ---- operations ------------------------------------------------------------------------
+
+
+def add_op(span: Span, subtract: bool):
+    def fail(x, y):
+        if subtract:
+            message = f"cannot subtract {describe(_unit_of(y))} from {describe(_unit_of(x))}"
+        else:
+            message = f"cannot add {describe(_unit_of(x))} and {describe(_unit_of(y))}"
+        return UnitError(message, span)
+
+    def apply(x, y):
+        if isinstance(x, u.UnitBase) or isinstance(y, u.UnitBase):
+            raise fail(x, y)
+        try:
+            if _plain(x) and _plain(y):
+                # x's unit wins, as in astropy; y is scaled into it
+                scale = conversion_scale(y.unit, x.unit)
+                yv = y.value if scale == 1.0 else y.value * scale
+                result = quantity(x.value - yv if subtract else x.value + yv, x.unit)
+            else:
+                with angle_equivalencies():
+                    result = x - y if subtract else x + y
+        except u.UnitConversionError:
+            raise fail(x, y) from None
+        except ValueError:
+            raise _shape_error(x, y, span) from None
+        except SheetError as err:  # a record refuses arithmetic
+            raise err.located(span) from None
+        return _finite(result, (x, y), span)
+
+    return apply
+
+
+def mul_op(span: Span, divide: bool):
+    def apply(x, y):
+        try:
+            if _plain(x):
+                if _plain(y):
+                    if divide:
+                        result = quantity(x.value / y.value, unit_quotient(x.unit, y.unit))
+                    else:
+                        result = quantity(x.value * y.value, unit_product(x.unit, y.unit))
+                elif isinstance(y, u.UnitBase):
+                    # a unit in a chain: `3 km`, `1 / s`
+                    combined = unit_quotient(x.unit, y) if divide else unit_product(x.unit, y)
+                    result = quantity(x.value, combined)
+                else:
+                    result = x / y if divide else x * y
+            else:
+                result = x / y if divide else x * y
+        except ValueError:
+            raise _shape_error(x, y, span) from None
+        except ZeroDivisionError:
+            raise DomainError("division by zero", span) from None
+        except SheetError as err:  # a record refuses arithmetic
+            raise err.located(span) from None
+        if divide and context().checking and not isinstance(y, u.UnitBase) \
+                and not isinstance(result, u.UnitBase):
+            if np.any(np.asarray(_raw(y)) == 0) and not np.all(np.isfinite(result.value)):
+                raise DomainError("division by zero", span)
+        return _finite(result, (x, y), span)
+
+    return apply
+
+
+def neg_op(span: Span):
+    def apply(x):
+        return quantity(-x.value, x.unit) if _plain(x) else -x
+
+    return apply
+
+
+def power_op(span: Span, exponent_span: Span):
+    def apply(base, exponent):
+        if isinstance(base, CONTAINERS) or isinstance(exponent, CONTAINERS):
+            record = base if isinstance(base, CONTAINERS) else exponent
+            raise DomainError(f"{describe_value(record)} is not a number and has no power",
+                              span, hint="use one of its fields")
+        if isinstance(base, Uncertain) or isinstance(exponent, Uncertain):
+            try:
+                return _finite(uncertain.power(base, exponent), (base, exponent), span, "the power")
+            except SheetError as err:
+                raise err.located(span) from None
+            except (u.UnitsError, ValueError) as exc:
+                raise UnitError(f"cannot raise to this power: {exc}", span) from None
+        try:
+            e = value_in(exponent, _ONE)
+        except u.UnitConversionError:
+            raise UnitError(f"the exponent must be dimensionless, got {describe(exponent.unit)}",
+                            exponent_span) from None
+        if isinstance(base, Samples) or isinstance(exponent, Samples):
+            try:
+                result = base ** exponent
+            except u.UnitsError:
+                raise UnitError("a quantity with a unit can be raised only to a single number",
+                                exponent_span) from None
+            except ValueError:
+                raise _shape_error(base, exponent, span) from None
+            return _finite(result, (base, exponent), span, "the power")
+        try:
+            if is_one(base.unit):
+                result = quantity(np.power(base.value, e), _ONE)
+            else:
+                if np.ndim(e) != 0:
+                    raise UnitError("a quantity with a unit can be raised only to a single number",
+                                    exponent_span)
+                p = float(e)
+                result = (quantity(np.power(base.value, p), unit_power(base.unit, p))
+                          if _plain(base) else base ** p)
+        except OverflowError:
+            raise DomainError("the power overflows", span) from None
+        except ZeroDivisionError:
+            raise DomainError("zero to a negative power", span) from None
+        except ValueError:
+            raise _shape_error(base, exponent, span) from None
+        if context().checking and np.isnan(result.value).any() \
+                and np.any(np.asarray(base.value) < 0):
+            raise DomainError("a negative number to a fractional power", span)
+        return _finite(result, (base, exponent), span, "the power")
+
+    return apply
+
+
+def field_op(parts: tuple[str, ...], span: Span):
+    def apply(value):
+        for depth, name in enumerate(parts[1:], start=1):
+            if not isinstance(value, Record):
+                what = "an array of records" if isinstance(value, RecordList) else "a quantity"
+                raise NameResolutionError(f"`{'.'.join(parts[:depth])}` is {what}, which has no "
+                                          f"field `{name}`", span)
+            try:
+                value = value.field(name)
+            except SheetError as err:
+                raise err.located(span) from None
+        return value
+
+    return apply
+
+
+# ---- conversions at the end of a cell ------------------------------------------------------
+
+
+def convert(value, unit: u.UnitBase, span: Span):
+    """A value in ``unit`` (angles and plain numbers interconvert)."""
+    try:
+        scale = conversion_scale(value.unit, unit)
+    except u.UnitConversionError:
+        raise UnitError(f"cannot show {describe(value.unit)} in {describe(unit)}", span,
+                        hint=f"the cell's dimension is {physical_type(value.unit)}") from None
+    return rescaled(value, scale, unit)
+
+
+def rescaled(value, scale: float, unit: u.UnitBase):
+    """A leaf multiplied by ``scale`` and labelled ``unit``."""
+    if isinstance(value, Uncertain):
+        return Uncertain(quantity(value.nominal.value * scale, unit),
+                         {k: p * scale for k, p in value.parts.items()})
+    if isinstance(value, Samples):
+        return Samples(quantity(value.data.value * scale, unit))
+    return quantity(value.value if scale == 1.0 else value.value * scale, unit)
+
+
+def normalise(value):
+    """Collapse a scaled dimensionless unit (`km / m`) into a plain number."""
+    if plain_number_unit(value.unit):
+        return rescaled(value, conversion_scale(value.unit, _ONE), _ONE)
+    return value
+
+
+def finish(program: CellProgram, value):
+    """Conversion into the cell's `in` unit, or collapse of scaled dimensionless units."""
+    if isinstance(value, u.UnitBase):  # pragma: no cover - the grammar cannot produce it
+        raise UnitError("a unit needs a number before it", program.definition.expr.span)
+    if isinstance(value, CONTAINERS):
+        if program.unit is not None and program.definition.unit is not None:
+            raise UnitError("a record has no unit to show it in; convert its fields instead",
+                            program.unit_span)
+        if isinstance(value, Record):
+            return value.labelled(program.name)
+        return value
+    if program.unit is not None:
+        return convert(value, program.unit, program.unit_span)
+    return normalise(value)
+
+
+def unit_range_error(definition: CellDef) -> UnitError:
+    # astropy decomposes units into SI with a float scale: Msun^11 overflows it
+    return UnitError("a unit's size in SI is outside the range a float can hold",
+                     definition.expr.span,
+                     hint="rescale the inputs or use fewer powers of large units")
+
+
+def run_cell(program: CellProgram, env: Env):
+    """Evaluate a compiled cell with its inputs in ``env``; raises SheetError."""
+    if program.constant is not None:
+        return program.constant
+    try:
+        value = finish(program, program.run(env))
+        if not all_finite(value):
+            value = checked(lambda: finish(program, program.run(env)))
+        return value
+    except SheetError as err:
+        raise err.located(program.definition.span, program.source) from None
+    except (u.UnitScaleError, OverflowError):
+        raise unit_range_error(program.definition).located(
+            program.definition.span, program.source) from None
+
+
+def checked(compute: Callable[[], Any]):
+    """Run ``compute`` with every operation checking its result."""
+    with context().checks_on():
+        return compute()

@@ -1,0 +1,379 @@
+"""The kinds of value a cell can hold, and what each does.
+
+A cell's value is one of:
+
+* a **quantity** — an astropy Quantity (a plain number is a dimensionless one),
+  a single value or an array;
+* an **uncertain value** (:class:`~calc.engine.uncertain.Uncertain`) — a nominal
+  quantity with first-order contributions per input;
+* **samples** (:class:`~calc.engine.samples.Samples`) — a quantity drawn N times
+  under Monte Carlo;
+* a **record** (:class:`~calc.physics.records.Record`) — named fields, each a
+  value of the kinds above (orbit elements, a periapsis budget), or a
+  **list of records**.
+
+Quantities, uncertain values and samples are *leaves*; records hold leaves.
+This module is the one place that knows the kinds: how a value maps a library
+function (uncertain → numerical differentiation, samples → vectorised over
+the sample axis or once per sample), how it propagates (its inputs, moved
+along one input), how it compares, and how it is shown (:func:`shown`, the
+form every output prints from). Arithmetic lives with each kind's operators.
+A new kind adds its class, its branch in :func:`_leaf_kind`, and its cases
+here.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
+from typing import Union
+
+import astropy.units as u
+import numpy as np
+
+from ..errors import DomainError
+from ..physics.records import Record, RecordList
+from ..physics.units import quantity
+from . import uncertain
+from .context import context
+from .samples import Samples, value_ndim
+from .uncertain import Input, Uncertain
+
+Leaf = Union[u.Quantity, Uncertain, Samples]
+Value = Union[u.Quantity, Uncertain, Samples, Record, RecordList]
+CONTAINERS = (Record, RecordList)
+
+
+# ---- walking values -------------------------------------------------------------------
+
+
+def is_record(value) -> bool:
+    """A record or a list of records (values that are not numbers)."""
+    return isinstance(value, CONTAINERS)
+
+
+def leaves(value) -> Iterator:
+    """The leaves of a value: itself, or every field of a record (of every record of a list)."""
+    if isinstance(value, Record):
+        for item in value.fields.values():
+            yield from leaves(item)
+    elif isinstance(value, RecordList):
+        for record in value.items:
+            yield from leaves(record)
+    else:
+        yield value
+
+
+def map_leaves(function: Callable, value):
+    """The same value with every leaf replaced by ``function(leaf)``."""
+    if isinstance(value, Record):
+        return Record(value.kind, {k: map_leaves(function, q) for k, q in value.fields.items()},
+                      value.label)
+    if isinstance(value, RecordList):
+        return RecordList(tuple(map_leaves(function, r) for r in value.items))
+    return function(value)
+
+
+def zip_leaves(function: Callable, first, second):
+    """A value whose leaves are ``function(a, b)`` of the matching leaves of two values of the
+    same structure (a result and a result moved along one input)."""
+    if isinstance(first, Record):
+        return {k: zip_leaves(function, first.fields[k], second.fields[k]) for k in first.fields}
+    if isinstance(first, RecordList):
+        return [zip_leaves(function, a, b) for a, b in zip(first.items, second.items)]
+    return function(first, second)
+
+
+def describe(value) -> str:
+    """What a value is, for messages: "a quantity", "the orbit record `venus`", …"""
+    if isinstance(value, Record):
+        return value.describe()
+    if isinstance(value, RecordList):
+        return "an array of records"
+    return "a quantity"
+
+
+# ---- uncertainty --------------------------------------------------------------------------
+
+
+def nominal(value):
+    """The value without its uncertainty (records: field by field)."""
+    if type(value) is u.Quantity:
+        return value
+    if isinstance(value, Uncertain):
+        return value.nominal
+    if isinstance(value, CONTAINERS) and is_uncertain(value):
+        return map_leaves(_nominal_leaf, value)
+    return value
+
+
+def _nominal_leaf(leaf):
+    return leaf.nominal if isinstance(leaf, Uncertain) else leaf
+
+
+def is_uncertain(value) -> bool:
+    """Whether a value carries first-order contributions (any field of a record)."""
+    if isinstance(value, Uncertain):
+        return True
+    if isinstance(value, CONTAINERS):
+        return any(isinstance(leaf, Uncertain) for leaf in leaves(value))
+    return False
+
+
+def is_sampled(value) -> bool:
+    """Whether a value holds Monte Carlo samples (any field of a record)."""
+    if isinstance(value, Samples):
+        return True
+    if isinstance(value, CONTAINERS):
+        return any(isinstance(leaf, Samples) for leaf in leaves(value))
+    return False
+
+
+def inputs_of(value) -> dict[Input, object]:
+    """Every input a value depends on (records: any field's)."""
+    if isinstance(value, Uncertain):
+        return value.parts
+    out: dict[Input, object] = {}
+    if isinstance(value, CONTAINERS):
+        for leaf in leaves(value):
+            if isinstance(leaf, Uncertain):
+                out.update(leaf.parts)
+    return out
+
+
+def sigma(value) -> u.Quantity | None:
+    """The first-order standard uncertainty of a leaf, in its unit; None without one."""
+    return value.sigma if isinstance(value, Uncertain) else None
+
+
+def _moved(leaf, key: Input | None, t: float):
+    """A leaf's nominal value moved by t times input ``key``'s contribution."""
+    if not isinstance(leaf, Uncertain):
+        return leaf
+    part = leaf.parts.get(key) if key is not None else None
+    if part is None or t == 0.0:
+        return leaf.nominal
+    return quantity(leaf.nominal.value + t * np.asarray(part), leaf.nominal.unit)
+
+
+def _relative_size(value, key: Input) -> float:
+    """How large input ``key``'s contribution is relative to the value it moves."""
+    largest = 0.0
+    for leaf in leaves(value):
+        if isinstance(leaf, Uncertain) and key in leaf.parts:
+            part = float(np.max(np.abs(leaf.parts[key])))
+            scale = float(np.max(np.abs(leaf.nominal.value)))
+            largest = max(largest, part / scale if scale > 0 else math.inf)
+    return largest
+
+
+def _difference(plus, minus, scale: float):
+    """(plus − minus) · scale, leaf by leaf, as plain values in plus's units."""
+    def one(a, b):
+        return (np.asarray(a.value) - np.asarray(b.to_value(a.unit))) * scale
+
+    return zip_leaves(one, plus, minus)
+
+
+def _assemble(result, parts_by_key: dict):
+    """A result with the contributions found by differentiation attached, leaf by leaf."""
+    if isinstance(result, Record):
+        fields = {}
+        for name, q in result.fields.items():
+            fields[name] = _assemble(q, {k: d[name] for k, d in parts_by_key.items()})
+        return Record(result.kind, fields, result.label)
+    if isinstance(result, RecordList):
+        return RecordList(tuple(_assemble(r, {k: d[i] for k, d in parts_by_key.items()})
+                                for i, r in enumerate(result.items)))
+    return Uncertain(result, parts_by_key)
+
+
+# ---- functions over values ------------------------------------------------------------------
+
+
+def apply_function(call: Callable, values: tuple, samplewise: bool = False):
+    """Call a library function (a pure function of Quantities and records) on values of any
+    kind: uncertain values go through numerical differentiation, samples through one
+    vectorised call (or one call per sample for functions that take single values only)."""
+    uncertain_args = False
+    sampled_args = False
+    for v in values:
+        kind = type(v)
+        if kind is u.Quantity:
+            continue
+        if kind is Uncertain or (kind in CONTAINERS and is_uncertain(v)):
+            uncertain_args = True
+        elif kind is Samples or (kind in CONTAINERS and is_sampled(v)):
+            sampled_args = True
+    if uncertain_args:
+        return uncertain.through(call, values, inputs_of=inputs_of, shifted=_shifted,
+                                 relative_size=_relative_size, difference=_difference,
+                                 assemble=_assemble)
+    if sampled_args:
+        return (per_sample if samplewise else vectorised)(call, values)
+    return call(*values)
+
+
+def _shifted(value, key: Input | None, t: float):
+    return map_leaves(lambda leaf: _moved(leaf, key, t), value)
+
+
+def vectorised(call: Callable, values: tuple):
+    """One call with every sample at once: samples become Quantities with the sample axis
+    first and their own axes padded to the widest argument (at least one, so that a function
+    reducing its argument's last axis never reduces the samples)."""
+    ndim = max(1, max((value_ndim(leaf) for v in values for leaf in leaves(v)), default=0))
+    scalars_only = all(value_ndim(leaf) == 0 for v in values for leaf in leaves(v))
+    count = next(leaf.count for v in values for leaf in leaves(v) if isinstance(leaf, Samples))
+
+    def unwrap(leaf):
+        return leaf.padded(ndim) if isinstance(leaf, Samples) else leaf
+
+    result = call(*(map_leaves(unwrap, v) for v in values))
+
+    def wrap(leaf):
+        if isinstance(leaf, u.Quantity) and np.ndim(leaf.value) >= 1 and leaf.shape[0] == count:
+            if scalars_only and leaf.shape[1:] == (1,):
+                leaf = leaf.reshape((count,))
+            return Samples(leaf)
+        return leaf
+
+    return map_leaves(wrap, result)
+
+
+def per_sample(call: Callable, values: tuple):
+    """Monte Carlo through a function that takes single values: once per sample, stacked."""
+    count = next(leaf.count for v in values for leaf in leaves(v) if isinstance(leaf, Samples))
+    progress = context().sampling.progress if context().sampling is not None else None
+    results = []
+    for k in range(count):
+        results.append(call(*(map_leaves(lambda leaf, k=k: _take(leaf, k), v) for v in values)))
+        if progress is not None and k % 256 == 0:
+            progress(k, count)
+    if progress is not None:
+        progress(count, count)
+    return _stack(results)
+
+
+def _take(leaf, k: int):
+    if isinstance(leaf, Samples):
+        return leaf.data[k]
+    return leaf
+
+
+def _stack(results: list):
+    first = results[0]
+    if isinstance(first, Record):
+        return Record(first.kind, {n: _stack([r.fields[n] for r in results])
+                                   for n in first.fields}, first.label)
+    if isinstance(first, RecordList):
+        return RecordList(tuple(_stack([r.items[i] for r in results])
+                                for i in range(len(first.items))))
+    return Samples(quantity(np.array([np.asarray(r.to_value(first.unit)) for r in results]),
+                            first.unit))
+
+
+# ---- comparing and checking -------------------------------------------------------------
+
+
+def same(a, b) -> bool:
+    """Whether two values of a cell are the same (propagation stops where nothing changed)."""
+    if a is b:
+        return True
+    if a is None or b is None:
+        return False
+    if isinstance(a, Record) or isinstance(b, Record):
+        return isinstance(a, Record) and isinstance(b, Record) and a.kind == b.kind \
+            and a.label == b.label and list(a.fields) == list(b.fields) \
+            and all(same(x, y) for x, y in zip(a.fields.values(), b.fields.values()))
+    if isinstance(a, RecordList) or isinstance(b, RecordList):
+        return isinstance(a, RecordList) and isinstance(b, RecordList) \
+            and len(a.items) == len(b.items) and all(same(x, y) for x, y in zip(a.items, b.items))
+    if isinstance(a, Uncertain) or isinstance(b, Uncertain):
+        return isinstance(a, Uncertain) and isinstance(b, Uncertain) \
+            and same(a.nominal, b.nominal) and same(a.sigma, b.sigma)
+    if isinstance(a, Samples) or isinstance(b, Samples):
+        return isinstance(a, Samples) and isinstance(b, Samples) and same(a.data, b.data)
+    return a.unit == b.unit and np.shape(a.value) == np.shape(b.value) and \
+        bool(np.array_equal(a.value, b.value))
+
+
+def all_finite(value) -> bool:
+    """No nan or infinity in a quantity (records were checked field by field when made)."""
+    kind = type(value)
+    if kind in CONTAINERS:
+        return True
+    if kind is Uncertain:
+        value = value.nominal
+    v = value.value
+    return math.isfinite(v) if np.ndim(v) == 0 else bool(np.isfinite(v).all())
+
+
+# ---- how values are shown ---------------------------------------------------------------
+
+
+@dataclass
+class Shown:
+    """A leaf as outputs print it: a value (a number or an array), its σ (or None), its unit;
+    under Monte Carlo the sample mean and standard deviation, and the 16/50/84 % points."""
+
+    value: object
+    sigma: object | None
+    unit: u.UnitBase
+    samples: np.ndarray | None = None
+    _points: np.ndarray | None = field(default=None, repr=False)
+
+    @property
+    def uncertain(self) -> bool:
+        return self.sigma is not None
+
+    @property
+    def size(self) -> int:
+        return int(np.size(self.value))
+
+    def percentiles(self) -> np.ndarray | None:
+        """The 16/50/84 % points of the samples (None without samples), computed once."""
+        if self.samples is None:
+            return None
+        if self._points is None:
+            self._points = np.percentile(self.samples, [16, 50, 84], axis=0)
+        return self._points
+
+
+@dataclass
+class ShownRecord:
+    kind: str
+    label: str | None
+    fields: dict[str, Shown | ShownRecord | ShownRecords]
+
+    def summary(self) -> str:
+        return f"({self.kind})"
+
+
+@dataclass
+class ShownRecords:
+    items: list[ShownRecord]
+
+    def summary(self) -> str:
+        return f"(array of {len(self.items)} records)"
+
+
+ShownValue = Union[Shown, ShownRecord, ShownRecords]
+
+
+def shown(value) -> ShownValue:
+    """The printable form of a value of any kind."""
+    if isinstance(value, Record):
+        return ShownRecord(value.kind, value.label, {k: shown(q) for k, q in value.fields.items()})
+    if isinstance(value, RecordList):
+        return ShownRecords([shown(r) for r in value.items])  # type: ignore[misc]
+    if isinstance(value, Uncertain):
+        return Shown(value.nominal.value, value.sigma_value(), value.unit)
+    if isinstance(value, Samples):
+        data = np.asarray(value.data.value)
+        return Shown(np.mean(data, axis=0), np.std(data, axis=0, ddof=1) if value.count > 1
+                     else np.zeros(data.shape[1:]), value.unit, samples=data)
+    if isinstance(value, u.Quantity):
+        return Shown(value.value, None, value.unit)
+    raise DomainError(f"a value of an unknown kind: {type(value).__name__}")

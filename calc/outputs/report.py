@@ -1,0 +1,144 @@
+"""The text report of `relsheet eval`: headings, aligned name / value / unit, checks in place,
+warnings; the σ budget of one cell; the unit list of `relsheet units`."""
+
+from __future__ import annotations
+
+from ..engine.cells import Cell
+from ..engine.values import Shown
+from ..physics.units import describe, unit_string
+from .format import (
+    check_detail,
+    format_percentiles,
+    format_quantity,
+    record_rows,
+    value_text,
+)
+
+
+def render_text(sheet, digits: int, monte_carlo: dict | None = None,
+                samples: int | None = None) -> str:
+    """Headings, then aligned name / value / unit; errors inline; each check where it
+    stands in the sheet. ``monte_carlo`` (from ``Sheet.monte_carlo``) replaces values by
+    their sample statistics."""
+    rows: list[tuple[str, ...]] = []
+    pending = sorted(sheet.checks, key=lambda r: r.line)
+
+    def checks_before(line: int | None) -> None:
+        while pending and (line is None or pending[0].line < line):
+            result = pending.pop(0)
+            rows.append(("check", "passed" if result.passed else "FAILED", result.text,
+                         "" if result.passed else check_detail(result)))
+
+    for item in sheet.items:
+        own = getattr(item, "source", sheet.source) is sheet.source
+        if own:
+            checks_before(item.line if isinstance(item, Cell) else item.span.line)
+        if isinstance(item, Cell):
+            sampled = (monte_carlo or {}).get(item.name)
+            if item.error is not None:
+                rows.append(("cell", item.name, f"error: {item.error.message}", ""))
+            elif isinstance(sampled, Shown) and sampled.samples is not None:
+                rows.append(("cell", item.name, *format_quantity(sampled, digits)))
+                rows.append(("warning", f"16 / 50 / 84 %: {format_percentiles(sampled)}"))
+            else:
+                number, unit = format_quantity(item.raw, digits)
+                rows.append(("cell", item.name, number, unit))
+                rows += [("field", *row) for row in record_rows(item.raw, digits)]
+            rows += [("warning", text) for text in item.warnings]
+        elif item.heading:
+            rows.append(("heading", item.text))
+    checks_before(None)
+    name_width = max((len(r[1]) + (2 if r[0] == "field" else 0) for r in rows
+                      if r[0] in ("cell", "field")), default=0)
+    scalars = [len(r[2]) for r in rows
+               if r[0] in ("cell", "field") and r[3] and not r[2].startswith("[")]
+    value_width = min(24, max(scalars, default=0))
+    header = f"{sheet.source.label}  ·  constants {', '.join(sheet.selection.names)}"
+    if sheet.uncertain_constants:
+        header += " (with their uncertainties)"
+    if monte_carlo is not None:
+        header += f"  ·  Monte Carlo, {samples or 0:,} samples"
+    lines = [header]
+    for row in rows:
+        if row[0] == "heading":
+            lines += ["", row[1]]
+        elif row[0] == "check":
+            _, outcome, text, detail = row
+            lines.append(f"  {outcome:<6}  {text}")
+            if detail:
+                lines.append(f"          {detail}")
+        elif row[0] == "warning":
+            label = "" if row[1].startswith("16 / 50 / 84 %") else "warning: "
+            lines.append(f"  {'':<{name_width}}  {label}{row[1]}")
+        elif row[0] == "field":
+            _, name, value, unit = row
+            lines.append(f"    {name:<{name_width - 2}}  {value:<{value_width}}  {unit}".rstrip())
+        else:
+            _, name, value, unit = row
+            line = f"  {name:<{name_width}}  {value:<{value_width}}  {unit}" if unit \
+                else f"  {name:<{name_width}}  {value}"
+            lines.append(line.rstrip())
+    return "\n".join(lines)
+
+
+def render_sigma_budget(sheet, name: str, digits: int) -> str:
+    """Each independent input's share of σ² of one cell, largest first."""
+    cell = sheet.cell(name)
+    if cell.error is not None:
+        return f"\nuncertainty budget of `{name}`: the cell failed ({cell.error.message})"
+    rows = sheet.sigma_budget(name)
+    if not rows:
+        return f"\nuncertainty budget of `{name}`: it depends on no uncertain input"
+    sigma = cell.sigma
+    lines = ["", f"uncertainty budget of `{name}`  (σ = {format_quantity(sigma, digits)[0]} "
+             f"{unit_string(sigma.unit)})"]
+    width = max(len(row.name) for row in rows)
+    for row in rows:
+        contribution = value_text(row.contribution, 2)
+        if row.correlation is not None:
+            source = f"joint term, correlation {row.correlation:g}"
+        else:
+            (inp,) = row.inputs
+            source = (f"from {format_quantity(inp.nominal, digits)[0]} ± "
+                      f"{format_quantity(inp.sigma, 2)[0]} {unit_string(inp.nominal.unit)}")
+        lines.append(f"  {row.name:<{width}}  {row.share * 100:6.2f} %   {contribution:<22} "
+                     f"{source}".rstrip())
+    return "\n".join(lines)
+
+
+TRADE_UNITS = ["AU", "au", "pc", "lsec", "lyr", "century", "yr", "d", "Msun", "Rsun", "Mearth",
+               "Rearth", "Mjup", "Rjup", "mas", "uas", "arcsec", "deg", "rad"]
+
+
+def render_units(table, query: str | None, refused: dict) -> str:
+    """Units matching ``query``: name, physical type, value in SI; refused names explained."""
+    names = sorted({n for n in table.names() if query is None or query.lower() in n.lower()})
+    if query is None:
+        names = TRADE_UNITS
+    lines = []
+    shown = 0
+    for name in names:
+        unit = table.lookup(name)
+        if unit is None:
+            continue
+        try:
+            si = unit.si
+            value = f"= {si.scale:.10g} {si.to_string(format='generic').split(' ', 1)[-1]}" \
+                if si.bases else f"= {si.scale:.10g}"
+            if si.to_string() == unit.to_string():
+                value = "(SI)"
+        except Exception:
+            value = ""
+        lines.append(f"  {name:<12} {describe(unit):<44} {value}".rstrip())
+        shown += 1
+        if shown >= 200:
+            lines.append(f"  … and {len(names) - shown} more; narrow the query")
+            break
+    for name, (message, hint) in refused.items():
+        if query is None or query.lower() in name:
+            lines.append(f"  {name:<12} refused: {message}; {hint}")
+    if not lines:
+        return f"no unit name contains `{query}`"
+    head = "units of the trade (`relsheet units QUERY` searches all of astropy's)" if query is None \
+        else f"units whose name contains `{query}`"
+    return "\n".join([head, *lines])
