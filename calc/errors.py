@@ -66,7 +66,6 @@ class Source:
 class SheetError(Exception):
     """Base of every error a sheet, a command line or an expression can produce."""
 
-    kind = "error"
 
     def __init__(
         self,
@@ -122,31 +121,26 @@ class SheetError(Exception):
 class SheetSyntaxError(SheetError):
     """The text is not a sentence of the sheet language (bad character, bracket, token)."""
 
-    kind = "syntax"
 
 
 class InputError(SheetError):
     """The input cannot be read at all: invalid UTF-8, too large, too deeply nested."""
 
-    kind = "input"
 
 
 class NameResolutionError(SheetError):
     """A name that is unknown, ambiguous (cell and unit), reserved, or used in the wrong place."""
 
-    kind = "name"
 
 
 class UnitError(SheetError):
     """Incompatible dimensions: mismatched units, impossible conversions, dimensioned exponents."""
 
-    kind = "unit"
 
 
 class CycleError(SheetError):
     """Cells that depend on themselves; ``cycle`` lists them as ``a → b → a``."""
 
-    kind = "cycle"
 
     def __init__(self, message: str, cycle: list[str], **kwargs) -> None:
         super().__init__(message, **kwargs)
@@ -156,19 +150,16 @@ class CycleError(SheetError):
 class DuplicateCellError(SheetError):
     """A cell name defined on two lines."""
 
-    kind = "duplicate"
 
 
 class DomainError(SheetError):
     """A value outside where an operation or function is defined, or a non-finite result."""
 
-    kind = "domain"
 
 
 class InputFailedError(SheetError):
     """A cell could not be computed because a cell it uses failed."""
 
-    kind = "input-failed"
 
     def __init__(self, message: str, failed: list[str], **kwargs) -> None:
         super().__init__(message, **kwargs)
@@ -182,7 +173,6 @@ class ArgumentError(SheetError):
     the evaluator can put the caret under it.
     """
 
-    kind = "argument"
 
     def __init__(self, message: str, argument: str | None = None, **kwargs) -> None:
         super().__init__(message, **kwargs)
@@ -192,7 +182,6 @@ class ArgumentError(SheetError):
 class InternalError(SheetError):
     """A bug of relsheet's own, not of the sheet: the command line exits 70 and says so."""
 
-    kind = "internal"
 
     #: where to report such bugs
     REPORT = "please report this to the relsheet developers with the sheet that shows it"
@@ -211,4 +200,3 @@ class InternalError(SheetError):
 class UsageError(SheetError):
     """The command line was used wrongly (exit code 64)."""
 
-    kind = "usage"

@@ -50,6 +50,15 @@ def read_sheet(path: str | Path) -> Source:
     return decode_sheet(data, label)
 
 
+def cache_folder() -> Path:
+    """relsheet's folder in the user's cache ($XDG_CACHE_HOME/relsheet, else ~/.cache/relsheet):
+    analysed grammars, prompt history. Nothing in it is needed to get the right numbers."""
+    import os
+
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "relsheet"
+
+
 def atomic_write(path: str | Path, data: bytes) -> None:
     """Replace ``path`` with ``data`` so that a crash leaves the old file or the new one,
     never half of either: a temporary file in the same folder, fsync, then rename."""

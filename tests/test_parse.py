@@ -207,17 +207,62 @@ def test_absurd_operator_chain_is_a_clear_error():
     assert isinstance(err, InputError) and "nested more than" in err.message
 
 
-# Property: whatever text arrives, building a sheet raises nothing; every problem is a SheetError.
+# Property: whatever text arrives, building a sheet raises nothing; every problem is a
+# SheetError, and none is an internal error (a bug of ours).
 _ALPHABET = st.sampled_from(list("ab xyz019.e_+-*/^()[],=#%\n\t\"'$±µωkmsAUd") + ["in", "const.", "**"])
 
+_ATOMS = st.sampled_from(["1", "2.5", "0", "-3", "1e300", "a", "b", "pi", "3 km", "2 s", "[1, 2, 3]",
+                          "[1, 2] km", "1 ± 0.1", "4 AU", "orbit(1 AU, 0.1)", "const.c", "inf",
+                          "5%", "sqrt(4 m^2)"])
+_EXPRESSIONS = st.recursive(
+    _ATOMS,
+    lambda inner: st.one_of(
+        st.tuples(inner, st.sampled_from([" + ", " - ", " * ", " / ", " ^ "]), inner).map("".join),
+        inner.map(lambda x: f"-{x}"),
+        inner.map(lambda x: f"({x})"),
+        st.tuples(st.sampled_from(["sqrt", "ln", "sin", "abs", "max", "sum"]), inner).map(
+            lambda p: f"{p[0]}({p[1]})"),
+        inner.map(lambda x: f"{x} in km"),
+    ),
+    max_leaves=6)
+_SHEETS = st.one_of(
+    st.lists(_ALPHABET, max_size=40).map("".join),
+    st.lists(st.tuples(st.sampled_from(["a", "b", "c"]), _EXPRESSIONS), min_size=1,
+             max_size=4).map(lambda cells: "".join(f"{n} = {x}\n" for n, x in cells)),
+)
 
-@settings(max_examples=300, deadline=None)
-@given(st.lists(_ALPHABET, max_size=40).map("".join))
-def test_any_text_gives_values_or_sheet_errors(text):
+
+def internal_errors_of(text: str) -> list:
+    """Build a sheet from any text; return the internal errors it met (it must raise nothing)."""
     sheet = Sheet.from_text(text)
     for err in sheet.all_errors():
         assert isinstance(err, SheetError)
         err.render()
+    return sheet.internal_errors()
+
+
+@settings(max_examples=300, deadline=None)
+@given(_SHEETS)
+def test_any_text_gives_values_or_sheet_errors(text):
+    assert internal_errors_of(text) == []
+
+
+def test_the_property_fails_when_a_kernel_is_broken(monkeypatch):
+    # the property above must be able to fail on an evaluation bug: break the negation kernel
+    # on purpose and let hypothesis find a sheet that shows it
+    from hypothesis import find
+
+    import calc.engine.compile as compile_module
+
+    def broken_negation(span):
+        def apply(x):
+            raise KeyError("a bug planted by the test")
+        return apply
+
+    monkeypatch.setattr(compile_module, "neg_op", broken_negation)
+    found = find(_SHEETS, lambda text: bool(internal_errors_of(text)),
+                 settings=settings(max_examples=2000, deadline=None, database=None))
+    assert "-" in found
 
 
 @settings(max_examples=200, deadline=None)

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING
 from ..errors import DuplicateCellError, InputError, NameResolutionError, SheetError, Source, Span
 from ..files import read_sheet, resolve_import
 from ..language.parse import parse_sheet
-from ..language.scope import PPN_PARAMETERS
+from ..language.scope import PPN_PARAMETERS, ppn_cell
 from ..language.syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef, UseDef
 from ..physics.constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection
 from ..physics.units import close_matches, did_you_mean
@@ -141,7 +141,7 @@ def _ppn_cell(statement: PPNDef, out: Built, source: Source) -> CellDef | None:
             f"unknown PPN parameter `{statement.parameter}`", statement.parameter_span,
             hint="relsheet knows the PPN parameters gamma and beta", source=source))
         return None
-    return CellDef(f"ppn.{statement.parameter}", statement.parameter_span, statement.expr,
+    return CellDef(ppn_cell(statement.parameter), statement.parameter_span, statement.expr,
                    None, statement.comment, statement.marker, statement.span)
 
 

@@ -17,14 +17,14 @@ from collections.abc import Iterable
 
 import astropy.units as u
 
-from ..errors import CycleError, InputFailedError, InternalError, SheetError, Source, Span
-from ..language.scope import Scope
+from ..errors import CycleError, InternalError, SheetError, Source, Span
+from ..language.scope import Scope, ppn_parameter
 from ..language.syntax import CellDef, Expr
 from .checks import CheckProgram, CheckResult, compile_check, run_check
 from .compile import ConstantInputs, compile_cell
 from .context import context
 from .graph import DependencyGraph
-from .run import CellProgram, Env, run_cell
+from .run import CellProgram, Env, failed_input, run_cell
 from .values import nominal, same, sigma
 
 
@@ -65,14 +65,6 @@ class Cell:
         return f"<Cell {self.name} (line {self.line}): {shown}>"
 
 
-def failed_input(program: CellProgram, failed: list[str], source: Source | None = None
-                 ) -> InputFailedError:
-    """The error of a cell (or check) whose inputs failed: it names the first of them."""
-    more = f" (and {len(failed) - 1} more)" if len(failed) > 1 else ""
-    return InputFailedError(f"input `{failed[0]}` failed{more}", failed,
-                            span=program.deps[failed[0]], source=source or program.source)
-
-
 class Cells:
     """The compiled cells of one sheet, their order and their values."""
 
@@ -103,7 +95,7 @@ class Cells:
 
     def compile(self, definition: CellDef, source: Source,
                 keep: tuple[u.UnitBase, Span] | None = None) -> CellProgram:
-        if definition.name.startswith("ppn."):
+        if ppn_parameter(definition.name) is not None:
             # a PPN parameter is a plain number
             keep = (u.dimensionless_unscaled, definition.expr.span)
         return compile_cell(definition, self.scope, source, display_unit=keep,

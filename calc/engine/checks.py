@@ -22,12 +22,12 @@ from typing import Literal
 import astropy.units as u
 import numpy as np
 
-from ..errors import InputFailedError, SheetError, Source, UnitError
+from ..errors import SheetError, Source, UnitError
 from ..language.scope import Scope
 from ..language.syntax import CellDef, Chain, CheckDef, Name, Number, Percent
 from ..physics.units import describe, value_in
 from .compile import ConstantInputs, compile_cell
-from .run import CellProgram, Env, run_cell
+from .run import CellProgram, Env, failed_input, run_cell
 from .uncertain import Uncertain
 from .values import CONTAINERS, Shown, shown
 
@@ -110,8 +110,7 @@ def compile_check(definition: CheckDef, scope: Scope, source: Source,
 def _value(program: CellProgram, env: Env, failed: set[str]):
     bad = [d for d in program.deps if d in failed or d not in env]
     if bad:
-        raise InputFailedError(f"input `{bad[0]}` failed", bad, span=program.deps[bad[0]],
-                               source=program.source)
+        raise failed_input(program, bad)
     if program.error is not None:
         raise program.error
     return run_cell(program, env)

@@ -25,13 +25,14 @@ from ..errors import (
     DomainError,
     InputError,
     InputFailedError,
+    InternalError,
     NameResolutionError,
     SheetError,
     Source,
     Span,
     UnitError,
 )
-from ..language.scope import PPN_PARAMETERS, Scope
+from ..language.scope import PPN_PARAMETERS, Scope, ppn_cell
 from ..language.syntax import (
     ArrayLiteral,
     BinaryOp,
@@ -130,22 +131,6 @@ def _input_code(inputs: tuple[Input, ...], nominal_value: u.Quantity,
         return draw(columns[0], nominal_value, sigma_value, columns)
 
     return value
-
-
-#: Largest number of distinct literal numbers kept as shared Quantities.
-_NUMBERS_KEPT = 4096
-_NUMBERS: dict[float, u.Quantity] = {}
-
-
-def _number(value: float) -> u.Quantity:
-    """The dimensionless Quantity of a literal; shared, as values are never changed in place.
-    The table is bounded: sheets built and dropped over a long session do not grow it."""
-    q = _NUMBERS.get(value)
-    if q is None:
-        if len(_NUMBERS) >= _NUMBERS_KEPT:
-            _NUMBERS.clear()
-        q = _NUMBERS[value] = u.Quantity(value)
-    return q
 
 
 def _uncertain_array(values, spans) -> Uncertain:
@@ -344,7 +329,7 @@ class _Compiler:
                              node.span, hint="split it into several cells")
         kind = type(node)
         if kind is Number or kind is Percent:
-            return Const(_number(node.value))
+            return Const(quantity(float(node.value)))
         if kind is Name:
             self.looked_up.add(node.id)
             return self.resolved(self.scope.plain(node), node.span)
@@ -504,7 +489,7 @@ class _Compiler:
         for parameter in PPN_PARAMETERS:
             # an omitted gamma or beta takes the sheet's `ppn` value (else 1)
             if parameter in omitted:
-                self.looked_up.add(f"ppn.{parameter}")
+                self.looked_up.add(ppn_cell(parameter))
                 names.append(parameter)
                 kw_codes.append(self.resolved(self.scope.ppn(parameter, node.span), node.span))
         slots = (*slots, *names[len(keywords):])
@@ -645,6 +630,12 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
         program.error = err.located(definition.span, compiler.source)
     except (u.UnitScaleError, OverflowError):
         program.error = unit_range_error(definition).located(definition.span, compiler.source)
+    except RecursionError:
+        program.error = InputError("the expression is nested too deeply", definition.span,
+                                   hint="split it into several cells", source=compiler.source)
+    except Exception as exc:  # a bug of ours: the cell says so, the others go on
+        program.error = InternalError.wrapping(exc, f"compiling `{definition.name}`",
+                                               definition.span, compiler.source)
 
 
 def _constant(code: Code):

@@ -11,9 +11,8 @@ importing sheet is drawn once; each runs under its own pinned constants.
 from __future__ import annotations
 
 from ..errors import InternalError, SheetError
-from .cells import failed_input
 from .context import Progress, Sampling, entered
-from .run import Env, run_cell
+from .run import Env, failed_input, run_cell
 from .values import ShownValue, shown
 
 #: Largest number of samples × values a run may hold at once (8 bytes each: 2 GB).

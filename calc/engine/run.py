@@ -22,7 +22,15 @@ from typing import Any
 import astropy.units as u
 import numpy as np
 
-from ..errors import DomainError, NameResolutionError, SheetError, Source, Span, UnitError
+from ..errors import (
+    DomainError,
+    InputFailedError,
+    NameResolutionError,
+    SheetError,
+    Source,
+    Span,
+    UnitError,
+)
 from ..language.syntax import CellDef
 from ..physics.records import Record, RecordList
 from ..physics.units import (
@@ -85,6 +93,14 @@ class CellProgram:
     @property
     def name(self) -> str:
         return self.definition.name
+
+
+def failed_input(program: CellProgram, failed: list[str], source: Source | None = None
+                 ) -> InputFailedError:
+    """The error of a cell (or check) whose inputs failed: it names the first of them."""
+    more = f" (and {len(failed) - 1} more)" if len(failed) > 1 else ""
+    return InputFailedError(f"input `{failed[0]}` failed{more}", failed,
+                            span=program.deps[failed[0]], source=source or program.source)
 
 
 # ---- checks of results ---------------------------------------------------------------

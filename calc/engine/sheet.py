@@ -41,6 +41,10 @@ from .compile import ConstantInputs
 from .context import EvaluationContext, Progress, entered
 from .values import ShownValue
 
+#: A set of cell names (spelled here because the method `Sheet.set` hides the builtin in
+#: the class body).
+Names = set[str]
+
 
 @contextmanager
 def numeric_context() -> Iterator[None]:
@@ -263,19 +267,19 @@ class Sheet:
         """Every unit name a cell of this sheet can use."""
         return unit_table(self.selection).names()
 
-    def downstream(self, name: str) -> set[str]:
+    def downstream(self, name: str) -> Names:
         """Every cell that depends on cell ``name``, directly or not."""
         return self._cells.graph.downstream(name)
 
-    def upstream(self, name: str) -> set[str]:
+    def upstream(self, name: str) -> Names:
         """Every cell that cell ``name`` depends on, directly or not."""
         return self._cells.graph.upstream(name)
 
-    def uses(self, name: str) -> set[str]:
+    def uses(self, name: str) -> Names:
         """The cells that cell ``name`` uses directly."""
         return set(self._cells.graph.uses.get(name, ()))
 
-    def users(self, name: str) -> set[str]:
+    def users(self, name: str) -> Names:
         """The cells that use cell ``name`` directly."""
         return set(self._cells.graph.users.get(name, ()))
 

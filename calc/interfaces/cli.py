@@ -201,7 +201,7 @@ def _report(errors: list[SheetError], debug: bool) -> None:
 
 
 def _apply_overrides(sheet, overrides: list[str]) -> None:
-    from ..language.scope import PPN_PARAMETERS
+    from ..language.scope import PPN_PARAMETERS, ppn_cell
     from ..physics.units import close_matches, did_you_mean
 
     for item in overrides:
@@ -209,7 +209,7 @@ def _apply_overrides(sheet, overrides: list[str]) -> None:
         name = name.strip()
         if not sep or not name:
             raise UsageError(f"--set takes NAME=EXPR, got `{item}`", hint="for example --set a=2 AU")
-        if name not in sheet and name not in [f"ppn.{p}" for p in PPN_PARAMETERS]:
+        if name not in sheet and name not in [ppn_cell(p) for p in PPN_PARAMETERS]:
             raise UsageError(f"--set: the sheet has no cell `{name}`",
                              hint=did_you_mean(close_matches(name, sheet.names())))
         sheet.set(name, expr.strip(), label=f"--set {name}")

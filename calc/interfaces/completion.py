@@ -7,7 +7,7 @@ import re
 
 from prompt_toolkit.completion import Completer, Completion
 
-from ..language.scope import PPN_PARAMETERS
+from ..language.scope import PPN_PARAMETERS, ppn_cell
 from ..physics import functions
 from ..physics.constants import constant_table
 
@@ -40,7 +40,7 @@ class SheetCompleter(Completer):
                 return [(f"const.{n}", e.description) for n, e in sorted(table.items())
                         if n.startswith(rest)]
             if head == "ppn":
-                return [(f"ppn.{n}", "PPN parameter") for n in PPN_PARAMETERS
+                return [(ppn_cell(n), "PPN parameter") for n in PPN_PARAMETERS
                         if n.startswith(rest)]
             imported = sheet.namespaces.get(head)
             if imported is not None:

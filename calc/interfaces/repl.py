@@ -10,11 +10,12 @@ prompt_toolkit prompt with completion, highlighting and history.
 from __future__ import annotations
 
 import hashlib
-import os
 from pathlib import Path
 
 from ..engine.sheet import Sheet
 from ..errors import SheetError, Source
+from ..files import cache_folder
+from ..language.scope import ppn_cell, ppn_parameter
 
 HELP = """\
 expression            show its value (`adv in arcsec / century`)
@@ -69,7 +70,7 @@ class Session:
                 return (f"unknown PPN parameter `{parsed.parameter}`: relsheet knows "
                         + " and ".join(PPN_PARAMETERS))
             expression = text.split("=", 1)[1].strip()
-            return self.assign_text(f"ppn.{parsed.parameter}", expression, label)
+            return self.assign_text(ppn_cell(parsed.parameter), expression, label)
         if isinstance(parsed, CellDef):
             return self.assign(parsed, text, label)
         try:
@@ -103,7 +104,8 @@ class Session:
         self.assigned[name] = expression
         lines = []
         if new:
-            note = ("the file sets none; general relativity has 1" if name.startswith("ppn.")
+            note = ("the file sets none; general relativity has 1"
+                    if ppn_parameter(name) is not None
                     else "new cell")
             lines.append(f"{name} = {_shown(self.sheet, name)}  ({note})")
         for cell in changed:
@@ -177,7 +179,7 @@ class Session:
                 self.sheet.revert(name)
                 origin = "from the file"
             except KeyError:
-                if not name.startswith("ppn."):
+                if ppn_parameter(name) is None:
                     lines.append(f"{name} is not in the file; it stays as typed")
                     continue
                 # a PPN value typed at the prompt goes back to general relativity
@@ -228,7 +230,8 @@ def written_text(sheet: Sheet, assigned: dict[str, str]) -> str:
     edits = []
     appended = []
     for name, expression in assigned.items():
-        statement = (f"ppn {name[4:]} = {expression}" if name.startswith("ppn.")
+        parameter = ppn_parameter(name)
+        statement = (f"ppn {parameter} = {expression}" if parameter is not None
                      else f"{name} = {expression}")
         original = sheet.file_definition(name)
         if original is None:
@@ -251,8 +254,7 @@ def history_path(sheet_path: Path | None) -> Path:
     """The history file of a sheet folder, kept in the user's cache (not in the project)."""
     folder = (sheet_path.resolve().parent if sheet_path else Path.cwd().resolve())
     key = hashlib.sha256(str(folder).encode()).hexdigest()[:16]
-    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
-    return Path(base) / "relsheet" / "history" / key
+    return cache_folder() / "history" / key
 
 
 def run(path: str | None = None, input=None, output=None, echo=None) -> int:

@@ -39,6 +39,18 @@ class Resolved:
 
 #: The PPN parameters a sheet can set with a `ppn` line.
 PPN_PARAMETERS = ("gamma", "beta")
+#: A `ppn gamma = …` line defines the cell `ppn.gamma`.
+PPN_PREFIX = "ppn."
+
+
+def ppn_cell(parameter: str) -> str:
+    """The cell that holds a PPN parameter: `gamma` → `ppn.gamma`."""
+    return PPN_PREFIX + parameter
+
+
+def ppn_parameter(cell: str) -> str | None:
+    """The PPN parameter a cell holds (`ppn.gamma` → `gamma`), or None for other cells."""
+    return cell[len(PPN_PREFIX):] if cell.startswith(PPN_PREFIX) else None
 _GR_VALUE = u.Quantity(1.0)
 
 
@@ -132,7 +144,7 @@ class Scope:
             raise NameResolutionError(
                 f"unknown PPN parameter `{parameter}`", span,
                 hint="relsheet knows the PPN parameters gamma and beta")
-        name = f"ppn.{parameter}"
+        name = ppn_cell(parameter)
         if name in self.cell_names:
             return Resolved("cell", cell=name)
         return Resolved("constant", value=_GR_VALUE)

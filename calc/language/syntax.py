@@ -215,7 +215,6 @@ class CheckDef:
     op: str          # == < <= > >=
     right: Expr
     tolerance: Expr | None
-    text: str
     span: Span
 
 
@@ -442,7 +441,7 @@ class NodeBuilder(Transformer):
                 continue
             tolerance = item
         end = (tolerance or right).span
-        return CheckDef(left, op.value, right, tolerance, "", token_span(keyword).to(end))
+        return CheckDef(left, op.value, right, tolerance, token_span(keyword).to(end))
 
     def note(self, children):
         tok = children[0]

@@ -88,22 +88,22 @@ def sheet_at_revision(path: str, revision: str) -> Sheet:
 
 def dependency_tree(sheet: Sheet, name: str, users: bool = False) -> str:
     """The cells `name` uses (or, with ``users``, the cells that use it), as an indented tree;
-    a cell shown once already is marked instead of repeated."""
+    a cell shown once already is marked instead of repeated. The walk is iterative: chains of
+    thousands of cells are fine."""
     lines: list[str] = []
     seen: set[str] = set()
-
-    def walk(node: str, depth: int) -> None:
+    stack: list[tuple[str, int]] = [(name, 0)]
+    while stack:
+        node, depth = stack.pop()
         cell = sheet.cell(node)
         mark = "  (above)" if node in seen else ""
         lines.append(f"{'  ' * depth}{node}  (line {cell.line}){mark}")
         if node in seen:
-            return
+            continue
         seen.add(node)
         following = sheet.users(node) if users else sheet.uses(node)
-        for nxt in sorted(following, key=lambda n: sheet.cell(n).line):
-            walk(nxt, depth + 1)
-
-    walk(name, 0)
+        ordered = sorted(following, key=lambda n: sheet.cell(n).line)
+        stack.extend((nxt, depth + 1) for nxt in reversed(ordered))
     return "\n".join(lines)
 
 

@@ -59,7 +59,7 @@ def format_quantity(value, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
     if not isinstance(s, Shown):
         return s.summary(), ""
     if s.sigma is not None:
-        return format_with_sigma(s.value, s.sigma, digits), unit_string(s.unit)
+        return format_with_sigma(s.value, s.sigma), unit_string(s.unit)
     return format_magnitude(s.value, digits), unit_string(s.unit)
 
 
@@ -92,7 +92,9 @@ def format_point(value: float, sigma: float) -> str:
     return head
 
 
-def format_with_sigma(value, sigma, digits: int = DEFAULT_DIGITS) -> str:
+def format_with_sigma(value, sigma) -> str:
+    """`value ± σ` of a number or of each element of an array (GUM rounding, σ decides the
+    digits)."""
     if np.ndim(value) == 0:
         return format_measured(value, sigma)
     flat, spread = np.ravel(value), np.ravel(np.broadcast_to(sigma, np.shape(value)))

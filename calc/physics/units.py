@@ -14,6 +14,7 @@ masses, radii, luminosity) follow the sheet's pinned constant sets.
 from __future__ import annotations
 
 import difflib
+import math
 from functools import lru_cache
 
 import astropy.units as u
@@ -25,6 +26,14 @@ from .constants import ConstantSelection, constant_table, default_selection
 century = u.def_unit(["century"], 36525 * u.day, doc="Julian century (36525 d)")
 
 EXTRA_UNITS: dict[str, u.UnitBase] = {"century": century}
+
+# SI factors the library's functions convert their results with (IAU usage: the Julian year
+# of 365.25 days of 86400 s, the Julian century of 36525 days).
+DAY_S = 86400.0
+JULIAN_YEAR_S = 365.25 * DAY_S
+JULIAN_CENTURY_S = 36525 * DAY_S
+ARCSEC_RAD = math.pi / (180 * 3600)
+MAS_RAD = ARCSEC_RAD / 1000
 
 #: Names refused in unit position, with the reason and a hint.
 REFUSED_UNITS: dict[str, tuple[str, str]] = {
@@ -135,31 +144,43 @@ def angle_equivalencies():
 # same few unit combinations thousands of times. Keys are object ids; each entry keeps
 # its units alive so an id cannot be reused while it is in the table.
 
+# The tables are bounded: a session that builds sheets with ever new units (scaled `in`
+# units, pinned constant sets) empties a table when it fills instead of growing it.
+
 _PRODUCTS: dict[tuple[int, int], tuple] = {}
 _QUOTIENTS: dict[tuple[int, int], tuple] = {}
 _POWERS: dict[tuple[int, float], tuple] = {}
 _SCALES: dict[tuple[int, int], tuple] = {}
 _ANGLES = u.dimensionless_angles()
+#: Entries a unit-algebra table holds at most.
+TABLE_LIMIT = 4096
+
+
+def _remember(table: dict, key, entry: tuple) -> tuple:
+    if len(table) >= TABLE_LIMIT:
+        table.clear()
+    table[key] = entry
+    return entry
 
 
 def unit_product(a: u.UnitBase, b: u.UnitBase) -> u.UnitBase:
     hit = _PRODUCTS.get((id(a), id(b)))
     if hit is None:
-        hit = _PRODUCTS[(id(a), id(b))] = (a, b, a * b)
+        hit = _remember(_PRODUCTS, (id(a), id(b)), (a, b, a * b))
     return hit[2]
 
 
 def unit_quotient(a: u.UnitBase, b: u.UnitBase) -> u.UnitBase:
     hit = _QUOTIENTS.get((id(a), id(b)))
     if hit is None:
-        hit = _QUOTIENTS[(id(a), id(b))] = (a, b, a / b)
+        hit = _remember(_QUOTIENTS, (id(a), id(b)), (a, b, a / b))
     return hit[2]
 
 
 def unit_power(a: u.UnitBase, p: float) -> u.UnitBase:
     hit = _POWERS.get((id(a), p))
     if hit is None:
-        hit = _POWERS[(id(a), p)] = (a, a ** p)
+        hit = _remember(_POWERS, (id(a), p), (a, a ** p))
     return hit[1]
 
 
@@ -181,7 +202,7 @@ def conversion_scale(source: u.UnitBase, target: u.UnitBase) -> float:
                 scale = source.to(target, equivalencies=_ANGLES)
             except u.UnitConversionError as exc:
                 scale = exc
-        hit = _SCALES[key] = (source, target, scale)
+        hit = _remember(_SCALES, key, (source, target, scale))
     scale = hit[2]
     if isinstance(scale, Exception):
         raise u.UnitConversionError(str(scale))
@@ -195,7 +216,7 @@ def is_one(unit: u.UnitBase) -> bool:
     """True for the plain dimensionless unit (astropy's own comparison is slow)."""
     hit = _ONES.get(id(unit))
     if hit is None:
-        hit = _ONES[id(unit)] = (unit, unit == u.dimensionless_unscaled)
+        hit = _remember(_ONES, id(unit), (unit, unit == u.dimensionless_unscaled))
     return hit[1]
 
 
