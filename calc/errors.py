@@ -33,6 +33,18 @@ class Span(NamedTuple):
         return Span(self[0], self[1], other[2], other[3])
 
 
+def split_lines(text: str, keepends: bool = False) -> list[str]:
+    """The lines of a sheet, as the lexer, error positions, annotate and the prompt's save all
+    count them: a line ends at "\\n" (a "\\r" before it belongs to the ending). The other
+    characters that Python's ``str.splitlines`` breaks at (\\v, \\f, \\x1c–\\x1e, \\x85,
+    U+2028, U+2029, a lone \\r) are characters within a line."""
+    parts = text.split("\n")
+    last = [parts[-1]] if parts[-1] else []
+    if keepends:
+        return [p + "\n" for p in parts[:-1]] + last
+    return [p[:-1] if p.endswith("\r") else p for p in parts[:-1]] + last
+
+
 @dataclass(frozen=True)
 class Source:
     """Where text came from (a file path or a label such as ``--set``) and the text itself."""
@@ -43,12 +55,12 @@ class Source:
     @cached_property
     def _line_starts(self) -> list[int]:
         starts = [0]
-        for line in self.text.splitlines(keepends=True):
+        for line in split_lines(self.text, keepends=True):
             starts.append(starts[-1] + len(line))
         return starts
 
     def line_text(self, line: int) -> str:
-        lines = self.text.splitlines()
+        lines = split_lines(self.text)
         return lines[line - 1] if 0 < line <= len(lines) else ""
 
     def between(self, start: Span, end: Span | None = None) -> str:

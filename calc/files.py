@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+import re
 from pathlib import Path
 
 from .errors import InputError, Source, Span
@@ -37,55 +39,133 @@ def decode_sheet(data: bytes, label: str) -> Source:
 
 
 def read_sheet(path: str | Path) -> Source:
-    """Read a sheet file; a missing or unreadable file is an InputError."""
+    """Read a sheet file; a missing or unreadable file is an InputError. The size is checked
+    before reading, and no more than the limit (plus one byte) is ever read, so a huge file
+    or a device such as /dev/zero is refused at once."""
+    data = read_limited(path, MAX_SHEET_BYTES, "sheet")
+    return decode_sheet(data, str(path))
+
+
+def read_limited(path: str | Path, limit: int, what: str) -> bytes:
+    """The bytes of a file of at most ``limit`` bytes (InputError otherwise, or when it cannot
+    be read)."""
     label = str(path)
     try:
-        data = Path(path).read_bytes()
+        with open(path, "rb") as handle:
+            size = os.fstat(handle.fileno()).st_size
+            if size > limit:
+                raise InputError(f"the {what} is {size:,} bytes; the limit is {limit:,}",
+                                 hint="split it into several sheets" if what == "sheet" else None,
+                                 source=Source(label, ""))
+            data = handle.read(limit + 1)
     except FileNotFoundError:
-        raise InputError(f"no such sheet: {label}", source=Source(label, "")) from None
+        raise InputError(f"no such {what}: {label}", source=Source(label, "")) from None
     except IsADirectoryError:
-        raise InputError(f"{label} is a folder, not a sheet", source=Source(label, "")) from None
+        raise InputError(f"{label} is a folder, not a {what}", source=Source(label, "")) from None
     except OSError as exc:
-        raise InputError(f"cannot read {label}: {exc.strerror}", source=Source(label, "")) from None
-    return decode_sheet(data, label)
+        raise InputError(f"cannot read {label}: {exc.strerror or exc}",
+                         source=Source(label, "")) from None
+    if len(data) > limit:
+        raise InputError(f"the {what} is larger than the limit of {limit:,} bytes",
+                         source=Source(label, ""))
+    return data
 
 
 def cache_folder() -> Path:
     """relsheet's folder in the user's cache ($XDG_CACHE_HOME/relsheet, else ~/.cache/relsheet):
     analysed grammars, prompt history. Nothing in it is needed to get the right numbers."""
-    import os
-
     base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
     return Path(base) / "relsheet"
 
 
-def atomic_write(path: str | Path, data: bytes) -> None:
+#: Temporary files of atomic writes: `.NAME.relsheet-PID-RANDOM.tmp` beside the target.
+_TEMPORARY = re.compile(r"^\.(?P<name>.+)\.relsheet-(?P<pid>\d+)-[^.]+\.tmp$")
+
+
+def _remove_leftovers(folder: Path, name: str) -> None:
+    """Temporary files that a killed relsheet left beside ``name`` (their process is gone)."""
+    try:
+        entries = list(folder.iterdir())
+    except OSError:
+        return
+    for entry in entries:
+        match = _TEMPORARY.match(entry.name)
+        if match is None or match["name"] != name:
+            continue
+        pid = int(match["pid"])
+        if pid != os.getpid() and _alive(pid):
+            continue
+        try:
+            entry.unlink()
+        except OSError:
+            pass
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:
+        return True
+    return True
+
+
+def atomic_write(path: str | Path, data: bytes, *, expected: bytes | None = None,
+                 force: bool = False) -> None:
     """Replace ``path`` with ``data`` so that a crash leaves the old file or the new one,
-    never half of either: a temporary file in the same folder, fsync, then rename."""
-    import os
+    never half of either: a temporary file in the same folder, fsync, then rename.
+
+    A symbolic link is written through (its target is replaced, the link stays). A read-only
+    file is refused unless ``force``. With ``expected`` (the bytes the file had when relsheet
+    read it), a file that another program changed meanwhile is refused, and nothing is
+    written. A new file gets the permissions the umask allows, as any program's would.
+    Temporary files that a killed relsheet left behind are removed at the next write.
+    """
     import tempfile
 
-    target = Path(path)
+    given = Path(path)
+    target = Path(os.path.realpath(given))
     folder = target.parent
+    label = str(given)
+    if target.is_dir():
+        raise InputError(f"cannot write {label}: it is a folder", hint="name a file",
+                         source=Source(label, ""))
+    exists = target.exists()
+    if exists and not force and not os.access(target, os.W_OK):
+        raise InputError(f"{label} is read-only; nothing written",
+                         hint="make it writable, or pass --force to replace it",
+                         source=Source(label, ""))
+    _remove_leftovers(folder, target.name)
     try:
-        mode = target.stat().st_mode if target.exists() else None
-        handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+        mode = target.stat().st_mode & 0o7777 if exists else _new_file_mode()
+        handle, temporary = tempfile.mkstemp(
+            prefix=f".{target.name}.relsheet-{os.getpid()}-", suffix=".tmp", dir=folder)
     except OSError as exc:
-        raise InputError(f"cannot write {target}: {exc.strerror}",
-                         source=Source(str(target), "")) from None
+        raise InputError(f"cannot write {label}: {exc.strerror or exc}",
+                         source=Source(label, "")) from None
     try:
         with os.fdopen(handle, "wb") as out:
             out.write(data)
             out.flush()
             os.fsync(out.fileno())
-        if mode is not None:
-            os.chmod(temporary, mode & 0o7777)
+        os.chmod(temporary, mode)
+        if expected is not None:
+            try:
+                now = target.read_bytes() if exists else None
+            except OSError:
+                now = None
+            if now != expected:
+                raise InputError(f"{label} changed on disk while relsheet was working; "
+                                 "nothing written", hint="run the command again",
+                                 source=Source(label, ""))
         os.replace(temporary, target)
+    except OSError as exc:
+        _discard(temporary)
+        raise InputError(f"cannot write {label}: {exc.strerror or exc}",
+                         source=Source(label, "")) from None
     except BaseException:
-        try:
-            os.unlink(temporary)
-        except FileNotFoundError:
-            pass
+        _discard(temporary)
         raise
     try:  # make the rename itself durable
         directory = os.open(folder, os.O_RDONLY)
@@ -95,6 +175,19 @@ def atomic_write(path: str | Path, data: bytes) -> None:
             os.close(directory)
     except OSError:
         pass
+
+
+def _discard(temporary: str) -> None:
+    try:
+        os.unlink(temporary)
+    except FileNotFoundError:
+        pass
+
+
+def _new_file_mode() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
 
 
 def resolve_import(importer: str, written: str, root: Path, chain: tuple[Path, ...],

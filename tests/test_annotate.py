@@ -8,6 +8,7 @@ import sys
 
 import pytest
 
+from calc.errors import InputError
 from calc.files import atomic_write
 from calc.outputs.annotate import annotate_file
 
@@ -21,12 +22,12 @@ def test_markers_are_written_aligned_and_idempotent(tmp_path):
     path.write_text("## Orbit\na = 1 AU\nperiod = orbital_period(1 Msun, a) in d  # Kepler\n\nx = 2\n")
     annotate_file(path)
     lines = path.read_text().splitlines()
-    assert lines[0] == "## Orbit" and lines[3] == "" and lines[4] == "x = 2  #= 2"
-    assert lines[1].startswith("a = 1 AU ") and lines[1].endswith("#= 1 AU")
+    assert lines[0] == "## Orbit" and lines[3] == "" and lines[4] == "x = 2  #→ 2"
+    assert lines[1].startswith("a = 1 AU ") and lines[1].endswith("#→ 1 AU")
     assert lines[2].startswith("period = orbital_period(1 Msun, a) in d  # Kepler  ")
-    assert lines[2].endswith("#= 365.257 d")   # the Gaussian year, as in test_functions_orbits
+    assert lines[2].endswith("#→ 365.257 d")   # the Gaussian year, as in test_functions_orbits
     # markers of consecutive lines share a column, two spaces after the longest line
-    assert lines[1].index("#=") == lines[2].index("#=") == len("period = orbital_period(1 Msun, a) in d  # Kepler") + 2
+    assert lines[1].index("#→") == lines[2].index("#→") == len("period = orbital_period(1 Msun, a) in d  # Kepler") + 2
     once = path.read_bytes()
     annotate_file(path)
     assert path.read_bytes() == once
@@ -46,11 +47,11 @@ def test_only_markers_change(tmp_path, content):
     annotate_file(path)
     after = path.read_bytes()
     strip = [line.split(b"#=")[0].rstrip() for line in content.splitlines()]
-    assert [line.split(b"#=")[0].rstrip() for line in after.splitlines()] == strip
+    assert [line.split("#→".encode())[0].rstrip() for line in after.splitlines()] == strip
     assert after.count(b"\r\n") == content.count(b"\r\n")
     assert after.endswith(b"\n") == content.endswith(b"\n")
     assert after.startswith(b"\xef\xbb\xbf") == content.startswith(b"\xef\xbb\xbf")
-    assert b"#= " in after
+    assert "#→ ".encode() in after and b"#=" not in after   # old markers are upgraded
     annotate_file(path)
     assert path.read_bytes() == after
 
@@ -85,7 +86,7 @@ def test_interrupted_write_leaves_the_original(tmp_path, monkeypatch):
         raise OSError("disk unplugged")
 
     monkeypatch.setattr(os, "replace", broken_replace)
-    with pytest.raises(OSError):
+    with pytest.raises(InputError, match="disk unplugged"):
         atomic_write(path, b"half")
     assert path.read_text() == "a = 2 km\n"
     assert [p.name for p in tmp_path.iterdir()] == ["s.sheet"]   # no temporary left

@@ -70,16 +70,17 @@ def build_parser() -> argparse.ArgumentParser:
     vf.add_argument("files", metavar="FILE", nargs="+", help="sheets (.sheet)")
     _sheet_options(vf)
 
-    an = commands.add_parser("annotate", help="write each cell's result into the file as `#=`",
+    an = commands.add_parser("annotate", help="write each cell's result into the file as `#→`",
                              description="Write each cell's result after its line as a trailing "
-                                         "`#= value unit` marker, changing nothing else; "
+                                         "`#→ value unit` marker, changing nothing else; "
                                          "atomic. With --stale, write nothing and exit 1 when "
                                          "a marker is out of date.")
-    an.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    an.add_argument("files", metavar="FILE", nargs="+", help="sheets (.sheet)")
     an.add_argument("--stale", action="store_true",
                     help="only report whether the markers are out of date (exit 1 if so)")
     an.add_argument("--digits", type=int, default=6, metavar="N",
                     help="significant digits of the markers (default 6)")
+    an.add_argument("--force", action="store_true", help="replace read-only sheets too")
     _sheet_options(an)
 
     ex = commands.add_parser("export", help="write a report, a table or LaTeX macros",
@@ -90,6 +91,7 @@ def build_parser() -> argparse.ArgumentParser:
     ex.add_argument("--to", required=True, choices=["md", "csv", "json", "tex"],
                     help="the format")
     ex.add_argument("-o", dest="output", metavar="OUT", help="write to OUT (default: stdout)")
+    ex.add_argument("--force", action="store_true", help="replace a read-only OUT too")
     _sheet_options(ex)
 
     dp = commands.add_parser("deps", help="show which cells a cell uses, or which use it",
@@ -332,20 +334,36 @@ def cmd_annotate(args) -> int:
 
     if not 1 <= args.digits <= 17:
         raise UsageError(f"--digits must be between 1 and 17, got {args.digits}")
-    sheet, changed = annotate_file(args.file, args.digits, stale_only=args.stale, root=args.root)
-    _report(sheet.all_errors(), args.debug)
-    if args.stale:
-        if changed:
+    codes = []
+    for path in args.files:
+        try:
+            sheet, changed = annotate_file(path, args.digits, stale_only=args.stale,
+                                           root=args.root, force=args.force)
+        except InternalError:
+            raise
+        except SheetError as err:
+            print(err.render(), file=sys.stderr)
+            codes.append(EXIT_SHEET_ERRORS)
+            continue
+        _report(sheet.all_errors(), args.debug)
+        code = _exit_code(sheet)
+        if args.stale and changed:
             lines = ", ".join(map(str, changed[:12])) + (", …" if len(changed) > 12 else "")
-            print(f"{args.file}: markers out of date on line{'s' if len(changed) > 1 else ''} "
-                  f"{lines}; run `relsheet annotate {args.file}`")
-            return EXIT_CHECK_FAILED
-        print(f"{args.file}: markers up to date")
-    elif changed:
-        print(f"{args.file}: {len(changed)} marker{'s' if len(changed) != 1 else ''} written")
-    else:
-        print(f"{args.file}: markers up to date")
-    return _exit_code(sheet)
+            print(f"{path}: markers out of date on line{'s' if len(changed) > 1 else ''} "
+                  f"{lines}; run `relsheet annotate {path}`")
+            code = max(code, EXIT_CHECK_FAILED) if code != EXIT_OK else EXIT_CHECK_FAILED
+        elif changed and not args.stale:
+            print(f"{path}: {len(changed)} marker{'s' if len(changed) != 1 else ''} written")
+        else:
+            print(f"{path}: markers up to date")
+        codes.append(code)
+    return max(codes, key=_severity)
+
+
+def _severity(code: int) -> int:
+    """Which exit code wins when several sheets end differently: a bug, then errors, then a
+    failed check or stale markers."""
+    return {EXIT_INTERNAL: 3, EXIT_SHEET_ERRORS: 2, EXIT_CHECK_FAILED: 1}.get(code, 0)
 
 
 def cmd_export(args) -> int:
@@ -360,7 +378,7 @@ def cmd_export(args) -> int:
     if not text.endswith("\n"):
         text += "\n"
     if args.output:
-        atomic_write(args.output, text.encode("utf-8"))
+        atomic_write(args.output, text.encode("utf-8"), force=args.force)
     else:
         sys.stdout.write(text)
     _report(sheet.all_errors(), args.debug)

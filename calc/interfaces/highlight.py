@@ -38,7 +38,7 @@ class SheetLexer(RegexLexer):
     tokens = {
         "root": [
             (r"^[ \t]*##[^\n]*", Generic.Heading),
-            (r"#=[^\n]*", Comment.Special),          # a result marker written by annotate
+            (r"#[→=][^\n]*", Comment.Special),      # a result marker written by annotate
             (r"#[^\n]*", Comment.Single),
             (r'"[^"\n]*"', String),
             (words(tuple(sorted(RESERVED_WORDS | {"sigma", "inf", "pi"})), suffix=r"\b"),

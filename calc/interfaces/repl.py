@@ -13,7 +13,7 @@ import hashlib
 from pathlib import Path
 
 from ..engine.sheet import Sheet
-from ..errors import SheetError, Source
+from ..errors import SheetError, Source, split_lines
 from ..files import cache_folder
 from ..language.scope import ppn_cell, ppn_parameter
 
@@ -223,7 +223,7 @@ def written_text(sheet: Sheet, assigned: dict[str, str]) -> str:
     """The sheet's file text with the typed definitions in place of the file's, and new cells
     appended; every other byte stays."""
     text = sheet.source.text
-    lines = text.splitlines(keepends=True)
+    lines = split_lines(text, keepends=True)
     starts = [0]
     for line in lines:
         starts.append(starts[-1] + len(line))

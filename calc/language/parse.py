@@ -19,7 +19,7 @@ import lark
 from lark import Lark, Token
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
 
-from ..errors import InputError, SheetError, SheetSyntaxError, Source, Span
+from ..errors import InputError, SheetError, SheetSyntaxError, Source, Span, split_lines
 from .lexer import SheetLexer
 from .syntax import RESERVED_WORDS, CellDef, ExpressionLine, NodeBuilder, Statement, token_span
 
@@ -124,7 +124,7 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer) -> SheetS
             f"`{opener.value}` is never closed", token_span(opener),
             hint=f"add `{closing}`; inside brackets a statement goes on to the next line")
     expected = set(getattr(err, "expected", ()) or ())
-    lines = text.splitlines()
+    lines = split_lines(text)
     words = lines[tok.line - 1].split(maxsplit=1) if 0 < tok.line <= len(lines) else []
     first_word = words[0] if words else ""
     line_text = lines[tok.line - 1] if 0 < tok.line <= len(lines) else ""
@@ -195,7 +195,7 @@ def logical_lines(text: str, start: int = 1) -> list[tuple[int, int]]:
     starts a comment that runs to the end of the line, and brackets in it do
     not count.
     """
-    lines = text.splitlines()
+    lines = split_lines(text)
     spans: list[tuple[int, int]] = []
     depth = 0
     first = None
@@ -241,7 +241,7 @@ def parse_sheet(text: str, source: Source) -> ParsedSheet:
         return ParsedSheet(_parse(text, "sheet", source), [])
     except SheetError:
         pass
-    lines = text.splitlines()
+    lines = split_lines(text)
     statements: list[Statement] = []
     errors: list[SheetError] = []
     pending = logical_lines(text)

@@ -155,7 +155,7 @@ Expr = Union[
 
 @dataclass(frozen=True, slots=True)
 class CellDef:
-    """``name = expr [in unit] [# comment] [#= marker]``."""
+    """``name = expr [in unit] [# comment] [#→ marker]``."""
 
     name: str
     name_span: Span
@@ -249,15 +249,32 @@ def token_span(tok: Token) -> Span:
     return Span(tok.line, tok.column, tok.end_line, tok.end_column)
 
 
+#: How a result marker starts (`annotate` writes them); `#=` is the form of earlier versions,
+#: still read so that one `annotate` upgrades a sheet.
+MARKERS = ("#→", "#=")
+
+
+def marker_at(text: str) -> int:
+    """Where a result marker starts in the trailing text of a line (-1: none). A marker is at
+    the start of the text or after white space."""
+    best = -1
+    for marker in MARKERS:
+        if text.startswith(marker):
+            return 0
+        for space in (" ", "\t"):
+            at = text.find(space + marker)
+            if at >= 0 and (best < 0 or at + 1 < best):
+                best = at + 1
+    return best
+
+
 def split_trailer(text: str) -> tuple[str | None, str | None]:
-    """Split a trailing ``# comment  #= marker`` into (comment, marker)."""
-    if text.startswith("#="):
+    """Split a trailing ``# comment  #→ marker`` into (comment, marker)."""
+    at = marker_at(text)
+    if at == 0:
         return None, text[2:].strip()
-    at = text.find(" #=")
-    if at < 0:
-        at = text.find("\t#=")
-    if at >= 0:
-        return text[1:at].strip(), text[at + 3:].strip()
+    if at > 0:
+        return text[1:at].strip(), text[at + 2:].strip()
     return text[1:].strip(), None
 
 
