@@ -507,7 +507,7 @@ class _Compiler:
                     what = "an array of records" if isinstance(value, RecordList) else "a record"
                     raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not {what}",
                                         pname, span=arg_spans.get(pname, span))
-            return apply_function(call, values, samplewise)
+            return apply_function(call, values, samplewise, fname)
 
         def call(*values):
             try:
@@ -597,6 +597,7 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
         return program
+    program.literal = _is_literal(definition.expr, scope)
     evaluation = context()
     before = evaluation.collect_warnings()
     try:
@@ -636,6 +637,35 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
     except Exception as exc:  # a bug of ours: the cell says so, the others go on
         program.error = InternalError.wrapping(exc, f"compiling `{definition.name}`",
                                                definition.span, compiler.source)
+
+
+def _is_literal(node, scope: Scope) -> bool:
+    """A quantity as written: numbers with units (`70 km / s / Mpc`, `-3 m`, `1 ± 0.1 AU`,
+    `[1, 2] km`), with no cell, constant, function or arithmetic of quantities."""
+    def unit_item(item) -> bool:
+        name = item.name if isinstance(item, NamePower) else item.base if isinstance(
+            item, Power) else item
+        return isinstance(name, Name) and name.id not in scope.cell_names \
+            and scope.units.lookup(name.id) is not None
+
+    kind = type(node)
+    if kind in (Number, Percent):
+        return True
+    if kind is Group:
+        return _is_literal(node.inner, scope)
+    if kind is UnaryOp:
+        return _is_literal(node.operand, scope)
+    if kind is Chain:
+        return isinstance(node.head, (Number, Percent)) and all(
+            _is_unit_item(item) and unit_item(item) for item in node.items)
+    if kind is BinaryOp and node.op == "/":
+        return _is_literal(node.left, scope) and _is_unit_item(node.right) \
+            and unit_item(node.right)
+    if kind is PlusMinus:
+        return _is_literal(node.value, scope) and _is_literal(node.sigma, scope)
+    if kind is ArrayLiteral:
+        return all(_is_literal(item, scope) for item in node.items)
+    return False
 
 
 def _constant(code: Code):

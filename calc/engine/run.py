@@ -41,6 +41,7 @@ from ..physics.units import (
     physical_type,
     plain_number_unit,
     quantity,
+    simplified,
     unit_power,
     unit_product,
     unit_quotient,
@@ -87,6 +88,8 @@ class CellProgram:
     #: these names changes its meaning
     looked_up: set[str] = field(default_factory=set)
     error: SheetError | None = None
+    #: the expression is a quantity as written (`70 km / s / Mpc`): its unit stays as written
+    literal: bool = False
     #: validity warnings raised while compiling (calls folded into constants)
     warnings: list[str] = field(default_factory=list)
 
@@ -308,10 +311,22 @@ def rescaled(value, scale: float, unit: u.UnitBase):
     return quantity(value.value if scale == 1.0 else value.value * scale, unit)
 
 
-def normalise(value):
-    """Collapse a scaled dimensionless unit (`km / m`) into a plain number."""
-    if plain_number_unit(value.unit):
-        return rescaled(value, conversion_scale(value.unit, _ONE), _ONE)
+def normalise(value, simplify: bool = True):
+    """Collapse a scaled dimensionless unit (`km / m`) into a plain number and, with
+    ``simplify``, a product of several units of one dimension into one of them (`AU s / m`
+    → `s`)."""
+    unit = value.unit
+    if plain_number_unit(unit):
+        return rescaled(value, conversion_scale(unit, _ONE), _ONE)
+    if simplify:
+        simpler = simplified(unit)
+        if simpler is not None:
+            if plain_number_unit(simpler):
+                simpler = _ONE
+            scale = conversion_scale(unit, simpler) if simpler.scale == 1 else None
+            if scale is not None:
+                return rescaled(value, scale, simpler)
+            return rescaled(value, simpler.scale, u.Unit(simpler / simpler.scale))
     return value
 
 
@@ -328,7 +343,7 @@ def finish(program: CellProgram, value):
         return value
     if program.unit is not None:
         return convert(value, program.unit, program.unit_span)
-    return normalise(value)
+    return normalise(value, simplify=not program.literal)
 
 
 def unit_range_error(definition: CellDef) -> UnitError:

@@ -192,10 +192,45 @@ def _assemble(result, parts_by_key: dict):
 # ---- functions over values ------------------------------------------------------------------
 
 
-def apply_function(call: Callable, values: tuple, samplewise: bool = False):
+def _linear_reduction(reduce: Callable) -> Callable:
+    """A reduction that is a linear map (sum, mean): applied to the nominal value and to each
+    contribution, it propagates exactly."""
+    def exact(x: Uncertain) -> Uncertain:
+        nominal_value = reduce(x.nominal)
+        return Uncertain(nominal_value, {k: np.asarray(reduce(quantity(np.asarray(p), x.unit)).value)
+                                         for k, p in x.parts.items()})
+    return exact
+
+
+def _extreme_element(pick: Callable) -> Callable:
+    """min or max of one array: the value is one element, and so are its contributions."""
+    def exact(x: Uncertain) -> Uncertain:
+        values = np.asarray(x.nominal.value)
+        if values.ndim != 1:
+            raise LookupError  # element-wise or grids: numerical differentiation instead
+        index = int(pick(values))
+        return Uncertain(quantity(values[index], x.unit),
+                         {k: float(np.asarray(p)[index]) for k, p in x.parts.items()})
+    return exact
+
+
+#: Library functions whose first-order propagation is exact without differentiation
+#: (rounding noise of numerical differentiation would otherwise show where contributions
+#: cancel exactly, as in r / min(r)).
+EXACT_RULES: dict[str, Callable] = {
+    "sum": _linear_reduction(lambda q: quantity(np.sum(q.value, axis=-1), q.unit)),
+    "mean": _linear_reduction(lambda q: quantity(np.mean(q.value, axis=-1), q.unit)),
+    "min": _extreme_element(np.argmin),
+    "max": _extreme_element(np.argmax),
+}
+
+
+def apply_function(call: Callable, values: tuple, samplewise: bool = False,
+                   name: str | None = None):
     """Call a library function (a pure function of Quantities and records) on values of any
-    kind: uncertain values go through numerical differentiation, samples through one
-    vectorised call (or one call per sample for functions that take single values only)."""
+    kind: uncertain values go through numerical differentiation (or an exact rule, for the
+    functions in :data:`EXACT_RULES`), samples through one vectorised call (or one call per
+    sample for functions that take single values only)."""
     uncertain_args = False
     sampled_args = False
     for v in values:
@@ -207,6 +242,14 @@ def apply_function(call: Callable, values: tuple, samplewise: bool = False):
         elif kind is Samples or (kind in CONTAINERS and is_sampled(v)):
             sampled_args = True
     if uncertain_args:
+        rule = EXACT_RULES.get(name) if name is not None else None
+        if rule is not None and len(values) == 1 and isinstance(values[0], Uncertain) \
+                and np.ndim(values[0].nominal.value) >= 1:
+            try:
+                call(values[0].nominal)   # the function's own argument checks
+                return rule(values[0])
+            except LookupError:
+                pass
         return uncertain.through(call, values, inputs_of=inputs_of, shifted=_shifted,
                                  relative_size=_relative_size, difference=_difference,
                                  assemble=_assemble)
@@ -362,6 +405,23 @@ class ShownRecords:
 ShownValue = Union[Shown, ShownRecord, ShownRecords]
 
 
+#: A σ this many float roundings of its value, or fewer, is rounding noise, not an uncertainty:
+#: contributions that cancel exactly leave that much behind.
+ROUNDING_NOISE = 16 * np.finfo(float).eps
+
+
+def rounding_free(value, sigma):
+    """σ with the rounding noise of exact cancellations set to zero; None when nothing is left
+    (the value is exact)."""
+    sigma = np.asarray(sigma, dtype=float)
+    noise = sigma <= ROUNDING_NOISE * np.abs(np.asarray(value, dtype=float))
+    if np.all(noise):
+        return None
+    if np.any(noise):
+        sigma = np.where(noise, 0.0, sigma)
+    return sigma if sigma.ndim else float(sigma)
+
+
 def shown(value) -> ShownValue:
     """The printable form of a value of any kind."""
     if isinstance(value, Record):
@@ -369,7 +429,8 @@ def shown(value) -> ShownValue:
     if isinstance(value, RecordList):
         return ShownRecords([shown(r) for r in value.items])  # type: ignore[misc]
     if isinstance(value, Uncertain):
-        return Shown(value.nominal.value, value.sigma_value(), value.unit)
+        return Shown(value.nominal.value, rounding_free(value.nominal.value, value.sigma_value()),
+                     value.unit)
     if isinstance(value, Samples):
         data = np.asarray(value.data.value)
         return Shown(np.mean(data, axis=0), np.std(data, axis=0, ddof=1) if value.count > 1

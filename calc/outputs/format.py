@@ -9,12 +9,13 @@ printed from their shown form (:func:`calc.engine.values.shown`).
 from __future__ import annotations
 
 import math
+from decimal import ROUND_HALF_EVEN, Decimal, localcontext
 
 import numpy as np
 
 from ..engine.checks import CheckResult
 from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue, shown
-from ..physics.units import unit_string
+from ..physics.units import unit_string, unit_text
 
 DEFAULT_DIGITS = 6
 #: Arrays longer than this show their first and last few values.
@@ -31,6 +32,15 @@ def format_number(x: float, digits: int = DEFAULT_DIGITS) -> str:
     if "e" in text:
         mantissa, exponent = text.split("e")
         text = f"{mantissa}e{int(exponent)}"
+    return text
+
+
+def _shortest(x: float) -> str:
+    """The shortest text that reads back as exactly ``x`` (`1e300`, `0.1`)."""
+    text = repr(float(x))
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        text = f"{mantissa.removesuffix('.0')}e{int(exponent)}"
     return text
 
 
@@ -54,31 +64,54 @@ def as_shown(value) -> ShownValue:
 
 
 def format_quantity(value, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
-    """(number text, unit text) of a quantity; `value ± σ` when it carries an uncertainty."""
+    """(number text, unit text) of a value; `value ± σ` when it carries an uncertainty. Both
+    are written as the sheet language reads them (a percentage as `5%`)."""
     s = as_shown(value)
     if not isinstance(s, Shown):
         return s.summary(), ""
     if s.sigma is not None:
-        return format_with_sigma(s.value, s.sigma), unit_string(s.unit)
-    return format_magnitude(s.value, digits), unit_string(s.unit)
+        number = format_with_sigma(s.value, s.sigma)
+    else:
+        number = format_magnitude(s.value, digits)
+    unit = unit_text(s.unit)
+    if unit == "%":
+        if s.sigma is not None and np.ndim(s.value) == 0:
+            return f"({number}) × 1%", ""
+        return (f"{number}%" if np.ndim(s.value) == 0 else f"{number} × 1%"), ""
+    return number, unit
+
+
+#: Below this σ relative to the value, a float holds no digit of the uncertainty: the value is
+#: written with all its digits and σ beside it.
+_FLOAT_RESOLUTION = 1e-15
 
 
 def format_measured(value: float, sigma: float) -> str:
     """`value ± σ` with σ to two significant digits and the value to the same decimal place
     (GUM, JCGM 100:2008, §7.2.6; common practice). Very large or small values share one
-    power of ten: `(1.4380 ± 0.0010)e30`."""
+    power of ten: `(1.4380 ± 0.0010) × 1e30`. Rounding is decimal (exact for any float,
+    subnormal or huge); the text reads back in a sheet."""
     value, sigma = float(value), float(sigma)
     if not (math.isfinite(value) and math.isfinite(sigma)) or sigma <= 0:
         return format_number(value)
-    magnitude = abs(value) if value else sigma
-    k = 0 if 1e-3 <= magnitude < 1e6 else math.floor(math.log10(magnitude))
-    mv, ms = value / 10**k, sigma / 10**k
-    place = math.floor(math.log10(ms)) - 1          # the second significant digit of σ
-    if round(ms, -place) >= 10 ** (place + 2):      # σ rounded up to a new power of ten
-        place += 1
-    decimals = max(0, -place)
-    text = f"{round(mv, -place):.{decimals}f} ± {round(ms, -place):.{decimals}f}"
-    return f"({text})e{k}" if k else text
+    if sigma < abs(value) * _FLOAT_RESOLUTION:
+        return f"{_shortest(value)} ± {format_number(sigma, 2)}"
+    dv, ds = Decimal(repr(value)), Decimal(repr(sigma))
+    with localcontext() as context:
+        context.prec = 60
+        place = ds.adjusted() - 1                      # the second significant digit of σ
+        rounded_sigma = ds.quantize(Decimal(1).scaleb(place), rounding=ROUND_HALF_EVEN)
+        if rounded_sigma.adjusted() > place + 1:       # σ rounded up to a new power of ten
+            place += 1
+            rounded_sigma = ds.quantize(Decimal(1).scaleb(place), rounding=ROUND_HALF_EVEN)
+        rounded_value = dv.quantize(Decimal(1).scaleb(place), rounding=ROUND_HALF_EVEN)
+        magnitude = abs(rounded_value) if rounded_value else rounded_sigma
+        k = 0 if Decimal("1e-3") <= magnitude < Decimal("1e6") else magnitude.adjusted()
+        decimals = max(0, k - place)
+        mv = rounded_value.scaleb(-k)
+        ms = rounded_sigma.scaleb(-k)
+        text = f"{mv:.{decimals}f} ± {ms:.{decimals}f}"
+    return f"({text}) × 1e{k}" if k else text
 
 
 def format_point(value: float, sigma: float) -> str:
@@ -88,7 +121,7 @@ def format_point(value: float, sigma: float) -> str:
         return text
     head, tail = text.split(" ± ")
     if head.startswith("("):
-        return head[1:] + tail.split(")")[1]
+        return head[1:] + tail.split(")")[1].replace(" × 1", "")
     return head
 
 

@@ -119,6 +119,48 @@ def unit_string(unit: u.UnitBase) -> str:
 
 
 @lru_cache(maxsize=4096)
+def unit_text(unit: u.UnitBase) -> str:
+    """A unit as the sheet language writes it, so that a printed value reads back: powers with
+    `^` (`m^2 kg / s`), each denominator after its own `/` (`km / Mpc / s`), only negative
+    powers as such (`s^-1`), a scaled unit in brackets (`(1000 m)`), `%` for percent, and
+    nothing for a plain number."""
+    if unit is u.dimensionless_unscaled or unit == u.dimensionless_unscaled:
+        return ""
+    if unit == u.percent:
+        return "%"
+    bases = getattr(unit, "bases", [unit])
+    powers = getattr(unit, "powers", [1])
+    above, below = [], []
+    for base, power in zip(bases, powers):
+        name = base.to_string()
+        if power > 0:
+            above.append(name + _power_text(power))
+        else:
+            below.append((name, power))
+    if above:
+        text = " ".join(above) + "".join(f" / {name}{_power_text(-p)}" for name, p in below)
+    else:
+        text = " ".join(name + _power_text(p) for name, p in below)
+    scale = getattr(unit, "scale", 1.0)
+    if scale != 1.0:
+        text = f"({scale:.17g} {text})".replace(" )", ")") if text else f"{scale:.17g}"
+    return text
+
+
+def _power_text(power) -> str:
+    if power == 1:
+        return ""
+    if float(power).is_integer():
+        return f"^{int(power)}"
+    from fractions import Fraction
+
+    fraction = Fraction(power).limit_denominator(12)
+    if float(fraction) == float(power):
+        return f"^({fraction.numerator}/{fraction.denominator})"
+    return f"^{float(power)!r}"
+
+
+@lru_cache(maxsize=4096)
 def physical_type(unit: u.UnitBase) -> str:
     kind = str(unit.physical_type)
     if kind == "unknown":
@@ -218,6 +260,39 @@ def is_one(unit: u.UnitBase) -> bool:
     if hit is None:
         hit = _remember(_ONES, id(unit), (unit, unit == u.dimensionless_unscaled))
     return hit[1]
+
+
+@lru_cache(maxsize=4096)
+def simplified(unit: u.UnitBase) -> u.UnitBase | None:
+    """A simpler unit for a product that mixes units of one dimension (`AU s / m` → `s`,
+    `m^3 Msun / kg / s^2` → `m^3 / s^2`), or None when there is nothing to simplify.
+
+    Within each dimension, every unit is converted into the one with the largest power (the
+    first written among equals), so the units the sheet chose stay where they can."""
+    bases = getattr(unit, "bases", None)
+    if not bases or len(bases) < 2:
+        return None
+    kinds: dict[str, list[tuple[u.UnitBase, float]]] = {}
+    for base, power in zip(bases, unit.powers):
+        try:
+            kind = str(base.physical_type)
+        except Exception:  # pragma: no cover - a unit astropy cannot classify
+            return None
+        kinds.setdefault(kind, []).append((base, power))
+    if all(len(members) == 1 for members in kinds.values()):
+        return None
+    factor = float(unit.scale)
+    kept: list[tuple[u.UnitBase, float]] = []
+    for members in kinds.values():
+        keep = max(members, key=lambda m: m[1])[0]
+        total = 0.0
+        for base, power in members:
+            if base is not keep:
+                factor *= base.to(keep) ** power
+            total += power
+        if total:
+            kept.append((keep, total))
+    return u.CompositeUnit(factor, [b for b, _ in kept], [p for _, p in kept])
 
 
 @lru_cache(maxsize=4096)

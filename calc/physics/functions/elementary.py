@@ -123,11 +123,12 @@ def absolute(x: u.Quantity) -> u.Quantity:
 
 
 def _reduced(fn, q: u.Quantity) -> u.Quantity:
-    """Reduce an array; under Monte Carlo (samples on a leading axis) per sample."""
+    """Reduce the last axis of an array (a single value stays as it is); leading axes, such as
+    Monte Carlo samples, stay."""
     value = q.value
-    if np.ndim(value) == 2:
-        return quantity(fn(value, axis=-1, keepdims=True), q.unit)
-    return quantity(fn(value), q.unit)
+    if np.ndim(value) == 0:
+        return q
+    return quantity(fn(value, axis=-1), q.unit)
 
 
 def _extreme(values: tuple[u.Quantity, ...], reduce, pairwise, what: str) -> u.Quantity:
