@@ -23,7 +23,6 @@ import numpy as np
 from astropy.time import Time as AstropyTime
 
 from ...errors import ArgumentError, DomainError
-from ..environment import current
 from ..records import Record
 from ..units import close_matches, did_you_mean, quantity
 from . import args as check
@@ -382,6 +381,8 @@ def ephemeris(body: str, t: Date, origin: str = "ssb") -> State:
     Source:    ERFA/SOFA documentation of epv00 and plan94 (accuracy notes); Simon et al.
                1994, A&A 282, 663 (plan94); JPL SPK format via jplephem.
     """
+    from ..environment import current  # here: environment and constants import each other
+
     dates = check.date(t, "t")
     path = current().ephemeris
     if path is None:
