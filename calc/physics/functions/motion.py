@@ -445,7 +445,7 @@ def _chain(kernel, name: str, jd1, jd2, path: Path):
     """Sum the segments from the body down to the solar-system barycentre (code 0)."""
     from jplephem.exceptions import OutOfRangeError
 
-    by_target = {}
+    by_target: dict[int, int] = {}
     for centre, target in kernel.pairs:
         by_target.setdefault(target, centre)
     code = next(c for c in _NAIF[name] if c in by_target)

@@ -124,12 +124,14 @@ def binary_delays(t: Date, Pb: Time, x: Time, e: Dimensionless, omega: Angle, T0
         return roemer, einstein, shapiro
 
     T = since
+    # T itself carries float rounding of eps |T| (7 ns after a year): stop at that floor too
+    floor = _INVERSION_STEP + 4 * np.finfo(float).eps * np.max(np.abs(since))
     for _ in range(_INVERSION_MAX_ITERATIONS):
         roemer, einstein, shapiro = delays(T)
         updated = since - (roemer + einstein + shapiro)
-        moved = np.max(np.abs(updated - T)) if np.ndim(updated) else abs(updated - T)
+        moved = np.max(np.abs(updated - T))
         T = updated
-        if not moved > _INVERSION_STEP:
+        if not moved > floor:
             break
     else:
         raise DomainError("the arrival times could not be inverted to the pulsar's time "
