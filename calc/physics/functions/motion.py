@@ -33,6 +33,8 @@ TOPIC = "motion"
 
 Orbit = Annotated[Record, "orbit record"]
 State = Annotated[Record, "state record"]
+Body = Annotated[str, "a body's name in quotes"]
+Origin = Annotated[str, '"ssb", "sun" or "earth"']
 
 _TWO_PI = 2 * np.pi
 _AU = 149_597_870_700.0          # m, IAU 2012 Resolution B2 (exact)
@@ -358,7 +360,7 @@ def _body_name(body, name: str, known: tuple[str, ...]) -> str:
 
 
 @register("ephemeris", TOPIC)
-def ephemeris(body: str, t: Date, origin: str = "ssb") -> State:
+def ephemeris(body: Body, t: Date, origin: Origin = "ssb") -> State:
     """Position and velocity of a solar-system body at given dates, from an ephemeris.
 
     Formula:   barycentric state of `body` minus that of `origin`, ICRS axes. The source is
