@@ -15,7 +15,7 @@ ROOT = Path(__file__).resolve().parent.parent
 
 # DESIGN §4; periapsis_budget also takes the PPN parameters and perturbation_rate a grid
 DESIGN_FUNCTIONS = {
-    "orbit": ("a", "e", "i", "node", "long_peri", "arg_peri", "m"),
+    "orbit": ("a", "e", "i", "node", "long_peri", "arg_peri", "m", "t_peri", "mean_anomaly", "epoch"),
     "perturbation_rate": ("M", "target", "perturber", "grid"),
     "periapsis_budget": ("M", "target", "perturbers", "J2", "R", "J", "gamma", "beta", "grid"),
     "schwarzschild_radius": ("M",), "proper_radial_distance": ("M", "r1", "r2"),

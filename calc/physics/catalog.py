@@ -13,9 +13,11 @@ from .units import close_matches, did_you_mean
 TOPIC_TITLES = {
     "spacetime": "Spacetime around a mass",
     "orbits": "Orbits",
+    "motion": "Orbits in time",
     "light": "Light and signals",
     "gyroscopes": "Gyroscopes",
     "binaries": "Binaries (general relativity, post-Keplerian parameters)",
+    "timing": "Time and clocks",
     "math": "Mathematics",
 }
 

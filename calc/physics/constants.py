@@ -68,6 +68,33 @@ def _entry(const, quantity: u.Quantity | None = None, reference: str | None = No
                          reference or const.reference)
 
 
+# The IAU time-scale constants. They belong to no CODATA or IAU "set" that astropy
+# ships, and they are the same under every pinned selection: the defining ones are
+# exact by resolution, L_C is the IERS Conventions value.
+TIME_SCALE_CONSTANTS: dict[str, ConstantEntry] = {
+    "L_G": ConstantEntry(
+        "L_G", "1 − d(TT)/d(TCG): rate of TT below TCG (defining, = W0/c²)",
+        u.Quantity(6.969290134e-10), 0.0,
+        "IAU 2000 Resolution B1.9 (defining constant); IERS Conventions (2010) Table 1.1"),
+    "L_B": ConstantEntry(
+        "L_B", "1 − d(TDB)/d(TCB): rate of TDB below TCB (defining)",
+        u.Quantity(1.550519768e-8), 0.0,
+        "IAU 2006 Resolution B3 (defining constant); IERS Conventions (2010) Table 1.1"),
+    "L_C": ConstantEntry(
+        "L_C", "average of 1 − d(TCG)/d(TCB) (derived, from a time ephemeris)",
+        u.Quantity(1.48082686741e-8), 2e-17,
+        "IERS Conventions (2010) Table 1.1 and chapter 10; IAU NSFA current best estimate"),
+    "TDB0": ConstantEntry(
+        "TDB0", "TDB − TCB offset at 1977 Jan 1.0 TAI at the geocentre (defining)",
+        u.Quantity(-6.55e-5, u.s), 0.0,
+        "IAU 2006 Resolution B3 (defining constant)"),
+    "W0": ConstantEntry(
+        "W0", "potential of the geoid used to define L_G = W0/c²",
+        u.Quantity(62636856.0, u.m**2 / u.s**2), 0.5,
+        "IAU 2000 Resolution B1.9; IERS Conventions (2010) Table 1.1 (± 0.5 m²/s²)"),
+}
+
+
 @cache
 def constant_table(selection: ConstantSelection) -> dict[str, ConstantEntry]:
     """Every constant of the selection by its astropy name (``c``, ``G``, ``GM_sun``, ...)."""
@@ -94,6 +121,7 @@ def constant_table(selection: ConstantSelection) -> dict[str, ConstantEntry]:
             rel = (G.uncertainty / G.quantity.value) + mass.uncertainty / mass.quantity.value
             table[gm_name] = ConstantEntry(gm_name, f"{mass.description} times G", gm,
                                            rel * gm.value, f"{mass.reference} + {G.reference}")
+    table.update(TIME_SCALE_CONSTANTS)
     table["pi"] = ConstantEntry("pi", "pi", u.Quantity(3.141592653589793), 0.0, "mathematics")
     table["inf"] = ConstantEntry("inf", "infinity", u.Quantity(float("inf")), 0.0, "mathematics")
     return table

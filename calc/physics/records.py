@@ -1,5 +1,7 @@
 """Records: named fields of quantities (orbit elements, periapsis budgets) and lists of them.
 
+A field may also hold a date (an astropy Time: an orbit's t_peri, a state's t).
+
 A record is a value of a cell like a quantity is, but it is no number: its
 fields are read with `.` (`venus.a`, `budget.total`) and functions that
 expect records take it whole. Arithmetic on a record is an error that says
@@ -11,6 +13,7 @@ from __future__ import annotations
 
 import astropy.units as u
 import numpy as np
+from astropy.time import Time
 
 from ..errors import DomainError, NameResolutionError
 from .units import close_matches, did_you_mean
@@ -48,8 +51,7 @@ class Record:
             return False
         if list(other.fields) != list(self.fields):
             return False
-        return all(a.unit == b.unit and np.array_equal(a.value, b.value)
-                   for a, b in zip(self.fields.values(), other.fields.values()))
+        return all(_same_field(a, b) for a, b in zip(self.fields.values(), other.fields.values()))
 
     def _refuse(self, *_):
         raise DomainError(f"{self.describe()} is not a number; use its fields, "
@@ -62,6 +64,14 @@ class Record:
     def __repr__(self) -> str:
         inner = ", ".join(f"{k}={v}" for k, v in self.fields.items())
         return f"<{self.kind} {self.label or ''}({inner})>"
+
+
+def _same_field(a, b) -> bool:
+    """Equal quantities (same unit and values), or equal dates (same scale and instants)."""
+    if isinstance(a, Time) or isinstance(b, Time):
+        return isinstance(a, Time) and isinstance(b, Time) and a.scale == b.scale \
+            and a.shape == b.shape and bool(np.all(a.jd1 == b.jd1) and np.all(a.jd2 == b.jd2))
+    return a.unit == b.unit and np.array_equal(a.value, b.value)
 
 
 class RecordList:

@@ -10,6 +10,7 @@ from typing import Annotated
 
 import astropy.units as u
 import numpy as np
+from astropy.time import Time as _AstropyTime
 
 from ...errors import ArgumentError
 from ..constants import active
@@ -25,6 +26,8 @@ Angle = Annotated[u.Quantity, "angle"]
 AngularRate = Annotated[u.Quantity, "angle per time"]
 AngularMomentum = Annotated[u.Quantity, "angular momentum"]
 Dimensionless = Annotated[u.Quantity, "dimensionless"]
+#: A date (an instant on a time scale): an astropy Time, scalar or array, in any scale.
+Date = Annotated[_AstropyTime, "date"]
 
 #: The largest array ``span`` and ``logspan`` will make (memory guard: 80 MB of floats).
 MAX_ARRAY_LENGTH = 10_000_000
@@ -138,6 +141,26 @@ def length(q: u.Quantity, name: str, allow_infinite: bool = False):
     if not allow_infinite and not np.all(np.isfinite(value)):
         raise ArgumentError(f"`{name}` must be finite, got {show(q)}", name)
     return value
+
+
+def date(value, name: str) -> _AstropyTime:
+    """A date: an astropy Time (any scale, scalar or array); a plain number is refused."""
+    if not isinstance(value, _AstropyTime):
+        what = show(value) if isinstance(value, u.Quantity) else type(value).__name__
+        raise ArgumentError(f"`{name}` must be a date, such as 2031-04-12T06:30 TDB, got {what}",
+                            name)
+    return value
+
+
+def seconds_between(t: _AstropyTime, t0: _AstropyTime):
+    """t − t0 in seconds of TDB, as floats (an array for array dates).
+
+    Both dates go to TDB (a no-op when they are in it already); the whole and fractional
+    parts of the two-part Julian dates are subtracted separately, so a difference of
+    decades keeps about 10 ps.
+    """
+    a, b = t.tdb, t0.tdb
+    return ((a.jd1 - b.jd1) + (a.jd2 - b.jd2)) * 86400.0
 
 
 def duration(q: u.Quantity, name: str):

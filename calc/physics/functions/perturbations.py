@@ -23,7 +23,7 @@ from ..units import century, quantity
 from ..validity import warn
 from . import args as check
 from . import register
-from .args import Angle, AngularMomentum, Dimensionless, Length, Mass
+from .args import Angle, AngularMomentum, Date, Dimensionless, Length, Mass
 from .orbits import j2_rates
 
 TOPIC = "orbits"
@@ -42,18 +42,26 @@ _RATE_UNIT = u.arcsec / century
 @register("orbit", TOPIC, samplewise=True)
 def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | None = None,
           long_peri: Angle | None = None, arg_peri: Angle | None = None,
-          m: Mass | None = None) -> Orbit:
+          m: Mass | None = None, t_peri: Date | None = None,
+          mean_anomaly: Angle | None = None, epoch: Date | None = None) -> Orbit:
     """An orbit record: Keplerian elements (and the body's mass, for a perturber).
 
     Formula:   ϖ = Ω + ω: give the longitude of periapsis ϖ (`long_peri`, as planetary tables
                do) or the argument of periapsis ω (`arg_peri`, as binary and exoplanet papers
                do), not both; the other is derived. Fields: a, e, i, node, arg_peri,
                long_peri, and m when given; read them as `venus.a`.
+               Where the body is along its orbit: the time of periapsis `t_peri`, or the
+               mean anomaly M0 = `mean_anomaly` at the date `epoch` (one of the two, never
+               both); `orbit_state` then finds M = n (t − t_peri) or M0 + n (t − epoch).
+               These become fields too (t_peri, or mean_anomaly and epoch). Without them
+               the record has no position in time (enough for secular rates).
     Arguments: a  semi-major axis (length);  e  eccentricity (0 ≤ e < 1);
                i  inclination, node  longitude of the ascending node Ω, long_peri  ϖ,
-               arg_peri  ω (angles, default 0);  m  the body's mass or GM (for a perturber)
+               arg_peri  ω (angles, default 0);  m  the body's mass or GM (for a perturber);
+               t_peri  a date;  mean_anomaly  an angle;  epoch  a date
     Result:    an orbit record
-    Validity:  osculating or mean elements, as the source gives them; angles in one frame.
+    Validity:  osculating or mean elements, as the source gives them; angles in one frame;
+               dates are read in TDB by the functions that use them.
     PPN:       none.
     Source:    Murray & Dermott 1999, Solar System Dynamics, §2.8 (from memory).
     """
@@ -100,7 +108,34 @@ def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | Non
         check.scalar(m, "m")
         check.gravitational_parameter(m, "m")
         fields["m"] = m
+    fields.update(_position_in_time(t_peri, mean_anomaly, epoch))
     return Record("orbit", fields)
+
+
+def _position_in_time(t_peri, mean_anomaly, epoch) -> dict:
+    """The fields that place the body on its orbit: t_peri, or mean_anomaly with epoch."""
+    if t_peri is not None and (mean_anomaly is not None or epoch is not None):
+        extra = "mean_anomaly" if mean_anomaly is not None else "epoch"
+        raise ArgumentError(f"give `t_peri`, or `mean_anomaly` with `epoch`, not both "
+                            f"(`t_peri` and `{extra}` were given)", extra)
+    if t_peri is not None:
+        date = check.date(t_peri, "t_peri")
+        if date.ndim:
+            raise ArgumentError("`t_peri` must be a single date, not an array", "t_peri")
+        return {"t_peri": date}
+    if mean_anomaly is None and epoch is None:
+        return {}
+    if mean_anomaly is None or epoch is None:
+        missing, given = ("epoch", "mean_anomaly") if epoch is None else \
+            ("mean_anomaly", "epoch")
+        raise ArgumentError(f"`{given}` needs `{missing}`: the mean anomaly holds at that date",
+                            given)
+    check.scalar(mean_anomaly, "mean_anomaly")
+    anomaly = check.angle(mean_anomaly, "mean_anomaly")
+    date = check.date(epoch, "epoch")
+    if date.ndim:
+        raise ArgumentError("`epoch` must be a single date, not an array", "epoch")
+    return {"mean_anomaly": quantity(anomaly * 180 / np.pi, u.deg), "epoch": date}
 
 
 class _Elements:
