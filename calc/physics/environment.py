@@ -22,8 +22,10 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from contextvars import ContextVar
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from .constants import ConstantSelection, default_selection
+if TYPE_CHECKING:  # constants imports this module; the selection type is only named here
+    from .constants import ConstantSelection
 
 
 class Environment:
@@ -31,6 +33,8 @@ class Environment:
 
     def __init__(self, selection: ConstantSelection | None = None,
                  ephemeris: Path | None = None) -> None:
+        from .constants import default_selection
+
         #: the pinned CODATA edition and IAU set
         self.selection: ConstantSelection = selection or default_selection()
         #: a JPL kernel (.bsp) chosen by an `ephemeris` statement; None: astropy's built-in one
@@ -45,13 +49,18 @@ class Environment:
             found.append(message)
 
 
-_DEFAULT = Environment()
-_current: ContextVar[Environment] = ContextVar("relsheet_environment", default=_DEFAULT)
+_current: ContextVar[Environment | None] = ContextVar("relsheet_environment", default=None)
+_default: list[Environment] = []
 
 
 def current() -> Environment:
     """The environment of the evaluation in progress (a default one outside any)."""
-    return _current.get()
+    found = _current.get()
+    if found is not None:
+        return found
+    if not _default:
+        _default.append(Environment())
+    return _default[0]
 
 
 @contextmanager

@@ -11,9 +11,10 @@ over `[venus, earth]` can name its terms after those cells.
 
 from __future__ import annotations
 
+import sys
+
 import astropy.units as u
 import numpy as np
-from astropy.time import Time
 
 from ..errors import DomainError, NameResolutionError
 from .units import close_matches, did_you_mean
@@ -68,8 +69,8 @@ class Record:
 
 def _same_field(a, b) -> bool:
     """Equal quantities (same unit and values), or equal dates (same scale and instants)."""
-    if isinstance(a, Time) or isinstance(b, Time):
-        return isinstance(a, Time) and isinstance(b, Time) and a.scale == b.scale \
+    if is_date(a) or is_date(b):
+        return is_date(a) and is_date(b) and a.scale == b.scale \
             and a.shape == b.shape and bool(np.all(a.jd1 == b.jd1) and np.all(a.jd2 == b.jd2))
     return a.unit == b.unit and np.array_equal(a.value, b.value)
 
@@ -106,3 +107,10 @@ RECORD_TYPES = (Record, RecordList)
 
 def is_record(value) -> bool:
     return isinstance(value, RECORD_TYPES)
+
+
+def is_date(value) -> bool:
+    """Whether a value is a date (an astropy Time). astropy.time is imported only by sheets
+    that use dates, so a value cannot be one while the module is not loaded."""
+    module = sys.modules.get("astropy.time")
+    return module is not None and isinstance(value, module.Time)

@@ -6,16 +6,23 @@ the evaluator can point at it: "`b` must be a length, got 3 s".
 
 from __future__ import annotations
 
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import astropy.units as u
 import numpy as np
-from astropy.time import Time as _AstropyTime
 
 from ...errors import ArgumentError
 from ..constants import active
+from ..records import is_date
 from ..units import is_one, physical_type, value_in
 from ..validity import warn
+
+if TYPE_CHECKING:
+    from astropy.time import Time as _AstropyTime
+else:
+    class _AstropyTime:
+        """Stands for astropy's Time in annotations at run time: astropy.time loads only when
+        a sheet has dates (it costs a tenth of a second at start-up)."""
 
 # Argument and result kinds, for signatures (`relsheet funcs NAME` shows the text).
 Mass = Annotated[u.Quantity, "mass or gravitational parameter GM"]
@@ -145,7 +152,7 @@ def length(q: u.Quantity, name: str, allow_infinite: bool = False):
 
 def date(value, name: str) -> _AstropyTime:
     """A date: an astropy Time (any scale, scalar or array); a plain number is refused."""
-    if not isinstance(value, _AstropyTime):
+    if not is_date(value):
         what = show(value) if isinstance(value, u.Quantity) else type(value).__name__
         raise ArgumentError(f"`{name}` must be a date, such as 2031-04-12T06:30 TDB, got {what}",
                             name)

@@ -16,18 +16,20 @@ back, so E runs on continuously over many orbits.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import astropy.units as u
 import numpy as np
-from astropy.time import Time as AstropyTime
 
 from ...errors import ArgumentError, DomainError
-from ..records import Record
+from ..records import Record, is_date
 from ..units import close_matches, did_you_mean, quantity
 from . import args as check
 from . import register
 from .args import Angle, Date, Dimensionless, Length, Mass
+
+if TYPE_CHECKING:  # astropy.time loads only when a sheet has dates
+    from astropy.time import Time as AstropyTime
 
 TOPIC = "motion"
 
@@ -264,7 +266,7 @@ def _positions(record, name: str):
 def _same_dates(observer: Record, target: Record) -> None:
     """Refuse two states whose dates differ (by more than 1 µs): their geometry means nothing."""
     t1, t2 = observer.fields.get("t"), target.fields.get("t")
-    if not isinstance(t1, AstropyTime) or not isinstance(t2, AstropyTime):
+    if not is_date(t1) or not is_date(t2):
         return
     try:
         gap = np.abs(check.seconds_between(t1, t2))
@@ -383,7 +385,7 @@ def ephemeris(body: Body, t: Date, origin: Origin = "ssb") -> State:
     Source:    ERFA/SOFA documentation of epv00 and plan94 (accuracy notes); Simon et al.
                1994, A&A 282, 663 (plan94); JPL SPK format via jplephem.
     """
-    from ..environment import current  # here: environment and constants import each other
+    from ..environment import current
 
     dates = check.date(t, "t")
     path = current().ephemeris
@@ -464,6 +466,8 @@ def _chain(kernel, name: str, jd1, jd2, path: Path):
         try:
             p, v = segment.compute_and_differentiate(jd1, jd2)
         except OutOfRangeError:
+            from astropy.time import Time as AstropyTime
+
             first = AstropyTime(segment.start_jd, format="jd", scale="tdb").iso[:10]
             last = AstropyTime(segment.end_jd, format="jd", scale="tdb").iso[:10]
             raise DomainError(f"a date lies outside the kernel {path.name}, which covers "
