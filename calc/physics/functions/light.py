@@ -75,8 +75,9 @@ def deflection_at_elongation(M: Mass, r_obs: Length, elongation: Angle,
     Validity:  first order in GM/(c² r_obs); the ray must not pass inside the body: its
                impact parameter is r_obs sin θ. Star at infinity (no parallax term).
     PPN:       (1 + γ)/2.
-    Source:    Will 2014, Living Rev. Relativ. 17, 4, eq. (65) (from memory); the same
-               expression underlies ERFA's eraLd (IAU SOFA).
+    Source:    equal within 1e-8 to ERFA's eraLd (the tests), whose documentation gives its
+               basis as Klioner 2003, AJ 125, 1580, expr. (70) and the Explanatory
+               Supplement (Urban & Seidelmann 2013), expr. (7.63).
     """
     gm = check.gravitational_parameter(M)
     distance = check.length(r_obs, "r_obs")
@@ -394,8 +395,9 @@ def plasma_doppler(f: Frequency, b: Length, b_rate: Speed, r_emit: Length | None
                power
     Result:    dimensionless y: positive while b grows (the plasma advances the phase, and
                less so farther out), so of the opposite sign to `shapiro_doppler`
-    Validity:  {validity} The mean model gives the smooth trend only:
-               the plasma's scintillation noise on y is often larger.
+    Validity:  {validity}
+               The mean model gives the smooth trend only: the plasma's scintillation
+               noise on y is often larger.
     PPN:       none (not gravitational).
     Source:    {source}
     """
