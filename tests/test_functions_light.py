@@ -24,7 +24,7 @@ def test_deflection_at_the_solar_limb():
     assert sheet["a"].to_value(u.arcsec) == pytest.approx(1.7512, abs=1e-4)
     assert sheet["b"].to_value(u.arcsec) == pytest.approx(1.7505, abs=1e-4)
     # the two differ exactly by the ratio of the radii (the formula is 4GM/(c^2 b))
-    assert (sheet["a"] / sheet["b"]).value == pytest.approx(6.96e8 / 6.957e8, rel=1e-12)
+    assert (sheet["a"] / sheet["b"]).value == pytest.approx(6.96e8 / 6.957e8, rel=1e-12, abs=0)
 
 
 @pytest.mark.parametrize("elongation_deg", [1, 2, 5, 10, 30, 45, 60, 90, 120, 150, 170, 179])
@@ -38,19 +38,21 @@ def test_deflection_at_elongation_matches_erfa_ld(elongation_deg):
     # small angles measured with atan2(|a x b|, a . b), not arccos (REFERENCES.md)
     expected = math.atan2(np.linalg.norm(np.cross(p, p1)), np.dot(p, p1))
     got = light.deflection_at_elongation(1 * u.Msun, 1 * u.AU, elongation_deg * u.deg)
-    assert got.to_value(u.rad) == pytest.approx(expected, rel=1e-8)
+    assert got.to_value(u.rad) == pytest.approx(expected, rel=1e-8, abs=0)
 
 
 def test_erfa_schwarzschild_radius_agrees_with_ours():
-    # ERFA_SRS = 1.97412574336e-8 au (erfa constants); ours from IAU 2015 GM_sun and c
-    assert 2 * GM_SUN / C**2 / AU == pytest.approx(erfa.SRS, rel=1e-10)
+    # ERFA_SRS = 1.97412574336e-8 au (erfa constants); ours from IAU 2015 GM_sun and c.
+    # 5e-10: ERFA's value rests on GM_sun = 1.32712440041e20 m^3/s^2 (the DE405 value, from
+    # memory), 3.1e-10 above the IAU 2015 nominal 1.3271244e20 used here
+    assert 2 * GM_SUN / C**2 / AU == pytest.approx(erfa.SRS, rel=5e-10, abs=0)
 
 
 def test_deflection_at_elongation_tends_to_the_limb_formula():
     # small elongation: b = r sin(theta) and cot(theta/2) -> 2/theta, so 4GM/(c^2 b) (limit check)
     sheet = evaluate("x = deflection_at_elongation(1 Msun, 1 AU, 0.3 deg)\n"
                      "y = deflection(1 Msun, 1 AU * sin(0.3 deg))")
-    assert sheet["x"].value == pytest.approx(sheet["y"].value, rel=1e-4)
+    assert sheet["x"].value == pytest.approx(sheet["y"].value, rel=1e-4, abs=0)
 
 
 def test_halving_gammas_contribution_halves_the_excess():
@@ -58,8 +60,8 @@ def test_halving_gammas_contribution_halves_the_excess():
     sheet = evaluate("g1 = deflection(1 Msun, 1 Rsun, gamma = 1)\n"
                      "g0 = deflection(1 Msun, 1 Rsun, gamma = 0)\n"
                      "gh = deflection(1 Msun, 1 Rsun, gamma = 0.5)")
-    assert (sheet["gh"] - sheet["g0"]).value == pytest.approx((sheet["g1"] - sheet["g0"]).value / 2)
-    assert sheet["g0"].value == pytest.approx(sheet["g1"].value / 2)   # the Newtonian value
+    assert (sheet["gh"] - sheet["g0"]).value == pytest.approx((sheet["g1"] - sheet["g0"]).value / 2, rel=1e-12, abs=0)
+    assert sheet["g0"].value == pytest.approx(sheet["g1"].value / 2, rel=1e-12, abs=0)   # the Newtonian value
 
 
 def test_earth_mars_radar_echo_near_superior_conjunction():
@@ -71,13 +73,13 @@ def test_earth_mars_radar_echo_near_superior_conjunction():
     near = 2 * light.conjunction_delay(1 * u.Msun, 1 * u.AU, 1.52 * u.AU, 1 * u.Rsun)
     assert 245 <= exact.to_value(u.us) <= 250
     # the near-conjunction form is the b << r limit of the exact one: relative error ~ b^2/r^2
-    assert near.to_value(u.us) == pytest.approx(exact.to_value(u.us), rel=1e-5)
+    assert near.to_value(u.us) == pytest.approx(exact.to_value(u.us), rel=1e-5, abs=0)
 
 
 def test_shapiro_gamma_dependence():
     sheet = evaluate("a = conjunction_delay(1 Msun, 1 AU, 1.52 AU, 1 Rsun, gamma = 1)\n"
                      "b = conjunction_delay(1 Msun, 1 AU, 1.52 AU, 1 Rsun, gamma = 0)")
-    assert sheet["b"].value == pytest.approx(sheet["a"].value / 2)   # (1 + gamma)/2
+    assert sheet["b"].value == pytest.approx(sheet["a"].value / 2, rel=1e-12, abs=0)   # (1 + gamma)/2
 
 
 def test_einstein_radius():
@@ -87,8 +89,8 @@ def test_einstein_radius():
     dl, ds = 4000 * pc, 8000 * pc
     expected = math.sqrt(4 * GM_SUN / C**2 * (ds - dl) / (dl * ds))
     got = evaluate("x = einstein_radius(1 Msun, 4 kpc, 8 kpc)")["x"]
-    assert got.to_value(u.rad) == pytest.approx(expected, rel=1e-12)
-    assert got.to_value(u.mas) == pytest.approx(1.0, rel=0.02)
+    assert got.to_value(u.rad) == pytest.approx(expected, rel=1e-12, abs=0)
+    assert got.to_value(u.mas) == pytest.approx(1.0, rel=0.02, abs=0)
 
 
 @pytest.mark.parametrize("text, message", [

@@ -23,8 +23,15 @@ from ..units import century, quantity
 from ..validity import warn
 from . import args as check
 from . import register
-from .args import Angle, AngularMomentum, Date, Dimensionless, Length, Mass
-from .orbits import j2_rates
+from .args import Angle, AngularMomentum, Date, Dimensionless, Length, Mass, Time
+from .orbits import (
+    j2_rates,
+    lense_thirring_rates,
+    love_number,
+    periapsis_rate,
+    rotational_apsidal,
+    tidal_apsidal,
+)
 
 TOPIC = "orbits"
 
@@ -277,7 +284,8 @@ def perturbation_rate(M: Mass, target: Orbit, perturber: Orbit,
                nearly touch get a warning. Both orbits in the same reference frame.
     PPN:       none (Newtonian).
     Source:    Gauss 1818 (Werke III, 331); Murray & Dermott 1999, Solar System Dynamics,
-               §2.9 (Gauss's equations) and §7.2; Burns 1976, Am. J. Phys. 44, 944 (from memory).
+               §2.9 (Gauss's equations) and §7.2; Burns 1976, Am. J. Phys. 44, 944 (from memory:
+               not reachable here; checked in the tests against Laplace–Lagrange theory).
     """
     gm = check.gravitational_parameter(M)
     tgt = _target_elements(target)
@@ -288,41 +296,68 @@ def perturbation_rate(M: Mass, target: Orbit, perturber: Orbit,
     return quantity(rate * _CENTURY_S / _ARCSEC, _RATE_UNIT)
 
 
+#: Field names of the budget's own terms, which a perturber's cell name may not take.
+_TERM_FIELDS = ("oblateness", "gr", "lense_thirring", "tides", "rotation", "total")
+#: A perturber this close to inclination 0 suggests elements in its own orbit's frame.
+_FLAT = 0.01 * np.pi / 180
+
+
 def _names(records: list[Record]) -> list[str]:
     names: list[str] = []
     for index, record in enumerate(records, start=1):
         name = record.label or f"perturber_{index}"
-        if name in names or name in ("oblateness", "gr", "lense_thirring", "total"):
+        if name in names or name in _TERM_FIELDS:
             name = f"perturber_{index}"
         names.append(name)
     return names
+
+
+def _warn_if_ecliptic(target: _Elements, perturbers: list[_Elements]) -> None:
+    """J2 and Lense–Thirring need the inclination to the central body's equator."""
+    if target.i == 0:
+        reason = "the target's inclination is 0 (given so, or left out)"
+    elif any(abs(p.i) < _FLAT for p in perturbers):
+        reason = "a perturber's orbit lies in the reference plane (i < 0.01°), as in an " \
+                 "ecliptic frame"
+    else:
+        return
+    warn(f"the oblateness and Lense–Thirring terms use the target's inclination to the central "
+         f"body's equator, but {reason}: give the target's `i` from that equator")
 
 
 @register("periapsis_budget", TOPIC, samplewise=True)
 def periapsis_budget(M: Mass, target: Orbit, perturbers: Orbits, J2: Dimensionless | None = None,
                      R: Length | None = None, J: AngularMomentum | None = None,
                      gamma: Dimensionless | None = None, beta: Dimensionless | None = None,
-                     grid: Dimensionless | None = None) -> Budget:
-    """Everything that moves a periapsis, term by term: perturbers, oblateness, GR, Lense–Thirring.
+                     grid: Dimensionless | None = None, k2: Dimensionless | None = None,
+                     R_planet: Length | None = None, P_rot: Time | None = None) -> Budget:
+    """Everything that moves a periapsis, term by term: perturbers, J2, GR, Lense–Thirring, tides.
 
     Formula:   one field per perturber (`perturbation_rate`, named after the cell holding its
                orbit), `oblateness` (`oblateness_rate`, when J2 and R are given), `gr`
                (`periapsis_rate`, with the sheet's PPN values), `lense_thirring`
-               (2 G J (1 − 3 cos i) / (c² a³ (1 − e²)^(3/2)), when J is given) and `total`
-    Arguments: M  central mass or GM;  target  orbit record;  perturbers  an array of orbit
-               records with masses;  J2, R  the central body's oblateness and its reference
-               radius;  J  its spin angular momentum;  gamma, beta  PPN (default: sheet, else 1);
-               grid  as for perturbation_rate
-    Result:    a periapsis budget record, every field in arcsec / century
+               ((1 + γ)/2 · 2 G J (1 − 3 cos i) / (c² a³ (1 − e²)^(3/2)), when J is given),
+               `tides` (`tidal_apsidal_rate` of the target planet, when k2 and R_planet are
+               given), `rotation` (`rotational_apsidal_rate`, when P_rot is given too) and
+               `total`
+    Arguments: M  central mass or GM;  target  orbit record (with its mass m for tides);
+               perturbers  an array of orbit records with masses;  J2, R  the central body's
+               oblateness and its reference radius;  J  its spin angular momentum;
+               gamma, beta  PPN (default: sheet, else 1);  grid  as for perturbation_rate;
+               k2, R_planet, P_rot  the target planet's tidal Love number, radius and rotation
+               period
+    Result:    a periapsis budget record, every field in arcsec / century, all rates of the
+               longitude of periapsis
     Validity:  each term's own (first order in each small parameter, secular); the terms add
-               to first order. The target's inclination serves for J2 and Lense–Thirring, so it
-               should be measured from the central body's equator for those terms.
-    PPN:       the `gr` term carries (2 + 2γ − β)/3; the others none (LT: GR value).
-    Source:    Clemence 1947, Rev. Mod. Phys. 19, 361 (Mercury: 531.5″/century from the planets,
-               from memory); Will 2014, Living Rev. Relativ. 17, 4; Lense & Thirring 1918.
+               to first order. The oblateness and Lense–Thirring terms take the target's
+               inclination as measured from the central body's equator, not from the
+               ecliptic: the budget warns when the elements look ecliptic (the target at
+               i = 0, or a perturber at i < 0.01°). Tides and rotation take the planet's spin
+               along its orbit normal.
+    PPN:       `gr` carries (2 + 2γ − β)/3 and `lense_thirring` (1 + γ)/2; the others none.
+    Source:    each term's function (see their entries); Clemence 1947, Rev. Mod. Phys. 19,
+               361 (Mercury: 531.5″/century from the planets; from memory, not reachable here).
     """
-    from .orbits import periapsis_rate
-
     gm = check.gravitational_parameter(M)
     tgt = _target_elements(target)
     items = [perturbers] if isinstance(perturbers, Record) else list(getattr(perturbers, "items", []))
@@ -333,26 +368,46 @@ def periapsis_budget(M: Mass, target: Orbit, perturbers: Orbits, J2: Dimensionle
     sampled = _TargetSample(tgt, n_t)
     fields: dict[str, u.Quantity] = {}
     total = 0.0
-    for name, record in zip(_names(items), items):
-        pert = _Elements(record, "perturbers")
-        rate = _secular_rate(gm, sampled, pert, pert.gm("perturbers", required=True), n_p)
+
+    def add(name: str, rate) -> None:
+        nonlocal total
         fields[name] = quantity(rate * _CENTURY_S / _ARCSEC, _RATE_UNIT)
         total += rate
+
+    elements = [_Elements(record, "perturbers") for record in items]
+    for name, pert in zip(_names(items), elements):
+        add(name, _secular_rate(gm, sampled, pert, pert.gm("perturbers", required=True), n_p))
     if (J2 is None) != (R is None):
         raise ArgumentError("give both `J2` and `R` for the oblateness term", "J2" if R is None else "R")
+    if J2 is not None or J is not None:
+        _warn_if_ecliptic(tgt, elements)
     if J2 is not None:
         node, argument = j2_rates(gm, check.dimensionless(J2, "J2"), check.length(R, "R"),
                                   tgt.a, tgt.e, tgt.i)
-        fields["oblateness"] = quantity((node + argument) * _CENTURY_S / _ARCSEC, _RATE_UNIT)
-        total += node + argument
-    fields["gr"] = periapsis_rate(M, target.fields["a"], target.fields["e"], gamma, beta)
-    total += fields["gr"].to_value(_RATE_UNIT) * _ARCSEC / _CENTURY_S
+        add("oblateness", node + argument)
+    gr = periapsis_rate(M, target.fields["a"], target.fields["e"], gamma, beta)
+    add("gr", gr.to_value(_RATE_UNIT) * _ARCSEC / _CENTURY_S)
     if J is not None:
-        spin = check.angular_momentum(J)
-        c = check.speed_of_light()
         G = check.active("G").to_value(u.m**3 / (u.kg * u.s**2))
-        lt = 2 * G * spin * (1 - 3 * np.cos(tgt.i)) / (c**2 * tgt.a**3 * (1 - tgt.e**2) ** 1.5)
-        fields["lense_thirring"] = quantity(lt * _CENTURY_S / _ARCSEC, _RATE_UNIT)
-        total += lt
+        node, argument = lense_thirring_rates(G, check.angular_momentum(J),
+                                              check.speed_of_light(), tgt.a, tgt.e, tgt.i,
+                                              check.ppn(gamma, "gamma"))
+        add("lense_thirring", node + argument)
+    if (k2 is None) != (R_planet is None):
+        raise ArgumentError("give both `k2` and `R_planet` for the tidal term",
+                            "k2" if R_planet is None else "R_planet")
+    if P_rot is not None and k2 is None:
+        raise ArgumentError("`P_rot` needs `k2` and `R_planet` too: the rotational bulge's size "
+                            "depends on them", "P_rot")
+    if k2 is not None:
+        gm_planet = tgt.gm("target", required=True)
+        love = love_number(k2)
+        radius = check.length(R_planet, "R_planet")
+        if tgt.a * (1 - tgt.e) <= radius:
+            raise ArgumentError("the target's periapsis lies inside `R_planet`", "R_planet")
+        add("tides", tidal_apsidal(gm, gm_planet, radius, love, tgt.a, tgt.e))
+        if P_rot is not None:
+            add("rotation", rotational_apsidal(gm, gm_planet, radius, love,
+                                               check.duration(P_rot, "P_rot"), tgt.a, tgt.e))
     fields["total"] = quantity(total * _CENTURY_S / _ARCSEC, _RATE_UNIT)
     return Record("periapsis budget", fields)
