@@ -156,10 +156,13 @@ def test_command_line_uncertainties(tmp_path):
     path = tmp_path / "u.sheet"
     path.write_text("x = 2.0 ± 0.1 km\ny = 3 ± 0.4 km\nz = x + y\n")
     base = [sys.executable, "-m", "calc", "eval", str(path)]
-    text = subprocess.run(base + ["--sigma-budget", "z"], capture_output=True, text=True)
+    text = subprocess.run(base, capture_output=True, text=True)
     assert text.returncode == 0, text.stderr
     assert "  z  5.00 ± 0.41  km" in text.stdout.splitlines()
-    assert "uncertainty budget of `z`" in text.stdout and "94.12 %" in text.stdout
+    budget = subprocess.run(base + ["--sigma-budget", "z"], capture_output=True, text=True)
+    # only the budget: y's share is 0.4² / (0.1² + 0.4²) = 94.12 %
+    assert budget.stdout.splitlines()[0] == "uncertainty budget of `z`  (σ = 0.412311 km)"
+    assert "94.12 %" in budget.stdout and "  z  " not in budget.stdout
     doc = json.loads(subprocess.run(base + ["--format", "json"], capture_output=True, text=True).stdout)
     z = {c["name"]: c for c in doc["cells"]}["z"]
     assert z["sigma"] == pytest.approx(math.hypot(0.1, 0.4)) and z["unit"] == "km"

@@ -134,7 +134,7 @@ def build_parser() -> argparse.ArgumentParser:
     fn = commands.add_parser("funcs", help="list the functions, or show one",
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
-    fn.add_argument("name", metavar="NAME", nargs="?", help="a function name")
+    fn.add_argument("names", metavar="NAME", nargs="*", help="function names")
     return parser
 
 
@@ -250,14 +250,14 @@ def cmd_eval(args) -> int:
         from ..outputs.export import to_csv, to_markdown
 
         sys.stdout.write((to_csv if args.format == "csv" else to_markdown)(sheet))
+    elif args.sigma_budget is not None:
+        from ..outputs.report import render_sigma_budget
+
+        print(render_sigma_budget(sheet, args.sigma_budget, args.digits).lstrip("\n"))
     else:
         from ..outputs.report import render_text
 
         print(render_text(sheet, args.digits, monte_carlo, args.mc))
-    if args.sigma_budget is not None:
-        from ..outputs.report import render_sigma_budget
-
-        print(render_sigma_budget(sheet, args.sigma_budget, args.digits))
     _report_warnings(sheet)
     _report(sheet.all_errors(), args.debug)
     return _exit_code(sheet, monte_carlo)
@@ -482,9 +482,9 @@ def cmd_repl(args) -> int:
 
 
 def cmd_funcs(args) -> int:
-    from ..physics.catalog import entry, listing
+    from ..physics.catalog import entries, listing
 
-    print(entry(args.name) if args.name else listing())
+    print(entries(args.names) if args.names else listing())
     return EXIT_OK
 
 

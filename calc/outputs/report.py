@@ -3,11 +3,14 @@ warnings; the σ budget of one cell; the unit list of `relsheet units`."""
 
 from __future__ import annotations
 
+import astropy.units as u
+
 from ..engine.cells import Cell
 from ..engine.values import Shown
-from ..physics.units import describe, unit_string
+from ..physics.units import physical_type, unit_string, unit_text
 from .format import (
     check_detail,
+    format_number,
     format_percentiles,
     format_quantity,
     record_rows,
@@ -90,8 +93,7 @@ def render_sigma_budget(sheet, name: str, digits: int) -> str:
     if not rows:
         return f"\nuncertainty budget of `{name}`: it depends on no uncertain input"
     sigma = cell.sigma
-    lines = ["", f"uncertainty budget of `{name}`  (σ = {format_quantity(sigma, digits)[0]} "
-             f"{unit_string(sigma.unit)})"]
+    lines = ["", f"uncertainty budget of `{name}`  (σ = {value_text(sigma, digits)})"]
     width = max(len(row.name) for row in rows)
     for row in rows:
         contribution = value_text(row.contribution, 2)
@@ -111,34 +113,50 @@ TRADE_UNITS = ["AU", "au", "pc", "lsec", "lyr", "century", "yr", "d", "Msun", "R
 
 
 def render_units(table, query: str | None, refused: dict) -> str:
-    """Units matching ``query``: name, physical type, value in SI; refused names explained."""
+    """Units matching ``query``: name, physical type, value in SI, in aligned columns;
+    refused names explained."""
     names = sorted({n for n in table.names() if query is None or query.lower() in n.lower()})
     if query is None:
         names = TRADE_UNITS
-    lines = []
-    shown = 0
+    rows: list[tuple[str, str, str]] = []
+    more = 0
     for name in names:
         unit = table.lookup(name)
         if unit is None:
             continue
-        try:
-            si = unit.si
-            value = f"= {si.scale:.10g} {si.to_string(format='generic').split(' ', 1)[-1]}" \
-                if si.bases else f"= {si.scale:.10g}"
-            if si.to_string() == unit.to_string():
-                value = "(SI)"
-        except Exception:
-            value = ""
-        lines.append(f"  {name:<12} {describe(unit):<44} {value}".rstrip())
-        shown += 1
-        if shown >= 200:
-            lines.append(f"  … and {len(names) - shown} more; narrow the query")
-            break
+        if len(rows) >= 200:
+            more += 1
+            continue
+        rows.append((name, physical_type(unit), _si_value(unit)))
+    lines = []
+    if rows:
+        widths = [min(28, max(len(header), *(len(r[i]) for r in rows)))
+                  for i, header in enumerate(("name", "dimension"))]
+        lines += [f"  {'name':<{widths[0]}}  {'dimension':<{widths[1]}}  in SI"]
+        for name, kind, value in rows:
+            if len(kind) > widths[1]:
+                kind = kind.split("/")[0] + "/…"
+            lines.append(f"  {name:<{widths[0]}}  {kind:<{widths[1]}}  {value}".rstrip())
+    if more:
+        lines.append(f"  … and {more} more; narrow the query")
     for name, (message, hint) in refused.items():
         if query is None or query.lower() in name:
-            lines.append(f"  {name:<12} refused: {message}; {hint}")
+            lines.append(f"  {name}: refused: {message}; {hint}")
     if not lines:
         return f"no unit name contains `{query}`"
     head = "units of the trade (`relsheet units QUERY` searches all of astropy's)" if query is None \
         else f"units whose name contains `{query}`"
     return "\n".join([head, *lines])
+
+
+def _si_value(unit) -> str:
+    """`= 1.495978707e11 m`, or `(SI)` for an SI unit itself."""
+    try:
+        si = unit.si
+    except Exception:  # a unit without an SI form (logarithmic units)
+        return ""
+    if unit_text(si) == unit_text(unit) and si.scale == 1:
+        return "(SI)"
+    bare = u.CompositeUnit(1, si.bases, si.powers) if si.bases else None
+    number = format_number(si.scale, 10)
+    return f"= {number} {unit_text(bare)}".rstrip() if bare is not None else f"= {number}"

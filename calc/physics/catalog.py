@@ -48,7 +48,16 @@ def listing() -> str:
     return "\n".join(line for line in lines if line is not None)
 
 
-def entry(name: str) -> str:
+def entries(names: list[str]) -> str:
+    """The entries of several functions, the caution once at the end."""
+    texts = [entry(name, caution=False) for name in names]
+    specs = [functions.lookup(name) for name in names]
+    if any(spec is not None and spec.topic != "math" for spec in specs):
+        texts.append(CAUTION)
+    return "\n\n".join(texts)
+
+
+def entry(name: str, caution: bool = True) -> str:
     """One function's entry: signature, argument kinds, and its documentation."""
     spec = functions.lookup(name)
     if spec is None:
@@ -70,7 +79,7 @@ def entry(name: str) -> str:
     body = spec.documentation()
     if body:
         lines += ["", body]
-    if spec.topic != "math":
+    if caution and spec.topic != "math":
         lines += ["", CAUTION]
     return "\n".join(lines)
 

@@ -25,7 +25,12 @@ from .constants import ConstantSelection, constant_table, default_selection
 #: The Julian century: 36525 days of 86400 s (common practice; IAU usage for rates).
 century = u.def_unit(["century"], 36525 * u.day, doc="Julian century (36525 d)")
 
-EXTRA_UNITS: dict[str, u.UnitBase] = {"century": century}
+#: Parts per million and per billion: fractional frequency offsets, relative errors
+#: (common practice; BIPM SI Brochure 9th ed. §5.4.7 accepts them as plain numbers).
+ppm = u.def_unit(["ppm"], 1e-6 * u.dimensionless_unscaled, doc="parts per million (1e-6)")
+ppb = u.def_unit(["ppb"], 1e-9 * u.dimensionless_unscaled, doc="parts per billion (1e-9)")
+
+EXTRA_UNITS: dict[str, u.UnitBase] = {"century": century, "ppm": ppm, "ppb": ppb}
 
 # SI factors the library's functions convert their results with (IAU usage: the Julian year
 # of 365.25 days of 86400 s, the Julian century of 36525 days).
