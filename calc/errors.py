@@ -14,6 +14,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
+from pathlib import Path
 from typing import NamedTuple
 
 
@@ -47,10 +48,21 @@ def split_lines(text: str, keepends: bool = False) -> list[str]:
 
 @dataclass(frozen=True)
 class Source:
-    """Where text came from (a file path or a label such as ``--set``) and the text itself."""
+    """Where text came from (a label for messages: a file name as the user knows it, or
+    ``--set``), the text itself, and the file it was read from (imports are found beside it)."""
 
     label: str
     text: str
+    path: Path | None = None
+
+    @property
+    def folder(self) -> Path | None:
+        """The folder of the file the text was read from (None for text not from a file)."""
+        if self.path is not None:
+            return self.path.parent
+        if self.label.startswith("<") or self.label.startswith("--"):
+            return None
+        return Path(self.label).resolve().parent
 
     @cached_property
     def _line_starts(self) -> list[int]:

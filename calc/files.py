@@ -38,12 +38,22 @@ def decode_sheet(data: bytes, label: str) -> Source:
     return Source(label, text)
 
 
-def read_sheet(path: str | Path) -> Source:
+def read_sheet(path: str | Path, label: str | None = None) -> Source:
     """Read a sheet file; a missing or unreadable file is an InputError. The size is checked
     before reading, and no more than the limit (plus one byte) is ever read, so a huge file
-    or a device such as /dev/zero is refused at once."""
+    or a device such as /dev/zero is refused at once. ``label`` names it in messages (default:
+    the path as given)."""
     data = read_limited(path, MAX_SHEET_BYTES, "sheet")
-    return decode_sheet(data, str(path))
+    source = decode_sheet(data, label or str(path))
+    return Source(source.label, source.text, Path(path).resolve())
+
+
+def label_in(path: Path, root: Path) -> str:
+    """A file's name for messages: relative to the project root when it lies inside it."""
+    try:
+        return path.relative_to(root).as_posix()
+    except ValueError:
+        return str(path)
 
 
 def read_limited(path: str | Path, limit: int, what: str) -> bytes:
@@ -190,28 +200,53 @@ def _new_file_mode() -> int:
     return 0o666 & ~mask
 
 
-def resolve_import(importer: str, written: str, root: Path, chain: tuple[Path, ...],
+#: Deepest chain of imports (a sheet importing a sheet importing …).
+MAX_IMPORT_DEPTH = 64
+
+
+def resolve_import(importer: Path | None, written: str, root: Path, chain: tuple[Path, ...],
                    span) -> Path:
     """The file a `use "…"` line names: relative to the importing sheet, a `.sheet` file
     inside the project root, not already on the chain of imports."""
-    from .errors import InputError as Refused
-
     if not written.endswith(".sheet"):
-        raise Refused(f"`{written}` is not a sheet: only .sheet files can be imported", span,
-                      hint="name a file ending in .sheet")
-    base = Path(importer).resolve().parent if importer and not importer.startswith("<") \
-        else Path.cwd()
-    path = (base / written).resolve()
+        raise InputError(f"`{written}` is not a sheet: only .sheet files can be imported", span,
+                         hint="name a file ending in .sheet")
+    if len(chain) >= MAX_IMPORT_DEPTH:
+        raise InputError(f"imports are nested more than {MAX_IMPORT_DEPTH} deep", span,
+                         hint="import shared sheets from the top sheet instead")
+    base = importer if importer is not None else Path.cwd()
     try:
+        path = (base / written).resolve()
         path.relative_to(root)
     except ValueError:
-        raise Refused(f"`{written}` lies outside the project root {root}", span,
-                      hint="keep shared sheets below the top sheet's folder, or pass --root") \
+        raise InputError(f"`{written}` lies outside the project root {_shown_folder(root)}",
+                         span, hint="keep shared sheets below the top sheet's folder, or pass "
+                                    "--root") from None
+    except OSError as exc:
+        raise InputError(f"cannot use `{_clipped(written)}`: {exc.strerror or exc}", span) \
             from None
     if path in chain:
         names = " → ".join(p.name for p in (*chain[chain.index(path):], path))
-        raise Refused(f"import cycle: {names}", span, hint="a sheet cannot import itself, "
-                      "directly or through others")
-    if not path.is_file():
-        raise Refused(f"no such sheet: {written} (looked for {path})", span)
+        raise InputError(f"import cycle: {names}", span, hint="a sheet cannot import itself, "
+                         "directly or through others")
+    try:
+        found = path.is_file()
+    except OSError as exc:
+        raise InputError(f"cannot use `{_clipped(written)}`: {exc.strerror or exc}", span) \
+            from None
+    if not found:
+        raise InputError(f"no such sheet: {_clipped(written)} (looked for "
+                         f"{label_in(path, root)})", span)
     return path
+
+
+def _clipped(text: str, limit: int = 80) -> str:
+    return text if len(text) <= limit else text[:limit - 1] + "…"
+
+
+def _shown_folder(folder: Path) -> str:
+    """A folder for messages: relative to the working folder when it lies below it."""
+    try:
+        return folder.relative_to(Path.cwd()).as_posix() or "."
+    except ValueError:
+        return str(folder)

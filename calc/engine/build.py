@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from ..errors import DuplicateCellError, InputError, NameResolutionError, SheetError, Source, Span
-from ..files import read_sheet, resolve_import
+from ..files import label_in, read_sheet, resolve_import
 from ..language.parse import parse_sheet
 from ..language.scope import PPN_PARAMETERS, ppn_cell
 from ..language.syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef, UseDef
@@ -52,6 +52,8 @@ class Built:
     selection: ConstantSelection = field(default_factory=default_selection)
     uncertain_constants: bool = False
     namespaces: dict[str, Sheet] = field(default_factory=dict)
+    #: namespaces whose `use` line failed (no such file, a cycle, …), by the line's place
+    failed_namespaces: dict[str, Span] = field(default_factory=dict)
     check_definitions: list[CheckDef] = field(default_factory=list)
 
 
@@ -95,6 +97,8 @@ def build(source: Source, constants: list[str] | None,
             imported = load(statement, out)
             if imported is not None:
                 out.namespaces[statement.namespace] = imported
+            else:
+                out.failed_namespaces[statement.namespace] = statement.span
         else:
             definition = _ppn_cell(statement, out, source) if isinstance(statement, PPNDef) \
                 else statement
@@ -139,7 +143,8 @@ def _ppn_cell(statement: PPNDef, out: Built, source: Source) -> CellDef | None:
     if statement.parameter not in PPN_PARAMETERS:
         out.errors.append(NameResolutionError(
             f"unknown PPN parameter `{statement.parameter}`", statement.parameter_span,
-            hint="relsheet knows the PPN parameters gamma and beta", source=source))
+            hint=did_you_mean(close_matches(statement.parameter, list(PPN_PARAMETERS)))
+            or "relsheet knows the PPN parameters gamma and beta", source=source))
         return None
     return CellDef(ppn_cell(statement.parameter), statement.parameter_span, statement.expr,
                    None, statement.comment, statement.marker, statement.span)
@@ -152,12 +157,12 @@ def import_sheet(use: UseDef, source: Source, chain: tuple[Path, ...], imports: 
     Problems become errors at the `use` line; the sheet is returned even when it has errors
     of its own (its cells say which)."""
     try:
-        path = resolve_import(source.label, use.path, imports.root, chain, use.path_span)
+        path = resolve_import(source.folder, use.path, imports.root, chain, use.path_span)
         key = (path, tuple((o.name, source.between(o.expr.span)) for o in use.overrides))
         imported = imports.sheets.get(key)
         if imported is not None:
             return imported
-        imported = make(read_sheet(path), (*chain, path))
+        imported = make(read_sheet(path, label_in(path, imports.root)), (*chain, path))
         imports.sheets[key] = imported
     except SheetError as err:
         errors.append(err.located(use.span, source))

@@ -172,7 +172,7 @@ def run_check(program: CheckProgram, env: Env, failed: set[str]) -> CheckResult:
         return result
     except SheetError as err:
         result.passed = False
-        result.error = err
+        result.error = err.located(d.span, program.left.source)
         return result
 
 

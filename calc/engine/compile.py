@@ -104,10 +104,21 @@ def _lift(fn, *codes: Code) -> Code:
     return lambda env: fn(*(r(env) for r in runners))
 
 
+def _bare_numbers(node) -> bool:
+    """A number, or an array of numbers, written without units."""
+    if isinstance(node, (Number, Percent)):
+        return True
+    return isinstance(node, ArrayLiteral) and bool(node.items) and all(
+        isinstance(item, (Number, Percent)) or (
+            isinstance(item, UnaryOp) and isinstance(item.operand, (Number, Percent)))
+        for item in node.items)
+
+
 def _leading_number(node):
-    """For a unit chain that starts with a number (`0.001 Msun`, `4e-4 deg / yr`): that number
-    and the same expression with 1 in its place; None for anything else (a bare number too)."""
-    if isinstance(node, Chain) and isinstance(node.head, (Number, Percent)):
+    """For a unit chain that starts with a number or an array of numbers (`0.001 Msun`,
+    `4e-4 deg / yr`, `[0.1, 0.2] AU`): that head and the same expression with 1 in its place;
+    None for anything else (a bare number too)."""
+    if isinstance(node, Chain) and _bare_numbers(node.head):
         return node.head, Chain(Number(1.0, "1", node.head.span), node.items, node.span)
     if isinstance(node, BinaryOp) and node.op in "*/":
         inner = _leading_number(node.left)
@@ -168,6 +179,19 @@ def _sampled_array(values, spans) -> Samples:
         column = np.asarray(value.value, dtype=float) * scale
         columns.append(np.broadcast_to(column, (count,)))
     return Samples(quantity(np.stack(columns, axis=1), unit))
+
+
+def _lengths_error(fname: str, slots, values, span: Span) -> DomainError:
+    """numpy could not broadcast the arguments: say which arguments have which lengths."""
+    sized = []
+    for name, value in zip(slots, values):
+        shape = np.shape(getattr(value, "value", value))
+        if shape:
+            sized.append(f"`{name}` has {shape[-1]}" if len(shape) == 1 else
+                         f"`{name}` is {' × '.join(map(str, shape))}")
+    listed = ", ".join(sized) if sized else "the arguments"
+    return DomainError(f"{fname}: arrays of different lengths ({listed})", span,
+                       hint="arrays combine element by element and need the same length")
 
 
 def _record_list(values, spans) -> RecordList:
@@ -267,9 +291,9 @@ class _Compiler:
         value_node, sigma_node = node.value, node.sigma
         scale = None
         leading = _leading_number(sigma_node)
-        if isinstance(value_node, (Number, Percent)) and leading is not None:
-            # `1.438 ± 0.001 Msun`, `1.805 ± 0.0004 deg / yr`: the units after the
-            # uncertainty belong to both numbers
+        if _bare_numbers(value_node) and leading is not None:
+            # `1.438 ± 0.001 Msun`, `1.805 ± 0.0004 deg / yr`, `[1, 2] ± [0.1, 0.2] AU`: the
+            # units after the uncertainty belong to both
             number, unit_only = leading
             units = self.expr(unit_only, depth + 1)
             if not isinstance(units, Const) or not isinstance(units.value, u.Quantity):
@@ -360,6 +384,11 @@ class _Compiler:
             return self.array(node, depth)
         if kind is Dotted:
             head = node.parts[0]
+            failed_use = self.scope.failed_namespaces.get(head)
+            if failed_use is not None and head not in self.scope.cell_names:
+                self.looked_up.add(head)
+                raise InputFailedError(f"`{head}` could not be imported (line {failed_use.line})",
+                                       [head], span=node.span)
             if head in self.scope.namespaces and head not in self.scope.cell_names:
                 return self.imported(node, depth)
             if head in self.scope.cell_names:
@@ -459,6 +488,18 @@ class _Compiler:
             else:
                 right, is_open = self.expr(node.right, depth + 1), False
             return _lift(mul_op(node.span, divide=True), left, right), is_open
+        if kind is BinaryOp and node.op == "*":
+            # `x * 3 km / s` reads as `x * (3 km / s)`: the chain of the right factor stays
+            # open, as it would at the start of an expression (the number is the same)
+            left = self.expr(node.left, depth + 1)
+            right, is_open = self.chainable(node.right, depth + 1, False)
+            return _lift(mul_op(node.span, divide=False), left, right), is_open
+        if kind is UnaryOp:
+            # `-2 km / s`: the minus does not hide the number from the chain
+            operand, is_open = self.chainable(node.operand, depth + 1, False)
+            if node.op == "+":
+                return operand, is_open
+            return _lift(neg_op(node.span), operand), is_open
         return self.expr(node, depth), False
 
     def call(self, node: Call, depth: int) -> Code:
@@ -521,7 +562,11 @@ class _Compiler:
                                     hint=err.hint) from None
             except SheetError as err:
                 raise err.located(span) from None
-            except (u.UnitsError, ValueError, TypeError, ZeroDivisionError, OverflowError) as exc:
+            except ValueError as exc:
+                if "broadcast" in str(exc):
+                    raise _lengths_error(fname, slots, values, span) from None
+                raise DomainError(f"{fname}: {exc}", span) from None
+            except (u.UnitsError, TypeError, ZeroDivisionError, OverflowError) as exc:
                 raise DomainError(f"{fname}: {exc}", span) from None
             return _finite(result, values, span, f"the result of {fname}")
 

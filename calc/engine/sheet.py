@@ -74,7 +74,8 @@ class Sheet:
         """``constants`` (words of a `constants` line) replaces the sheet's own pinning;
         ``root`` is the folder imports must stay in (default: this sheet's folder)."""
         self.source = source
-        here = Path(source.label).resolve() if not source.label.startswith("<") else None
+        here = source.path if source.path is not None else (
+            None if source.folder is None else Path(source.label).resolve())
         if imports is None:
             top = Path(root).resolve() if root is not None else (
                 here.parent if here is not None else Path.cwd().resolve())
@@ -123,7 +124,7 @@ class Sheet:
         self.uncertain_constants = built.uncertain_constants
         self.context.selection = built.selection
         scope = Scope([c.name for c in built.cells], self.selection,
-                      namespaces=self.namespaces)
+                      namespaces=self.namespaces, failed_namespaces=built.failed_namespaces)
         self._cells = Cells(scope, ConstantInputs(self.uncertain_constants))
         for cell in built.cells:
             self._cells.add(cell)
@@ -301,7 +302,13 @@ class Sheet:
         for result in self.checks:
             if result.error is not None and not isinstance(result.error, InputFailedError):
                 found.append(result.error)
-        return found
+        return sorted(found, key=self._position_of)
+
+    def _position_of(self, err: SheetError) -> tuple[int, int]:
+        """Where an error stands in this sheet's file (errors of no place first)."""
+        if err.span is None or err.source is not self.source:
+            return (0, 0)
+        return (err.span.line, err.span.column)
 
     def internal_errors(self) -> list[InternalError]:
         """Bugs of relsheet's own met while evaluating this sheet (and its imports)."""

@@ -142,6 +142,9 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer) -> SheetS
             f"`{first_word}` statements are not part of this version of relsheet",
             Span(tok.line, column, tok.line, column + len(first_word)),
             hint=f"`{first_word}` is reserved for a statement of a later version")
+    if first_word == "check" and tok.value == "=":
+        return SheetSyntaxError("a check compares with `==`, not `=`", span,
+                                hint="write for example `check M == 1 Msun within 1%`")
     if tok.type == "_NL" and "EQUAL" in expected:
         return SheetSyntaxError("a cell needs `=` and an expression", span,
                                 hint="write `name = expression`")

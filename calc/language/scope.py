@@ -58,11 +58,13 @@ class Scope:
     """Resolves names for one sheet: its cell names, units and constants."""
 
     def __init__(self, cell_names, selection: ConstantSelection,
-                 namespaces: dict | None = None) -> None:
+                 namespaces: dict | None = None, failed_namespaces: dict | None = None) -> None:
         #: the sheet's cell names (a live view: cells added later are seen)
         self.cell_names = cell_names
         #: imported sheets by namespace
         self.namespaces = namespaces or {}
+        #: namespaces whose `use` line failed, with the line's span
+        self.failed_namespaces: dict = failed_namespaces or {}
         self.selection = selection
         self.units: UnitTable = unit_table(selection)
         self.constants: dict[str, ConstantEntry] = constant_table(selection)
@@ -143,7 +145,9 @@ class Scope:
         if parameter not in PPN_PARAMETERS:
             raise NameResolutionError(
                 f"unknown PPN parameter `{parameter}`", span,
-                hint="relsheet knows the PPN parameters gamma and beta")
+                hint=did_you_mean([ppn_cell(p) for p in close_matches(parameter,
+                                                                       list(PPN_PARAMETERS))])
+                or "relsheet knows the PPN parameters gamma and beta")
         name = ppn_cell(parameter)
         if name in self.cell_names:
             return Resolved("cell", cell=name)

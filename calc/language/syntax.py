@@ -321,6 +321,11 @@ class NodeBuilder(Transformer):
         tok = children[0]
         return Dotted(tuple(tok.value.split(".")), token_span(tok))
 
+    def dotted_power(self, children):
+        tok, exponent = children
+        base = Dotted(tuple(tok.value.split(".")), token_span(tok))
+        return Power(base, exponent, base.span.to(exponent.span))
+
     def group(self, children):
         lpar, inner, rpar = children
         return Group(inner, token_span(lpar).to(token_span(rpar)))

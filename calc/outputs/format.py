@@ -189,6 +189,9 @@ def check_detail(result: CheckResult) -> str:
     if result.kind == "absolute":
         return (f"{both}: differ by {result.gap:.4g} {unit} (tolerance "
                 f"{value_text(result.tolerance)})")
-    sigma = result.sigma if result.sigma is not None else 0.0
+    if result.sigma is None:
+        return (f"{both}: neither side has an uncertainty, so `within {result.amount:g} sigma` "
+                "asks for equality" + ("" if result.passed else
+                                       f" (they differ by {result.gap:.4g} {unit})".replace(" )", ")")))
     return (f"{both}: differ by {result.ratio:.3g} σ (tolerance {result.amount:g} σ; "
-            f"σ of the difference {sigma:.3g} {unit})")
+            f"σ of the difference {result.sigma:.3g} {unit})".replace(" )", ")"))

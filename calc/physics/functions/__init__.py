@@ -38,8 +38,11 @@ class FunctionSpec:
         params = self.signature.parameters
         for key in kwargs:
             if key not in params or params[key].kind is inspect.Parameter.VAR_POSITIONAL:
+                from ..units import close_matches, did_you_mean
+
                 raise ArgumentError(f"{self.name}{self.display_signature()}: "
-                                    f"no argument is called `{key}`")
+                                    f"no argument is called `{key}`",
+                                    hint=did_you_mean(close_matches(key, list(params))))
         try:
             bound = self.signature.bind(*args, **kwargs)
         except TypeError as exc:
