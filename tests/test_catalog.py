@@ -32,8 +32,8 @@ DESIGN_FUNCTIONS = {
     "shapiro_delay": ("M", "r_emit", "r_recv", "separation", "gamma"),
     "conjunction_delay": ("M", "r_emit", "r_recv", "b", "gamma"),
     "geodetic_rate": ("M", "r", "gamma"), "frame_dragging_rate": ("J", "r", "gamma"),
-    "periastron_rate": ("m1", "m2", "Pb", "e"), "einstein_delay_amplitude": ("m1", "m2", "Pb", "e"),
-    "orbital_decay_rate": ("m1", "m2", "Pb", "e"), "shapiro_range": ("m2",),
+    "periastron_rate": ("m1", "m2", "Pb", "e", "order"), "einstein_delay_amplitude": ("m1", "m2", "Pb", "e"),
+    "orbital_decay_rate": ("m1", "m2", "Pb", "e"), "shapiro_range": ("m2", "gamma"),
     "shapiro_shape": ("m1", "m2", "Pb", "x"), "chirp_mass": ("m1", "m2"),
     "merger_time": ("m1", "m2", "Pb", "e"),
 }
