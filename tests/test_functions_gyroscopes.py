@@ -9,20 +9,20 @@ import pytest
 
 from conftest import evaluate
 
-# Gravity Probe B: circular polar orbit of radius 7027.4 km (642 km altitude; from memory),
+# Gravity Probe B: circular polar orbit of semi-major axis 7027.4 km (read in a mission summary),
 # Earth's spin angular momentum J = 5.86e33 kg m^2/s (from memory).
 GPB = "r = 7027.4 km\nJ = 5.86e33 kg m^2 / s\n"
 
 
 def test_geodetic_precession_gravity_probe_b():
-    # Everitt et al. 2011, PRL 106, 221101 (from memory): 6606.1 mas/yr predicted. 0.2%: the
+    # Everitt et al. 2011, PRL 106, 221101 (read in the abstract): 6606.1 mas/yr predicted. 0.2%: the
     # prediction includes the Earth's oblateness and the exact orbit, not modelled here.
     rate = evaluate(GPB + "x = geodetic_rate(const.GM_earth, r)")["x"]
     assert rate.to_value(u.mas / u.yr) == pytest.approx(6606.1, rel=2e-3, abs=0)
 
 
 def test_frame_dragging_gravity_probe_b():
-    # Everitt et al. 2011 (from memory): 39.2 mas/yr, the drift of a gyroscope pointing at the
+    # Everitt et al. 2011 (read in the abstract): 39.2 mas/yr, the drift of a gyroscope pointing at the
     # guide star IM Pegasi (declination 16.84 deg), i.e. the polar-orbit average times cos(dec).
     # 1.5%: J and the orbit radius are rounded.
     rate = evaluate(GPB + "x = frame_dragging_rate(J, r)")["x"].to_value(u.mas / u.yr)

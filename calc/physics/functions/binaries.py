@@ -9,6 +9,10 @@ are general relativity's predictions: the PPN factor (2 + 2γ − β)/3 of a tes
 body does not apply to a binary's ω̇, because the bodies' own strong fields
 enter (Damour & Esposito-Farèse 1992); only `shapiro_range`, a propagation
 effect in the companion's weak field, takes γ.
+
+Sources: "(read)" marks a text read for this entry; "(from memory: …)" one that could not
+be read — a book, or a paper whose text is not among the stored copies the team can search
+— with the value or equation recalled and checked by the tests against an outside reference.
 """
 
 from __future__ import annotations
@@ -90,10 +94,10 @@ def periastron_rate(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless,
                is the eccentricity of the Damour–Deruelle model for pulsar 1.
     PPN:       general relativity only; the test-body factor (2 + 2γ − β)/3 does not apply.
     Source:    Damour & Deruelle 1986, Ann. Inst. Henri Poincaré 44, 263; Lorimer & Kramer
-               2005, Handbook of Pulsar Astronomy, eq. (8.49) (from memory); checked against
+               2005, Handbook of Pulsar Astronomy, eq. (8.49) (from memory: a book); checked against
                Weisberg & Huang 2016, ApJ 829, 55 (4.226598 °/yr). 2PN: Damour & Schäfer
                1988, Nuovo Cimento B 101, 127, eqs. (5.19)–(5.23) (from memory: the paper's
-               text was not reachable); the tests check it against the exact Schwarzschild
+               text is not reachable); the tests check it against the exact Schwarzschild
                geodesic in the test-mass limit.
     """
     t1, t2, tm = _times(m1, m2)
@@ -120,7 +124,7 @@ def einstein_delay_amplitude(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless) -> 
     Result:    time, in s
     Validity:  first post-Newtonian order.
     PPN:       general relativity only.
-    Source:    Damour & Deruelle 1986; Lorimer & Kramer 2005, eq. (8.50) (from memory);
+    Source:    Damour & Deruelle 1986; Lorimer & Kramer 2005, eq. (8.50) (from memory: a book);
                Weisberg & Huang 2016, ApJ 829, 55 (4.307 ms for B1913+16).
     """
     t1, t2, tm = _times(m1, m2)
@@ -143,7 +147,8 @@ def orbital_decay_rate(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless) -> Dimens
                terms (Shklovskii, Galactic acceleration) that must be removed first.
     PPN:       general relativity only.
     Source:    Peters & Mathews 1963, Phys. Rev. 131, 435; Lorimer & Kramer 2005, eq. (8.52)
-               (from memory); Weisberg & Huang 2016, ApJ 829, 55 (−2.40263e−12).
+               (from memory: a book, and a paper not reachable); Weisberg & Huang 2016,
+               ApJ 829, 55 (−2.40263e−12; read in the abstract: masses 1.438 and 1.390 Msun).
     """
     t1, t2, tm = _times(m1, m2)
     pb = check.duration(Pb, "Pb")
@@ -167,9 +172,9 @@ def shapiro_range(m2: Mass, gamma: Dimensionless | None = None) -> Time:
                times the logarithm, as in `shapiro_delay`; general relativity gives
                r = T☉ m2. (For strongly self-gravitating bodies in a scalar-tensor
                theory the companion's effective coupling also changes; not modelled.)
-    Source:    Damour & Deruelle 1986; Lorimer & Kramer 2005, eq. (8.53) (from memory);
-               PPN form of the delay: Will 2014, Living Rev. Relativ. 17, 4, §3.3 (from
-               memory: not reachable for reading).
+    Source:    Damour & Deruelle 1986; Lorimer & Kramer 2005, eq. (8.53) (from memory: a
+               book); PPN form of the delay: Will 2014, Living Rev. Relativ. 17, 4, §3.3 (from
+               memory: not reachable).
     """
     c = check.speed_of_light()
     g = check.ppn(gamma, "gamma")
@@ -186,7 +191,7 @@ def shapiro_shape(m1: Mass, m2: Mass, Pb: Time, x: Time) -> Dimensionless:
     Result:    dimensionless (sin i); above 1 the masses and x are inconsistent
     Validity:  first post-Newtonian order.
     PPN:       general relativity only.
-    Source:    Damour & Deruelle 1986; Lorimer & Kramer 2005, eq. (8.54) (from memory).
+    Source:    Damour & Deruelle 1986; Lorimer & Kramer 2005, eq. (8.54) (from memory: a book).
     """
     _, t2, tm = _times(m1, m2)
     pb = check.duration(Pb, "Pb")
@@ -211,7 +216,8 @@ def chirp_mass(m1: Mass, m2: Mass) -> Mass:
     Validity:  exact definition (leading-order inspiral).
     PPN:       general relativity only.
     Source:    Peters & Mathews 1963, Phys. Rev. 131, 435; Cutler & Flanagan 1994, Phys. Rev.
-               D 49, 2658 (from memory).
+               D 49, 2658 (from memory: not reachable); Abbott et al. 2016, Phys. Rev. D 93,
+               122004 (read in the abstract: chirp mass ~30 Msun in the detector frame).
     """
     gm1 = check.gravitational_parameter(m1, "m1")
     gm2 = check.gravitational_parameter(m2, "m2")
@@ -257,7 +263,7 @@ def merger_time(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless) -> Time:
                five at e ≈ 0.6.
     PPN:       general relativity only.
     Source:    P. C. Peters 1964, Phys. Rev. 136, B1224, eqs. (5.6), (5.7), (5.11), (5.14)
-               (from memory).
+               (from memory: not reachable; the tests integrate eqs. (5.6)–(5.7) directly).
     """
     gm1 = check.gravitational_parameter(m1, "m1")
     gm2 = check.gravitational_parameter(m2, "m2")
@@ -299,7 +305,8 @@ def mass_function(Pb: Time, x: Time) -> Mass:
     PPN:       none (Newtonian).
     Source:    Lorimer 2008, Living Rev. Relativ. 11, 8, §4.4, eq. (11) (read; the equation
                itself is an image in the stored copy: its form is the standard one of
-               spectroscopic binaries); Lorimer & Kramer 2005, eq. (8.34) (from memory).
+               spectroscopic binaries); Lorimer & Kramer 2005, eq. (8.34) (from memory: a
+               book).
     """
     pb = check.duration(Pb, "Pb")
     projected = check.duration(x, "x")
@@ -377,7 +384,7 @@ def geodetic_spin_rate(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless) -> Angula
     Source:    Barker & O'Connell 1975, Phys. Rev. D 12, 329; Lorimer 2001, Living Rev.
                Relativ. 4, 5, §4.8 (read: the B1913+16 precession period of 297.5 yr; the
                equation itself is an image in the stored copy); Kramer & Wex 2009, Class.
-               Quantum Grav. 26, 073001, eq. (15) (from memory).
+               Quantum Grav. 26, 073001, eq. (15) (from memory: not reachable).
     """
     t1, t2, tm = _times(m1, m2)
     pb = check.duration(Pb, "Pb")
@@ -402,7 +409,7 @@ def shklovskii_rate(Pb: Time, mu: AngularRate, d: Length) -> Dimensionless:
     Validity:  exact to first order in (v_T t / d); applies to any period (spin or orbit).
     PPN:       none (kinematics).
     Source:    Shklovskii 1970, Sov. Astron. 13, 562; Damour & Taylor 1991, ApJ 366, 501
-               (from memory); the kinematic distance of PSR J0437−4715 from this effect:
+               (from memory: not reachable); the kinematic distance of PSR J0437−4715 from this effect:
                Verbiest et al. 2008, ApJ 679, 675 (read: D_k = 157.0 ± 2.4 pc).
     """
     pb = check.duration(Pb, "Pb")
@@ -449,9 +456,10 @@ def galactic_rate(Pb: Time, l: Angle, b: Angle, d: Length, R0: Length | None = N
                vertical model holds for |z| ≲ 1.5 kpc near the solar circle. Spiral arms,
                the bar and local masses add errors of a few per cent of the planar term.
     PPN:       none (Newtonian dynamics of the Galaxy).
-    Source:    planar term: Damour & Taylor 1991, ApJ 366, 501, eq. (2.12) (from memory);
-               vertical term: Holmberg & Flynn 2004, MNRAS 352, 440, as used by Lazaridis
-               et al. 2009, MNRAS 400, 805 (from memory: neither text was reachable);
+    Source:    planar term: Damour & Taylor 1991, ApJ 366, 501, eq. (2.12) (from memory: not
+               reachable; the tests check it against the vector geometry); vertical term:
+               Holmberg & Flynn 2004, MNRAS 352, 440, as used by Lazaridis et al. 2009, MNRAS
+               400, 805 (from memory: neither text is reachable);
                defaults R0, v0: Reid et al. 2019, ApJ 885, 131 (read).
     """
     pb = check.duration(Pb, "Pb")
@@ -511,9 +519,9 @@ def gw_frequency(Pb: Time) -> Frequency:
     Result:    frequency, in Hz
     Validity:  circular orbit; an eccentric binary radiates at all harmonics n/Pb.
     PPN:       none (general relativity's quadrupole radiation).
-    Source:    Peters & Mathews 1963, Phys. Rev. 131, 435 (from memory); Abbott et al.
-               2016, Phys. Rev. Lett. 116, 061102 (the chirp analysed at twice the
-               orbital frequency; from memory).
+    Source:    Peters & Mathews 1963, Phys. Rev. 131, 435 (from memory: not reachable);
+               Abbott et al. 2016, Phys. Rev. Lett. 116, 061102 (the chirp analysed at twice
+               the orbital frequency; from memory: the text is not reachable).
     """
     return quantity(2 / check.duration(Pb, "Pb"), u.Hz)
 
@@ -529,8 +537,9 @@ def chirp_rate(m1: Mass, m2: Mass, f: Frequency) -> FrequencyRate:
                (π G M f / c³)^(2/3) (about 0.1 near 100 Hz for tens of solar masses).
                Masses in the detector frame ((1 + z) times the source masses).
     PPN:       general relativity only.
-    Source:    Abbott et al. 2016, Phys. Rev. Lett. 116, 061102, eq. (1) (from memory);
-               follows from Peters 1964, Phys. Rev. 136, B1224, eq. (5.6) with e = 0.
+    Source:    Abbott et al. 2016, Phys. Rev. Lett. 116, 061102, eq. (1) (from memory: the
+               text is not reachable); follows from Peters 1964, Phys. Rev. 136, B1224,
+               eq. (5.6) with e = 0 (the tests check that).
     """
     tc, tm = _chirp_time(m1, m2)
     freq = _frequency(f)
@@ -550,8 +559,8 @@ def time_to_merger(m1: Mass, m2: Mass, f: Frequency) -> Time:
                `merger_time` with Pb = 2/f and e = 0. Post-Newtonian corrections shorten
                or lengthen it by a relative amount of order (π G M f / c³)^(2/3).
     PPN:       general relativity only.
-    Source:    Peters 1964, Phys. Rev. 136, B1224, eqs. (5.6), (5.10) (from memory);
-               Cutler & Flanagan 1994, Phys. Rev. D 49, 2658 (from memory).
+    Source:    Peters 1964, Phys. Rev. 136, B1224, eqs. (5.6), (5.10); Cutler & Flanagan
+               1994, Phys. Rev. D 49, 2658 (from memory: neither text is reachable).
     """
     tc, tm = _chirp_time(m1, m2)
     freq = _frequency(f)
@@ -573,7 +582,8 @@ def gw_strain(m1: Mass, m2: Mass, f: Frequency, d: Length) -> Dimensionless:
     Validity:  leading (quadrupole) order, circular orbit, far zone (d ≫ wavelength).
     PPN:       general relativity only.
     Source:    quadrupole formula h_ij = (2G/(c⁴ d)) d²I_ij/dt² (Einstein 1918; Peters &
-               Mathews 1963, Phys. Rev. 131, 435) applied to a circular orbit (from memory).
+               Mathews 1963, Phys. Rev. 131, 435) applied to a circular orbit (from memory:
+               not reachable; the tests check it against the quadrupole formula).
     """
     tc, tm = _chirp_time(m1, m2)
     freq = _frequency(f)

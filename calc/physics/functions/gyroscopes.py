@@ -1,6 +1,10 @@
 """Gyroscopes in orbit: geodetic (de Sitter) and frame-dragging (Schiff) precession.
 
 Rates come in milliarcseconds per Julian year, the unit gyroscope experiments report.
+
+Sources: "(read)" marks a text read for this entry; "(from memory: …)" one that could not
+be read — a book, or a paper whose text is not among the stored copies the team can search
+— with the value or equation recalled and checked by the tests against an outside reference.
 """
 
 from __future__ import annotations
@@ -32,8 +36,8 @@ def geodetic_rate(M: Mass, r: Length, gamma: Dimensionless | None = None) -> Ang
                (the body's oblateness changes it at the 1e-3 level near the Earth).
     PPN:       (1 + 2γ)/3 relative to general relativity.
     Source:    W. de Sitter 1916, MNRAS 77, 155; L. I. Schiff 1960, Phys. Rev. Lett. 4, 215;
-               Everitt et al. 2011, Phys. Rev. Lett. 106, 221101 (Gravity Probe B:
-               6606.1 mas/yr predicted) (from memory).
+               Everitt et al. 2011, Phys. Rev. Lett. 106, 221101 (read in the abstract:
+               6606.1 mas/yr predicted for Gravity Probe B).
     """
     gm = check.gravitational_parameter(M)
     radius = check.length(r, "r")
@@ -59,9 +63,9 @@ def frame_dragging_rate(J: AngularMomentum, r: Length,
     PPN:       (1 + γ + α1/4)/2 relative to general relativity; α1 (a preferred-frame
                parameter the sheet does not carry) is taken as 0, leaving (1 + γ)/2.
     Source:    L. I. Schiff 1960, Phys. Rev. Lett. 4, 215; Will 2014, Living Rev. Relativ.
-               17, 4, §4.1 (the PPN factor; from memory: not reachable for reading);
-               Everitt et al. 2011, Phys. Rev. Lett. 106, 221101 (Gravity Probe B: 39.2
-               mas/yr predicted) (from memory).
+               17, 4, §4.1 (the PPN factor; from memory: not reachable); Everitt et al.
+               2011, Phys. Rev. Lett. 106, 221101 (read in the abstract: 39.2 mas/yr
+               predicted for Gravity Probe B).
     """
     spin = check.angular_momentum(J)
     radius = check.length(r, "r")

@@ -2,6 +2,10 @@
 
 All functions take the central mass as a mass or a gravitational parameter GM;
 internally they work in GM (known far better than G·M for solar-system bodies).
+
+Sources: "(read)" marks a text read for this entry; "(from memory: …)" one that could not
+be read — a book, or a paper whose text is not among the stored copies the team can search
+— with the value or equation recalled and checked by the tests against an outside reference.
 """
 
 from __future__ import annotations
@@ -30,7 +34,7 @@ def schwarzschild_radius(M: Mass) -> Length:
                solution); for a rotating body it is the scale 2GM/c², not a horizon radius.
     PPN:       none (a property of the metric's mass parameter).
     Source:    K. Schwarzschild 1916, Sitzungsber. Preuss. Akad. Wiss. Berlin, 189;
-               Misner, Thorne & Wheeler 1973, Gravitation, ch. 31 (from memory).
+               Misner, Thorne & Wheeler 1973, Gravitation, ch. 31 (from memory: a book).
     """
     gm = check.gravitational_parameter(M)
     c = check.speed_of_light()
@@ -69,8 +73,8 @@ def proper_radial_distance(M: Mass, r1: Length, r2: Length,
                metric (1 + 2γU/c²) δ_ij in isotropic coordinates gives g_rr = 1 + 2γ GM/(c² r)
                in the areal radius r.
     Source:    Misner, Thorne & Wheeler 1973, Gravitation, §31.2; Hartle 2003, Gravity,
-               §9.1 (from memory); PPN metric: Will 2014, Living Rev. Relativ. 17, 4, §3.2
-               (from memory: not reachable for reading).
+               §9.1 (from memory: books); PPN metric: Will 2014, Living Rev. Relativ. 17, 4,
+               §3.2 (from memory: not reachable).
     """
     gm = check.gravitational_parameter(M)
     a = check.length(r1, "r1")
@@ -108,7 +112,8 @@ def gravitational_redshift(M: Mass, r_emit: Length, r_obs: Length) -> Dimensionl
     Validity:  exact for static observers in the Schwarzschild metric (no motion, no rotation).
     PPN:       none at first order (the redshift tests the equivalence principle, not γ or β).
     Source:    A. Einstein 1911, Ann. Phys. 35, 898; Will 2014, Living Rev. Relativ. 17, 4,
-               §2.4 (from memory); checked against Pound & Rebka 1960, Phys. Rev. Lett. 4, 337.
+               §2.4 (from memory: not reachable); checked against Pound & Rebka 1960, Phys.
+               Rev. Lett. 4, 337.
     """
     gm = check.gravitational_parameter(M)
     re = check.length(r_emit, "r_emit")
@@ -167,7 +172,8 @@ def clock_rate(M: Mass, r: Length, v: Speed | None = None, J2: Dimensionless | N
                potentials are specified.
     PPN:       none at this order (the γ and β terms enter at order 1/c⁴).
     Source:    N. Ashby 2003, Living Rev. Relativ. 6, 1, eq. (13) (read: V = −GM/r [1 −
-               J2 (a1/r)² P2(cos θ)], θ the polar angle) and eq. (27) (from memory);
+               J2 (a1/r)² P2(cos θ)], θ the polar angle) and eq. (27) (from memory: the
+               stored copy shows its equations as images);
                IERS Conventions 2010 (IERS Technical Note 36), ch. 10.
     """
     gm = check.gravitational_parameter(M)
@@ -201,8 +207,9 @@ def eccentricity_clock_term(M: Mass, a: Length, e: Dimensionless) -> Time:
     Validity:  first order in GM/(c² a); Keplerian orbit. For the Earth's orbit about the Sun
                it gives the leading annual term of TDB − TT.
     PPN:       none at this order.
-    Source:    IS-GPS-200, §20.3.3.3.3.1 (from memory); Ashby 2003, Living Rev. Relativ. 6, 1,
-               eq. (44) (from memory); Fairhead & Bretagnon 1990, Astron. Astrophys. 229, 240.
+    Source:    IS-GPS-200, §20.3.3.3.3.1; Ashby 2003, Living Rev. Relativ. 6, 1, eq. (44)
+               (from memory: the specification is not reachable, Ashby's equations are images
+               in the stored copy); Fairhead & Bretagnon 1990, Astron. Astrophys. 229, 240.
     """
     gm = check.gravitational_parameter(M)
     semi = check.length(a, "a")

@@ -6,6 +6,10 @@ sphere, the shadow, the periapsis advance of a bound geodesic and the deflection
 a light ray. These are general relativity's exact results; the PPN formalism is a
 weak-field expansion and has no parameter for them (the weak-field functions in
 `orbits` and `light` take γ and β).
+
+Sources: "(read)" marks a text read for this entry; "(from memory: …)" one that could not
+be read — a book, or a paper whose text is not among the stored copies the team can search
+— with the value or equation recalled and checked by the tests against an outside reference.
 """
 
 from __future__ import annotations
@@ -44,7 +48,7 @@ def isco_radius(M: Mass) -> Length:
                of a spinning hole lies between GM/c² and 9GM/c²).
     PPN:       none: an exact general-relativistic result outside the PPN expansion.
     Source:    Misner, Thorne & Wheeler 1973, Gravitation, §25.5; Hartle 2003, Gravity,
-               §9.3 (from memory).
+               §9.3 (from memory: books).
     """
     return quantity(6 * _gravitational_radius(M) / 1e3, u.km)
 
@@ -58,7 +62,7 @@ def photon_sphere_radius(M: Mass) -> Length:
     Result:    length, in km
     Validity:  exact for a non-rotating, uncharged mass whose surface lies inside it.
     PPN:       none: an exact general-relativistic result outside the PPN expansion.
-    Source:    Misner, Thorne & Wheeler 1973, Gravitation, §25.6 (from memory).
+    Source:    Misner, Thorne & Wheeler 1973, Gravitation, §25.6 (from memory: a book).
     """
     return quantity(3 * _gravitational_radius(M) / 1e3, u.km)
 
@@ -76,7 +80,7 @@ def shadow_angle(M: Mass, d: Length) -> Angle:
                d sees the angular radius arcsin(√27 GM/(c² d) · √(1 − 2GM/(c² d))).
     PPN:       none: an exact general-relativistic result outside the PPN expansion.
     Source:    Synge 1966, MNRAS 131, 463; Event Horizon Telescope Collaboration 2019, ApJL
-               875, L6 (diameter 2√27 θ_g) (from memory).
+               875, L6 (diameter 2√27 θ_g) (from memory: not reachable).
     """
     m = _gravitational_radius(M)
     distance = check.length(d, "d")
@@ -122,8 +126,9 @@ def periapsis_advance_exact(M: Mass, a: Length, e: Dimensionless) -> Angle:
     PPN:       none: an exact general-relativistic result outside the PPN expansion (use
                `periapsis_advance` for the first-order PPN form).
     Source:    Darwin 1959, Proc. R. Soc. A 249, 180; Cutler, Kennefick & Poisson 1994,
-               Phys. Rev. D 50, 3816 (the separatrix p = (6 + 2e) GM/c²) (from memory);
-               K(k) = π/(2 AGM(1, k')): DLMF §19.8(i), eq. 19.8.5 (from memory).
+               Phys. Rev. D 50, 3816 (the separatrix p = (6 + 2e) GM/c²) (from memory: not
+               reachable); K(k) = π/(2 AGM(1, k')): DLMF §19.8(i), eq. 19.8.5 (from memory:
+               not reachable; the tests compare with scipy.special.ellipk).
     """
     m = _gravitational_radius(M)
     semi = check.length(a, "a")
@@ -207,7 +212,8 @@ def deflection_exact(M: Mass, b: Length) -> Angle:
                (Epstein & Shapiro 1980); `deflection` gives the first-order PPN form.
     Source:    Darwin 1959, Proc. R. Soc. A 249, 180; Epstein & Shapiro 1980, Phys. Rev. D
                22, 2947; Keeton & Petters 2005, Phys. Rev. D 72, 104006 (series
-               coefficients) (from memory: the texts were not reachable for reading).
+               coefficients) (from memory: the texts are not reachable; the tests compare
+               with scipy quadrature and solve_ivp).
     """
     m = _gravitational_radius(M)
     impact = check.length(b, "b")
