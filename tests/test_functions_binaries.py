@@ -268,7 +268,7 @@ def test_geodetic_spin_precession_of_the_double_pulsar_b():
 
 
 def test_geodetic_spin_precession_of_hulse_taylor():
-    # Lorimer 2001, Living Rev. Relativ. 4, 5, section 4.8 (read): the precession period of
+    # Lorimer 2001, Living Rev. Relativ. 4, 5, on geodetic precession (read): the period of
     # B1913+16 is 297.5 yr, i.e. 360 deg / 1.21 deg/yr: a rate known to three digits (0.4%).
     rate = evaluate(HULSE_TAYLOR + "w = geodetic_spin_rate(m1, m2, Pb, ecc)")["w"]
     assert rate.to_value(u.deg / u.yr) == pytest.approx(360 / 297.5, rel=5e-3, abs=0)

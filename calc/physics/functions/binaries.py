@@ -382,8 +382,8 @@ def geodetic_spin_rate(m1: Mass, m2: Mass, Pb: Time, e: Dimensionless) -> Angula
     PPN:       general relativity only (for a test gyroscope the factor is (1 + 2γ)/3;
                for a binary of compact bodies no PPN form applies).
     Source:    Barker & O'Connell 1975, Phys. Rev. D 12, 329; Lorimer 2001, Living Rev.
-               Relativ. 4, 5, §4.8 (read: the B1913+16 precession period of 297.5 yr; the
-               equation itself is an image in the stored copy); Kramer & Wex 2009, Class.
+               Relativ. 4, 5, on geodetic precession (read: the B1913+16 period, 297.5 yr;
+               the equation itself is an image in the stored copy); Kramer & Wex 2009, Class.
                Quantum Grav. 26, 073001, eq. (15) (from memory: not reachable).
     """
     t1, t2, tm = _times(m1, m2)
