@@ -17,6 +17,7 @@ TOPIC_TITLES = {
     "light": "Light and signals",
     "gyroscopes": "Gyroscopes",
     "binaries": "Binaries (general relativity, post-Keplerian parameters)",
+    "strongfield": "Strong field (Schwarzschild, exact)",
     "timing": "Time and clocks",
     "math": "Mathematics",
 }

@@ -17,8 +17,8 @@ from functools import cached_property
 from ...errors import ArgumentError
 
 #: Topic modules, imported on the first look-up.
-TOPICS = ("spacetime", "orbits", "perturbations", "light", "gyroscopes", "binaries", "elementary",
-          "motion", "timing")
+TOPICS = ("spacetime", "orbits", "perturbations", "light", "gyroscopes", "binaries", "strongfield",
+          "elementary", "motion", "timing")
 
 
 @dataclass(frozen=True)
