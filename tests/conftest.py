@@ -21,3 +21,21 @@ def only_error(sheet: Sheet, name: str):
 @pytest.fixture
 def sheet_of():
     return evaluate
+
+
+# pytest.approx keeps an absolute tolerance of 1e-12 unless `abs` is given, even when `rel`
+# is: every comparison of values below about 1e-10 (rates in rad/s, fractional frequencies,
+# G in SI) would pass whatever the code returned. In this suite a tolerance is relative unless
+# a test says `abs=` itself.
+_approx = pytest.approx
+
+
+def _relative_approx(expected, rel=None, abs=None, nan_ok=False):
+    if abs is None:
+        abs = 0.0
+        if rel is None:
+            rel = 1e-6
+    return _approx(expected, rel=rel, abs=abs, nan_ok=nan_ok)
+
+
+pytest.approx = _relative_approx
