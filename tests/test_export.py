@@ -63,8 +63,11 @@ def test_markdown_report(sheet):
 def test_tex_macros(sheet):
     text = to_tex(sheet)
     macros = dict(re.findall(r"\\newcommand\{(\\rs\w+)\}\{(.*)\}", text))
-    assert macros["\\rsMOne"] == "\\qty{1.4380 \\pm 0.0010}{solMass}"
-    assert macros["\\rsOmegaDot"].startswith("\\qty{") and macros["\\rsOmegaDot"].endswith("{deg/yr}")
+    # units as siunitx (v3) macros; those it lacks are declared in the file
+    assert macros["\\rsMOne"] == "\\qty{1.4380 \\pm 0.0010}{\\solarmass}"
+    assert "\\DeclareSIUnit{\\solarmass}{M_\\odot}" in text
+    assert macros["\\rsOmegaDot"].startswith("\\qty{") and \
+        macros["\\rsOmegaDot"].endswith("{\\degree\\per\\year}")
     assert macros["\\rsShare"] == "\\num{0.175}"
     assert "% orbit_b is a record: no macro" in text
     assert all(re.fullmatch(r"\\rs[A-Za-z]+", name) for name in macros)
@@ -73,6 +76,8 @@ def test_tex_macros(sheet):
 @pytest.mark.parametrize("name, macro", [
     ("adv_rate", "\\rsAdvRate"), ("m1", "\\rsMOne"), ("ppn.gamma", "\\rsPpnGamma"),
     ("ω_dot", "\\rsOmegaDot"), ("P_b", "\\rsPB"), ("x", "\\rsX"),
+    # letters with a dot above keep it, spelled (they collided as `\rsAboveB` before)
+    ("Ṗb", "\\rsPdotB"), ("Ėb", "\\rsEdotB"), ("P\u0307b", "\\rsPdotB"),
 ])
 def test_macro_names(name, macro):
     assert macro_name(name) == macro

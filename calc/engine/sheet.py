@@ -26,20 +26,28 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from ..errors import CycleError, InputFailedError, InternalError, SheetError, Source, Span
+from ..errors import (
+    CycleError,
+    InputFailedError,
+    InternalError,
+    SheetError,
+    Source,
+    Span,
+    UnitError,
+)
 from ..files import read_sheet
 from ..language.parse import parse_expression
 from ..language.scope import Scope
 from ..language.syntax import CellDef, Expr, Note, UseDef
 from ..physics.constants import ConstantSelection
-from ..physics.units import unit_table
+from ..physics.units import conversion_scale, physical_type, unit_table, unit_text
 from . import budget, montecarlo
 from .build import Built, Imports, build, import_sheet
 from .cells import Cell, Cells
 from .checks import CheckResult
 from .compile import ConstantInputs
 from .context import EvaluationContext, Progress, entered
-from .values import ShownValue
+from .values import ShownValue, is_record
 
 #: A set of cell names (spelled here because the method `Sheet.set` hides the builtin in
 #: the class body).
@@ -144,9 +152,35 @@ class Sheet:
         source = Source(label or f"--set {name}", text)
         with numeric_context(), entered(self.context):
             line = parse_expression(text, source)
+            self._same_dimension(name, line, source)
             changed = self._cells.assign(name, line.expr, line.unit, source)
             self._cells.run_checks()
             return changed
+
+    def _same_dimension(self, name: str, line, source: Source) -> None:
+        """An override keeps a cell's dimension: `--set omdot=4.2 deg` where the sheet has
+        deg / yr is refused at the override, naming the dimension the sheet expects."""
+        cell = self._cells.cells.get(name)
+        if cell is None or cell.error is not None or is_record(cell.raw):
+            return
+        definition = CellDef(name, Span(1, 1, 1, 1 + len(name)), line.expr, line.unit, None,
+                             None, line.span)
+        try:
+            new = self._cells.evaluate(definition, source)
+        except SheetError:
+            return  # the cell will show the error of its new expression
+        if is_record(new):
+            return
+        old_unit, new_unit = cell.raw.unit, new.unit
+        try:
+            conversion_scale(new_unit, old_unit)
+        except u.UnitConversionError:
+            raise UnitError(
+                f"`{name}` has the dimension {physical_type(old_unit)} ({unit_text(old_unit)}), "
+                f"the new value {physical_type(new_unit)}" + (
+                    f" ({unit_text(new_unit)})" if unit_text(new_unit) else ""),
+                line.expr.span, hint=f"give a value in {unit_text(old_unit) or 'plain numbers'}",
+                source=source) from None
 
     def override(self, name: str, expr: Expr, source: Source) -> list[Cell]:
         """Give cell ``name`` an expression already parsed (a `use … with` override)."""

@@ -24,7 +24,7 @@ from pygments.token import (
 from ..language.syntax import RESERVED_WORDS
 
 _NUMBER = r"(\d[\d_]*(\.[\d_]*)?|\.\d[\d_]*)([eE][+\-\u2212]?\d[\d_]*)?%?"
-_NAME = r"[^\W\d]\w*"
+_NAME = r"[^\W\d][\w\u0300-\u036f\u1ab0-\u1aff\u1dc0-\u1dff\u20d0-\u20ff\ufe20-\ufe2f]*"
 
 
 class SheetLexer(RegexLexer):

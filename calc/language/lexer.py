@@ -15,6 +15,7 @@ reserves them. The lexer also joins lines inside brackets (see :meth:`SheetLexer
 from __future__ import annotations
 
 import re
+import unicodedata
 
 from lark import Token
 from lark.exceptions import UnexpectedCharacters
@@ -87,9 +88,11 @@ class SheetLexer(Lexer):
         ops = sorted(self.operators, key=len, reverse=True)
         parts.append("(?P<OP>" + "|".join(re.escape(o) for o in ops) + ")")
         space = "|".join(by_name[n].pattern.to_regexp() for n in sorted(ignored))
-        # white space before a token is consumed by the same match (half the regex calls)
-        self.master = re.compile(f"(?:{space})*(?:" + "|".join(parts) + ")")
-        self.trailing_space = re.compile(f"(?:{space})*\\Z")
+        # white space before a token is consumed by the same match (half the regex calls); the
+        # ignored pattern already takes a whole run, so it is optional, not repeated: a
+        # repeated run (`(?:[ ]+)*`) backtracks exponentially when the rest fails
+        self.master = re.compile(f"(?:{space})?(?:" + "|".join(parts) + ")")
+        self.trailing_space = re.compile(f"(?:{space})?\\Z")
         self.group_names = {n.lstrip("_") or n: n for n in _PATTERN_TERMINALS}
         self.open_brackets: list[Token] = []
         self.last: Token | None = None
@@ -162,5 +165,9 @@ class SheetLexer(Lexer):
                 line += newlines
                 line_start = value.rfind("\n") + pos + 1
             else:
-                yield _token(kind, value, pos, line, column, line, column + len(value), stop)
+                width = len(value)
+                if (kind == "NAME" or kind == "DOTTED_NAME") and not value.isascii():
+                    # one spelling of a name: `Ṗ` as one character or as P and a combining dot
+                    value = unicodedata.normalize("NFC", value)
+                yield _token(kind, value, pos, line, column, line, column + width, stop)
             pos = stop

@@ -24,11 +24,12 @@ from __future__ import annotations
 import json
 import math
 
+import astropy.units as u
 import numpy as np
 
 from ..engine.cells import Cell
 from ..engine.sheet import Sheet
-from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue
+from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue, is_record
 from ..physics.units import unit_string
 from .format import as_shown, format_magnitude, format_quantity
 
@@ -171,45 +172,85 @@ def to_csv(sheet: Sheet) -> str:
 
 def _markdown_value(cell: Cell) -> tuple[str, str]:
     if cell.error is not None:
-        return f"**error:** {cell.error.message}", ""
+        return f"**error:** {_markdown_text(cell.error.message)}", ""
     return format_quantity(cell.raw)
+
+
+def _markdown_text(text: str) -> str:
+    """Sheet text made safe for Markdown (and the HTML it may be rendered to): no raw HTML,
+    no line breaks that would start a block of their own; Markdown emphasis stays."""
+    text = "".join(" " if ch in "\r\n\v\f\x1c\x1d\x1e\x85\u2028\u2029" else ch for ch in text)
+    return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+
+
+def _code_text(text: str) -> str:
+    """Text inside a Markdown code span (shown as written: only a backtick could end it)."""
+    return "".join(" " if ch in "\r\n\v\f\x85\u2028\u2029" else ch for ch in text).replace("`", "'")
 
 
 def _cell_text(text: str) -> str:
     """Text safe inside a Markdown table cell."""
-    return text.replace("|", "\\|")
+    return _markdown_text(text).replace("|", "\\|")
+
+
+def _record_rows(name: str, value: ShownValue) -> list[tuple[str, str, str]]:
+    """(name, value, unit) rows of a record's fields, nested records and lists too."""
+    rows: list[tuple[str, str, str]] = []
+    if isinstance(value, ShownRecords):
+        for index, item in enumerate(value.items):
+            rows.append((f"{name}[{index}]", item.label or item.summary(), ""))
+            rows += _record_rows(f"{name}[{index}]", item)
+    elif isinstance(value, ShownRecord):
+        for field, q in value.fields.items():
+            if isinstance(q, Shown):
+                rows.append((f"{name}.{field}", *format_quantity(q)))
+            else:
+                rows.append((f"{name}.{field}", q.summary(), ""))
+                rows += _record_rows(f"{name}.{field}", q)
+    return rows
 
 
 def to_markdown(sheet: Sheet) -> str:
-    """A report: headings, notes as text, tables of cells, the checks, the constant sets."""
+    """A report: headings, notes as paragraphs, tables of cells (records field by field), the
+    checks, the constant sets."""
     from ..language.syntax import Note
     from .format import check_detail
 
-    lines = [f"# {sheet.source.label}", "",
+    lines = [f"# {_markdown_text(sheet.source.label)}", "",
              f"Constants: {', '.join(sheet.selection.names)}"
              + (" (with their published uncertainties)" if sheet.uncertain_constants else ""), ""]
-    table_open = False
+    state = "start"   # what the last item left open: "table", "note" (a paragraph) or "start"
     for item in sheet.items:
         if isinstance(item, Note):
-            if table_open:
+            if state in ("table", "note") and (item.heading or state == "table"):
                 lines.append("")
-                table_open = False
-            lines += [f"## {item.text}" if item.heading else item.text, ""]
+            if item.heading:
+                lines += [f"## {_markdown_text(item.text)}", ""]
+                state = "start"
+            else:
+                lines.append(_markdown_text(item.text))   # consecutive notes: one paragraph
+                state = "note"
             continue
-        if not table_open:
+        if state != "table":
+            if state == "note":
+                lines.append("")
             lines += ["| cell | value | unit |", "|---|---|---|"]
-            table_open = True
+            state = "table"
         value, unit = _markdown_value(item)
-        lines.append(f"| `{item.name}` | {_cell_text(value)} | {unit} |")
+        lines.append(f"| `{item.name}` | {_cell_text(value)} | {_cell_text(unit)} |")
+        if item.error is None and is_record(item.raw):
+            for name, field_value, field_unit in _record_rows(item.name, as_shown(item.raw)):
+                lines.append(f"| `{name}` | {_cell_text(field_value)} | {_cell_text(field_unit)} |")
         for warning in item.warnings:
             lines.append(f"| | *warning: {_cell_text(warning)}* | |")
-    if table_open:
+    if state != "start":
         lines.append("")
     if sheet.checks:
         lines += ["## Checks", ""]
         for result in sheet.checks:
             mark = "passed" if result.passed else "**FAILED**"
-            lines.append(f"- {mark} (line {result.line}): `{result.text}` — {check_detail(result)}")
+            lines.append(f"- {mark} (line {result.line}): `{_code_text(result.text)}` — "
+                         f"{_markdown_text(check_detail(result))}")
         lines.append("")
     return "\n".join(lines)
 
@@ -218,60 +259,159 @@ def to_markdown(sheet: Sheet) -> str:
 
 _DIGITS = "Zero One Two Three Four Five Six Seven Eight Nine".split()
 
+#: Diacritics by the word a macro name spells them with (`Ṗ` → `Pdot`, `x̄` → `xbar`).
+_MARKS = {"DOT ABOVE": "dot", "DIAERESIS": "ddot", "TILDE": "tilde", "CIRCUMFLEX ACCENT": "hat",
+          "MACRON": "bar", "ACUTE ACCENT": "acute", "GRAVE ACCENT": "grave", "BREVE": "breve",
+          "CARON": "check", "RING ABOVE": "ring", "VECTOR OR CROSS PRODUCT": "vec",
+          "COMBINING RIGHT ARROW ABOVE": "vec"}
+
+
+def _letter_word(ch: str) -> str:
+    """A letter, spelled for a macro name: ASCII as itself, Greek and others by their Unicode
+    name (`ω` → `omega`), a diacritic after its letter (`Ṗ` → `Pdot`)."""
+    import unicodedata
+
+    base, *marks = unicodedata.normalize("NFD", ch)
+    if base.isascii():
+        word = base
+    else:
+        name = unicodedata.name(base, "")
+        word = name.split()[-1].lower() if name else "x"
+        if "CAPITAL" in name:
+            word = word.capitalize()
+    for mark in marks:
+        mark_name = unicodedata.name(mark, "").replace("COMBINING ", "")
+        word += _MARKS.get(mark_name, mark_name.split()[-1].lower() if mark_name else "")
+    return word
+
 
 def macro_name(cell_name: str) -> str:
     """The LaTeX macro of a cell: ``\\rs`` and the name in CamelCase, letters only.
 
     `adv_rate` → ``\\rsAdvRate``, `m1` → ``\\rsMOne``, `ppn.gamma` → ``\\rsPpnGamma``,
-    `ω_dot` → ``\\rsOmegaDot`` (other letters by their Unicode name), digits spelled out.
+    `ω_dot` → ``\\rsOmegaDot`` (other letters by their Unicode name), `Ṗb` → ``\\rsPdotB``
+    (a diacritic spelled after its letter), digits spelled out.
     """
     import unicodedata
 
     parts: list[str] = []
     word = ""
-    for ch in cell_name:
+    for ch in unicodedata.normalize("NFC", cell_name):
         if ch.isascii() and ch.isalpha():
             word += ch
-        elif ch.isdigit():
+            continue
+        if unicodedata.category(ch).startswith("M"):   # a combining mark after a letter
+            mark = _letter_word("a" + ch)[1:]
             if word:
-                parts.append(word)
-            word = ""
+                word += mark
+            elif parts:
+                parts[-1] += mark
+            continue
+        if word:
+            parts.append(word)
+        word = ""
+        if ch.isdigit():
             parts.append(_DIGITS[int(ch)] if ch.isascii() else "")
         elif ch.isalpha():
-            if word:
-                parts.append(word)
-            word = ""
-            parts.append(unicodedata.name(ch, "X").split()[-1].lower())
-        else:
-            if word:
-                parts.append(word)
-            word = ""
+            parts.append(_letter_word(ch))   # a word of its own: `Ṗb` → Pdot, B
     if word:
         parts.append(word)
     return "\\rs" + "".join(p[:1].upper() + p[1:] for p in parts if p)
 
 
-def _siunitx_unit(unit) -> str:
-    """astropy's generic unit string in siunitx's literal form (`m3 / s2` → `m^3/s^2`)."""
-    import re
+#: astropy unit names and the siunitx (v3) macros that write them.
+_SIUNITX = {
+    "m": r"\metre", "g": r"\gram", "s": r"\second", "K": r"\kelvin", "A": r"\ampere",
+    "mol": r"\mole", "cd": r"\candela", "Hz": r"\hertz", "N": r"\newton", "J": r"\joule",
+    "W": r"\watt", "Pa": r"\pascal", "C": r"\coulomb", "V": r"\volt", "T": r"\tesla",
+    "Ohm": r"\ohm", "rad": r"\radian", "sr": r"\steradian", "deg": r"\degree",
+    "arcmin": r"\arcminute", "arcsec": r"\arcsecond", "min": r"\minute", "h": r"\hour",
+    "d": r"\day", "t": r"\tonne", "eV": r"\electronvolt", "AU": r"\astronomicalunit",
+    "au": r"\astronomicalunit", "%": r"\percent", "L": r"\litre", "l": r"\litre",
+    "bar": r"\bar", "u": r"\dalton",
+}
+#: Units siunitx does not know: declared in the macro file (\DeclareSIUnit), as printed.
+_DECLARED = {
+    "yr": ("year", "yr"), "century": ("century", "century"), "pc": ("parsec", "pc"),
+    "lyr": ("lightyear", "ly"), "lsec": ("lightsecond", "lt-s"), "solMass": ("solarmass", r"M_\odot"),
+    "solRad": ("solarradius", r"R_\odot"), "earthMass": ("earthmass", r"M_\oplus"),
+    "earthRad": ("earthradius", r"R_\oplus"), "jupiterMass": ("jupitermass", r"M_J"),
+    "jupiterRad": ("jupiterradius", r"R_J"), "cycle": ("cycle", "cycle"), "ppm": ("ppm", "ppm"),
+    "ppb": ("ppb", "ppb"), "mas": ("milliarcsecond", "mas"), "uas": ("microarcsecond", r"\micro as"),
+    "Jy": ("jansky", "Jy"), "wk": ("week", "wk"), "fortnight": ("fortnight", "fortnight"),
+    "lsec ": ("lightsecond", "lt-s"),
+}
+_PREFIXES = {"Y": "yotta", "Z": "zetta", "E": "exa", "P": "peta", "T": "tera", "G": "giga",
+             "M": "mega", "k": "kilo", "h": "hecto", "da": "deca", "d": "deci", "c": "centi",
+             "m": "milli", "u": "micro", "n": "nano", "p": "pico", "f": "femto", "a": "atto",
+             "z": "zepto", "y": "yocto"}
+_POWERS = {2: r"\squared", 3: r"\cubed"}
 
-    text = unit_string(unit)
-    if text == "%":
-        return "\\percent"
-    text = re.sub(r"([A-Za-z])(-?\d+(\.\d+)?)", r"\1^{\2}", text)
-    text = text.replace(" / ", "/").replace("(", "").replace(")", "").replace(" ", ".")
-    return text
+
+def _siunitx_base(name: str, declared: dict[str, str]) -> str:
+    """One unit name (perhaps prefixed: `km`, `us`, `Mpc`) as siunitx macros."""
+    if name in _SIUNITX:
+        return _SIUNITX[name]
+    if name in _DECLARED:
+        macro, text = _DECLARED[name]
+        declared[macro] = text
+        return "\\" + macro
+    for prefix in sorted(_PREFIXES, key=len, reverse=True):
+        rest = name[len(prefix):]
+        if name.startswith(prefix) and rest and (rest in _SIUNITX or rest in _DECLARED):
+            return f"\\{_PREFIXES[prefix]}" + _siunitx_base(rest, declared)
+    macro = "rsunit" + "".join(c for c in macro_name(name)[3:] if c.isalpha())
+    declared[macro] = "\\text{" + "".join(c for c in name if c.isalnum()) + "}"
+    return "\\" + macro
+
+
+def siunitx_unit(unit, declared: dict[str, str]) -> str:
+    """A unit as siunitx macros: `\\kilo\\metre\\per\\second`, `\\degree\\per\\year`; units
+    siunitx lacks are added to ``declared`` (macro → text) for \\DeclareSIUnit lines."""
+    if unit == u.percent:
+        return r"\percent"
+    bases = getattr(unit, "bases", [unit])
+    powers = getattr(unit, "powers", [1])
+    out = []
+    for base, power in sorted(zip(bases, powers), key=lambda bp: bp[1] < 0):
+        macro = _siunitx_base(base.to_string(), declared)
+        size = abs(power)
+        if power < 0:
+            macro = r"\per" + macro
+        if size != 1:
+            macro += _POWERS.get(size, f"\\tothe{{{size:g}}}") if float(size).is_integer() \
+                else f"\\tothe{{{size:g}}}"
+        out.append(macro)
+    scale = getattr(unit, "scale", 1.0)
+    text = "".join(out)
+    return f"{scale:g}{text}" if scale != 1 else text
+
+
+def _tex_number(s: Shown) -> str:
+    """A value (± σ) in siunitx's input form: `1.4380 \\pm 0.0010 e30`."""
+    if s.sigma is None:
+        return format_magnitude(s.value, 6)
+    text = format_quantity(s)[0].replace("%", "")
+    if " × 1e" in text:
+        text, exponent = text.split(" × 1e")
+        return text.strip("()").replace(" ± ", r" \pm ") + f" e{exponent}"
+    return text.replace(" ± ", r" \pm ")
+
+
+def _tex_comment(text: str) -> str:
+    """Text safe on a LaTeX comment line (no line break can end the comment)."""
+    return "".join(" " if not ch.isprintable() else ch for ch in text)
 
 
 def to_tex(sheet: Sheet) -> str:
-    """One ``\\newcommand`` per cell: ``\\qty{value}{unit}`` (siunitx), ``\\num`` when
-    dimensionless, ``\\pm`` for uncertainties; arrays and records are left out with a
-    comment. Two cells with the same macro name are an error naming both."""
+    """One ``\\newcommand`` per cell: ``\\qty{value}{unit}`` (siunitx, units as its macros),
+    ``\\num`` when dimensionless, ``\\pm`` for uncertainties; arrays and records are left out
+    with a comment. Two cells with the same macro name are an error naming both."""
     from ..errors import SheetError
 
     seen: dict[str, str] = {}
-    lines = [f"% relsheet: {sheet.source.label} (constants {', '.join(sheet.selection.names)})",
-             "% needs \\usepackage{siunitx}"]
+    declared: dict[str, str] = {}
+    body: list[str] = []
     for cell in sheet.cells:
         name = macro_name(cell.name)
         if name in seen:
@@ -283,11 +423,14 @@ def to_tex(sheet: Sheet) -> str:
         if not isinstance(s, Shown) or np.ndim(s.value) != 0:
             what = "failed" if s is None else "is an array" if isinstance(s, Shown) \
                 else "is a record"
-            lines.append(f"% {cell.name} {what}: no macro")
+            body.append(f"% {_tex_comment(cell.name)} {what}: no macro")
             continue
-        number = format_quantity(s)[0] if s.sigma is not None else format_magnitude(s.value, 6)
-        number = number.replace(" ± ", " \\pm ").replace("(", "").replace(")", "")
-        unit = _siunitx_unit(s.unit)
-        body = f"\\qty{{{number}}}{{{unit}}}" if unit else f"\\num{{{number}}}"
-        lines.append(f"\\newcommand{{{name}}}{{{body}}}")
-    return "\n".join(lines) + "\n"
+        number = _tex_number(s)
+        unit = siunitx_unit(s.unit, declared) if s.unit != u.dimensionless_unscaled else ""
+        command = f"\\qty{{{number}}}{{{unit}}}" if unit else f"\\num{{{number}}}"
+        body.append(f"\\newcommand{{{name}}}{{{command}}}")
+    lines = [f"% relsheet: {_tex_comment(sheet.source.label)} "
+             f"(constants {', '.join(sheet.selection.names)})",
+             "% needs \\usepackage{siunitx} (version 3)"]
+    lines += [f"\\DeclareSIUnit{{\\{macro}}}{{{text}}}" for macro, text in sorted(declared.items())]
+    return "\n".join(lines + body) + "\n"

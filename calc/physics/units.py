@@ -167,11 +167,14 @@ def _power_text(power) -> str:
 
 @lru_cache(maxsize=4096)
 def physical_type(unit: u.UnitBase) -> str:
+    """The dimension of a unit in words: `length`, `angular frequency` (the first of
+    astropy's names where it has several), `dimension m^2 kg^3` where it has none."""
     kind = str(unit.physical_type)
     if kind == "unknown":
         base = unit.decompose()
-        return f"dimension {base.to_string()}" if base.bases else "dimensionless"
-    return kind
+        return f"dimension {unit_text(u.CompositeUnit(1, base.bases, base.powers))}" \
+            if base.bases else "dimensionless"
+    return kind.split("/")[0]
 
 
 def describe(unit: u.UnitBase) -> str:
