@@ -39,6 +39,8 @@ class Imports:
 
     root: Path
     sheets: dict[ImportKey, Sheet] = field(default_factory=dict)
+    #: the uncertain inputs of all these sheets (see `compile.InputTable`)
+    inputs: dict = field(default_factory=dict)
 
 
 @dataclass

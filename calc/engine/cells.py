@@ -21,7 +21,7 @@ from ..errors import CycleError, InternalError, SheetError, Source, Span
 from ..language.scope import Scope, ppn_parameter
 from ..language.syntax import CellDef, Expr
 from .checks import CheckProgram, CheckResult, compile_check, run_check
-from .compile import ConstantInputs, compile_cell
+from .compile import InputTable, compile_cell
 from .context import context
 from .graph import DependencyGraph
 from .run import CellProgram, Env, failed_input, run_cell
@@ -68,9 +68,9 @@ class Cell:
 class Cells:
     """The compiled cells of one sheet, their order and their values."""
 
-    def __init__(self, scope: Scope, constant_inputs: ConstantInputs) -> None:
+    def __init__(self, scope: Scope, inputs: InputTable) -> None:
         self.scope = scope
-        self.constant_inputs = constant_inputs
+        self.inputs = inputs
         self.cells: dict[str, Cell] = {}
         #: definitions as the file has them (for revert and for saving what-ifs)
         self.original: dict[str, CellDef] = {}
@@ -99,7 +99,7 @@ class Cells:
             # a PPN parameter is a plain number
             keep = (u.dimensionless_unscaled, definition.expr.span)
         return compile_cell(definition, self.scope, source, display_unit=keep,
-                            constant_inputs=self.constant_inputs)
+                            inputs=self.inputs)
 
     def compile_all(self, check_definitions: Iterable, source: Source) -> None:
         """Compile every cell and check, order them, and evaluate everything once."""
@@ -110,7 +110,7 @@ class Cells:
         self.reorder()
         for name in self.order:
             self.compute(name)
-        self.check_programs = [compile_check(d, self.scope, source, self.constant_inputs)
+        self.check_programs = [compile_check(d, self.scope, source, self.inputs)
                                for d in check_definitions]
         self.run_checks()
 
@@ -273,7 +273,7 @@ class Cells:
     def evaluate(self, definition: CellDef, source: Source):
         """The value of an expression in this sheet's scope, without adding a cell."""
         program = compile_cell(definition, self.scope, source,
-                               constant_inputs=self.constant_inputs)
+                               inputs=self.inputs)
         if program.error is not None:
             raise program.error
         failed = [d for d in program.deps if self.cells[d].error is not None]

@@ -26,7 +26,7 @@ from ..errors import SheetError, Source, UnitError
 from ..language.scope import Scope
 from ..language.syntax import CellDef, Chain, CheckDef, Name, Number, Percent
 from ..physics.units import describe, value_in
-from .compile import ConstantInputs, compile_cell
+from .compile import InputTable, compile_cell
 from .run import CellProgram, Env, failed_input, run_cell
 from .uncertain import Uncertain
 from .values import CONTAINERS, Shown, shown
@@ -80,13 +80,13 @@ def _side(expr, name: str, definition: CheckDef) -> CellDef:
 
 
 def compile_check(definition: CheckDef, scope: Scope, source: Source,
-                  constant_inputs: ConstantInputs | None = None) -> CheckProgram:
+                  inputs: InputTable | None = None) -> CheckProgram:
     line = definition.span.line
     text = source.between(definition.span)
 
     def side(expr, name: str) -> CellProgram:
         return compile_cell(_side(expr, f"check {line} ({name})", definition), scope, source,
-                            constant_inputs=constant_inputs)
+                            inputs=inputs)
 
     left, right = side(definition.left, "left"), side(definition.right, "right")
     tol = definition.tolerance

@@ -207,33 +207,57 @@ def _is_unit_item(node) -> bool:
 
 
 @dataclass
-class ConstantInputs:
-    """Under ``constants … uncertain``: the input of each named constant with a published
-    uncertainty, made once per sheet however often the constant is used."""
+class InputTable:
+    """Where a sheet's compiled cells get their uncertain inputs.
 
-    enabled: bool = False
-    made: dict[str, tuple[Input, ...]] = field(default_factory=dict)
+    An input written once in a file is one input wherever that file is imported and however
+    its other cells are overridden (`use "body.sheet" as p1 with a = …` four times shares the
+    body's `M ± σ`), so ``shared`` — one dict for a top sheet and all it imports — keys
+    inputs by file, place and value. Under ``constants … uncertain`` each named constant with
+    a published uncertainty is one input for all of them. ``prefix`` names inputs of an
+    imported sheet with its namespace in σ budgets (`sys.M_star`)."""
 
-    def input_for(self, scope: Scope, name: str) -> tuple[Input, ...] | None:
-        if not self.enabled:
+    uncertain_constants: bool = False
+    prefix: str = ""
+    shared: dict = field(default_factory=dict)
+
+    def constant(self, scope: Scope, name: str) -> tuple[Input, ...] | None:
+        if not self.uncertain_constants:
             return None
         entry = scope.constants.get(name)
         if entry is None or not entry.uncertainty:
             return None
-        inputs = self.made.get(name)
+        key = ("constant", name, scope.selection)
+        inputs = self.shared.get(key)
         if inputs is None:
             sigma = u.Quantity(entry.uncertainty, entry.quantity.unit)
-            inputs = self.made[name] = (Input(f"const.{name}", entry.quantity, sigma),)
+            inputs = self.shared[key] = (Input(f"const.{name}", entry.quantity, sigma),)
         return inputs
+
+    def literal(self, source: Source, span: Span, name: str, nominal: u.Quantity,
+                sigma: u.Quantity) -> tuple[Input, ...]:
+        """The inputs of a `±` literal (none when σ is zero)."""
+        if source.path is None:   # typed at a prompt or given to --set: new every time
+            return make_inputs(self.prefix + name, nominal, sigma)
+        key = ("literal", source.path, span, _fingerprint(nominal), _fingerprint(sigma))
+        inputs = self.shared.get(key)
+        if inputs is None:
+            inputs = self.shared[key] = make_inputs(self.prefix + name, nominal, sigma)
+        return inputs
+
+
+def _fingerprint(q: u.Quantity) -> tuple:
+    """A hashable form of a literal's value (the same text evaluates to the same numbers)."""
+    return (str(q.unit), np.asarray(q.value, dtype=float).tobytes())
 
 
 class _Compiler:
     def __init__(self, scope: Scope, source: Source, cell_name: str = "",
-                 constant_inputs: ConstantInputs | None = None) -> None:
+                 inputs: InputTable | None = None) -> None:
         self.scope = scope
         self.source = source
         self.cell_name = cell_name
-        self.constant_inputs = constant_inputs or ConstantInputs()
+        self.inputs = inputs or InputTable()
         self.inputs_made = 0
         self.deps: dict[str, Span] = {}
         self.looked_up: set[str] = set()
@@ -251,7 +275,7 @@ class _Compiler:
             return Const(resolved.unit)
         if resolved.kind == "cell":
             return self.cell_ref(resolved.cell, span)
-        inputs = self.constant_inputs.input_for(self.scope, resolved.name) if resolved.name \
+        inputs = self.inputs.constant(self.scope, resolved.name) if resolved.name \
             else None
         if inputs is not None:
             return _input_code(inputs, resolved.value, inputs[0].sigma)
@@ -325,7 +349,7 @@ class _Compiler:
         self.inputs_made += 1
         name = self.cell_name if self.inputs_made == 1 else f"{self.cell_name} ({self.inputs_made})"
         try:
-            inputs = make_inputs(name, nominal_value, sigma_value)
+            inputs = self.inputs.literal(self.source, node.span, name, nominal_value, sigma_value)
         except DomainError as err:
             raise err.located(node.span) from None
         if not inputs:
@@ -631,13 +655,13 @@ class _Compiler:
 
 def compile_cell(definition: CellDef, scope: Scope, source: Source,
                  display_unit: tuple[u.UnitBase, Span] | None = None,
-                 constant_inputs: ConstantInputs | None = None) -> CellProgram:
+                 inputs: InputTable | None = None) -> CellProgram:
     """Compile a cell; a compile error (unknown name, folded unit mismatch) is kept on it.
     Runs inside an evaluation context (constant subexpressions are computed now).
 
     ``display_unit`` (unit, span) applies when the definition has no ``in`` of its own.
     """
-    compiler = _Compiler(scope, source, definition.name, constant_inputs)
+    compiler = _Compiler(scope, source, definition.name, inputs)
     program = CellProgram(definition, source)
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
@@ -667,7 +691,7 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
             program.constant = finish(program, code.value)
             if not all_finite(program.constant):
                 again = _Compiler(compiler.scope, compiler.source, definition.name,
-                                  compiler.constant_inputs)
+                                  compiler.inputs)
                 program.constant = checked(
                     lambda: finish(program, _constant(again.expr(definition.expr))))
         else:

@@ -304,8 +304,7 @@ def convert(value, unit: u.UnitBase, span: Span):
 def rescaled(value, scale: float, unit: u.UnitBase):
     """A leaf multiplied by ``scale`` and labelled ``unit``."""
     if isinstance(value, Uncertain):
-        return Uncertain(quantity(value.nominal.value * scale, unit),
-                         {k: p * scale for k, p in value.parts.items()})
+        return value.scaled(scale, unit)
     if isinstance(value, Samples):
         return Samples(quantity(value.data.value * scale, unit))
     return quantity(value.value if scale == 1.0 else value.value * scale, unit)

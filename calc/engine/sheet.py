@@ -45,7 +45,7 @@ from . import budget, montecarlo
 from .build import Built, Imports, build, import_sheet
 from .cells import Cell, Cells
 from .checks import CheckResult
-from .compile import ConstantInputs
+from .compile import InputTable
 from .context import EvaluationContext, Progress, entered
 from .values import ShownValue, is_record
 
@@ -78,10 +78,13 @@ class Sheet:
 
     def __init__(self, source: Source, constants: list[str] | None = None,
                  root: str | Path | None = None, *, imports: Imports | None = None,
-                 chain: tuple[Path, ...] = ()) -> None:
+                 chain: tuple[Path, ...] = (), prefix: str = "") -> None:
         """``constants`` (words of a `constants` line) replaces the sheet's own pinning;
-        ``root`` is the folder imports must stay in (default: this sheet's folder)."""
+        ``root`` is the folder imports must stay in (default: this sheet's folder). An
+        imported sheet is made with the ``imports`` of its top sheet, the ``chain`` of files
+        that led to it, and the ``prefix`` of its namespace (`sys.`)."""
         self.source = source
+        self.prefix = prefix
         here = source.path if source.path is not None else (
             None if source.folder is None else Path(source.label).resolve())
         if imports is None:
@@ -117,7 +120,8 @@ class Sheet:
 
     def _import(self, use: UseDef, built: Built) -> Sheet | None:
         def make(source: Source, chain: tuple[Path, ...]) -> Sheet:
-            return Sheet(source, imports=self.imports, chain=chain)
+            return Sheet(source, imports=self.imports, chain=chain,
+                         prefix=f"{self.prefix}{use.namespace}.")
 
         return import_sheet(use, self.source, self.chain, self.imports, make, built.errors)
 
@@ -133,7 +137,8 @@ class Sheet:
         self.context.selection = built.selection
         scope = Scope([c.name for c in built.cells], self.selection,
                       namespaces=self.namespaces, failed_namespaces=built.failed_namespaces)
-        self._cells = Cells(scope, ConstantInputs(self.uncertain_constants))
+        self._cells = Cells(scope, InputTable(self.uncertain_constants, self.prefix,
+                                              self.imports.inputs))
         for cell in built.cells:
             self._cells.add(cell)
         self._cells.fixed_errors.update(built.fixed_errors)

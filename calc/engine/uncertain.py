@@ -57,14 +57,21 @@ Parts = dict[Input, object]
 
 
 class Uncertain:
-    """A nominal Quantity with its contributions {input: ∂y/∂x_i · σ_i} (in its unit)."""
+    """A nominal Quantity with its contributions {input: ∂y/∂x_i · σ_i} (in its unit).
+
+    Contributions found by numerical differentiation carry a bound on their error (``noise``):
+    where contributions of one input cancel (a ratio of two functions of the same mass), what
+    is left below that bound is noise, not uncertainty, and σ leaves it out."""
 
     __array_ufunc__ = None  # numpy and astropy defer to the operators below
-    __slots__ = ("nominal", "parts")
+    __slots__ = ("nominal", "parts", "noise")
 
-    def __init__(self, nominal: u.Quantity, parts: Parts) -> None:
+    def __init__(self, nominal: u.Quantity, parts: Parts, noise: Parts | None = None) -> None:
         self.nominal = nominal
         self.parts = parts
+        #: bounds on the error of contributions found by numerical differentiation, by input,
+        #: in the value's unit (None: exact arithmetic, rounding only)
+        self.noise = noise
 
     @property
     def unit(self) -> u.UnitBase:
@@ -78,15 +85,32 @@ class Uncertain:
     def shape(self) -> tuple[int, ...]:
         return np.shape(self.nominal.value)
 
+    def significant_parts(self) -> Parts:
+        """The contributions, without what is only the noise of numerical differentiation."""
+        noise = self.noise
+        if not noise:
+            return self.parts
+        out: Parts = {}
+        for key, part in self.parts.items():
+            bound = noise.get(key)
+            if bound is None:
+                out[key] = part
+                continue
+            kept = np.where(np.abs(part) > bound, part, 0.0)
+            if np.any(kept):
+                out[key] = kept if np.ndim(kept) else float(kept)
+        return out
+
     def sigma_value(self):
         """σ in the value's unit: the root sum of squares of the contributions, with the
         cross terms of correlated inputs (GUM eq. 13)."""
-        if not self.parts:
+        parts = self.significant_parts()
+        if not parts:
             return np.zeros_like(np.asarray(self.nominal.value, dtype=float))
-        squares = sum(np.square(p) for p in self.parts.values())
-        for a, part in self.parts.items():
+        squares = sum(np.square(p) for p in parts.values())
+        for a, part in parts.items():
             for b, r in a.correlations.items():
-                other = self.parts.get(b)
+                other = parts.get(b)
                 if other is not None:  # each pair twice: 2 r c_a c_b in all
                     squares = squares + r * np.asarray(part) * np.asarray(other)
         return np.sqrt(np.maximum(squares, 0.0))
@@ -96,9 +120,13 @@ class Uncertain:
         return quantity(self.sigma_value(), self.nominal.unit)
 
     def to(self, unit: u.UnitBase) -> Uncertain:
-        scale = conversion_scale(self.nominal.unit, unit)
+        return self.scaled(conversion_scale(self.nominal.unit, unit), unit)
+
+    def scaled(self, scale: float, unit: u.UnitBase) -> Uncertain:
+        """The same value times ``scale``, labelled ``unit`` (a conversion)."""
+        noise = None if self.noise is None else {k: n * abs(scale) for k, n in self.noise.items()}
         return Uncertain(quantity(self.nominal.value * scale, unit),
-                         {k: p * scale for k, p in self.parts.items()})
+                         {k: p * scale for k, p in self.parts.items()}, noise)
 
     # -- arithmetic (first order)
     def __add__(self, other):
@@ -126,7 +154,7 @@ class Uncertain:
         return _div(_lift(other), self)
 
     def __neg__(self):
-        return Uncertain(-self.nominal, {k: -p for k, p in self.parts.items()})
+        return Uncertain(-self.nominal, {k: -p for k, p in self.parts.items()}, self.noise)
 
     def __pos__(self):
         return self
@@ -157,12 +185,20 @@ def _merge(a: Parts, b: Parts, fa, fb) -> Parts:
     return out
 
 
+def _combined(x: Uncertain, y: Uncertain, fa, fb, nominal: u.Quantity) -> Uncertain:
+    """fa·x + fb·y as first-order contributions; noise bounds add up in absolute value."""
+    noise = None
+    if x.noise or y.noise:
+        noise = _merge(x.noise or {}, y.noise or {}, np.abs(fa), np.abs(fb))
+    return Uncertain(nominal, _merge(x.parts, y.parts, fa, fb), noise)
+
+
 def _add(x, y, sign: float):
     x, y = _lift(x), _lift(y)
     result = x.nominal + y.nominal if sign > 0 else x.nominal - y.nominal
     scale = conversion_scale(y.nominal.unit, result.unit) if y.parts else 1.0
     xs = conversion_scale(x.nominal.unit, result.unit) if x.parts else 1.0
-    return Uncertain(result, _merge(x.parts, y.parts, xs, sign * scale))
+    return _combined(x, y, xs, sign * scale, result)
 
 
 def _mul(x, y):
@@ -170,15 +206,14 @@ def _mul(x, y):
     result = x.nominal * y.nominal
     if isinstance(result, u.UnitBase):
         result = quantity(1.0, result)
-    return Uncertain(result, _merge(x.parts, y.parts, np.asarray(y.nominal.value),
-                                    np.asarray(x.nominal.value)))
+    return _combined(x, y, np.asarray(y.nominal.value), np.asarray(x.nominal.value), result)
 
 
 def _div(x, y):
     x, y = _lift(x), _lift(y)
     result = x.nominal / y.nominal
     yv = np.asarray(y.nominal.value)
-    return Uncertain(result, _merge(x.parts, y.parts, 1 / yv, -np.asarray(result.value) / yv))
+    return _combined(x, y, 1 / yv, -np.asarray(result.value) / yv, result)
 
 
 def power(base, exponent):
@@ -196,8 +231,7 @@ def power(base, exponent):
         # p b^(p-1), not p y / b, so that b = 0 with p ≥ 1 stays finite
         factor_b = ev * np.power(bv, np.asarray(ev) - 1) if b.parts else 0.0
         factor_e = rv * np.log(bv) if e.parts else 0.0
-    parts = _merge(b.parts, e.parts, factor_b, factor_e)
-    return Uncertain(result, parts)
+    return _combined(b, e, factor_b, factor_e, result)
 
 
 # ---- inputs ----------------------------------------------------------------------
@@ -244,7 +278,12 @@ def through(function: Callable, values: tuple, *, inputs_of: Callable, shifted: 
     """Call ``function`` on uncertain arguments: the nominal result, and contributions by
     numerical differentiation (central differences; one-sided where the other side leaves the
     domain). The value protocol (:mod:`calc.engine.values`) supplies how each kind is moved and
-    compared, so records and arrays of any kind pass through the same code."""
+    compared, so records and arrays of any kind pass through the same code.
+
+    Each contribution comes with a bound on its error (``assemble`` receives (contribution,
+    bound)): the rounding of the function values, 4ε|f| over the step, and the truncation
+    of the difference, 1e-6 of the contribution for central differences (the step is 1e-6
+    of the argument; the error goes with its square) and 1e-3 for one-sided ones."""
     nominals = tuple(shifted(v, None, 0.0) for v in values)
     result = function(*nominals)
     keys: dict[Input, None] = {}
@@ -265,11 +304,11 @@ def through(function: Callable, values: tuple, *, inputs_of: Callable, shifted: 
         except (ArgumentError, DomainError):
             pass
         if plus is not None and minus is not None:
-            parts_by_key[key] = difference(plus, minus, 1 / (2 * t))
+            parts_by_key[key] = (difference(plus, minus, 1 / (2 * t)), 1e-6, t)
         elif plus is not None:
-            parts_by_key[key] = difference(plus, result, 1 / t)
+            parts_by_key[key] = (difference(plus, result, 1 / t), 1e-3, t)
         elif minus is not None:
-            parts_by_key[key] = difference(result, minus, 1 / t)
+            parts_by_key[key] = (difference(result, minus, 1 / t), 1e-3, t)
         else:
             raise DomainError("the uncertainty moves this function's arguments out of its domain")
     return assemble(result, parts_by_key)

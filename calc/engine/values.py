@@ -33,7 +33,7 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import DomainError
-from ..physics.records import Record, RecordList
+from ..physics.records import Record, RecordList, is_date
 from ..physics.units import quantity
 from . import uncertain
 from .context import context
@@ -177,16 +177,28 @@ def _difference(plus, minus, scale: float):
 
 
 def _assemble(result, parts_by_key: dict):
-    """A result with the contributions found by differentiation attached, leaf by leaf."""
+    """A result with the contributions found by differentiation attached, leaf by leaf, each
+    with its error bound (``parts_by_key``: input → (difference, truncation, step))."""
     if isinstance(result, Record):
         fields = {}
         for name, q in result.fields.items():
-            fields[name] = _assemble(q, {k: d[name] for k, d in parts_by_key.items()})
+            fields[name] = _assemble(q, {k: (d[name], trunc, t)
+                                         for k, (d, trunc, t) in parts_by_key.items()})
         return Record(result.kind, fields, result.label)
     if isinstance(result, RecordList):
-        return RecordList(tuple(_assemble(r, {k: d[i] for k, d in parts_by_key.items()})
+        return RecordList(tuple(_assemble(r, {k: (d[i], trunc, t)
+                                              for k, (d, trunc, t) in parts_by_key.items()})
                                 for i, r in enumerate(result.items)))
-    return Uncertain(result, parts_by_key)
+    if is_date(result):
+        return result
+    magnitude = np.abs(np.asarray(result.value, dtype=float))
+    parts = {k: d for k, (d, _, _) in parts_by_key.items()}
+    noise = {k: 4 * _EPS * magnitude / t + truncation * np.abs(d)
+             for k, (d, truncation, t) in parts_by_key.items()}
+    return Uncertain(result, parts, noise)
+
+
+_EPS = float(np.finfo(float).eps)
 
 
 # ---- functions over values ------------------------------------------------------------------
