@@ -1,4 +1,4 @@
-"""calc.interfaces.repl: a real PromptSession driven through a pipe, the completer, :write, the lexer."""
+"""calc.interfaces.repl: a real PromptSession driven through a pipe, the completer, :save, the lexer."""
 
 from __future__ import annotations
 
@@ -56,15 +56,17 @@ def test_expressions_errors_and_recovery(sheet_path):
 def test_revert(sheet_path):
     session = Session(sheet_path)
     session.handle("m1 = 2 Msun")
-    assert session.handle(":revert m1") == "m1 = 1.35 solMass  (from the file)"
+    # the revert says what came back: the cell and what moved with it
+    assert session.handle(":revert m1").splitlines() == [
+        "m1 = 1.35 solMass  (from the file)", "w: 2.0933 deg / yr → 1.80395 deg / yr"]
     assert session.unsaved == []
 
 
-def test_write_round_trip_keeps_other_lines(sheet_path):
+def test_save_round_trip_keeps_other_lines(sheet_path):
     session = Session(sheet_path)
     session.handle("m2 = 1.3 Msun")
     session.handle("total = m1 + m2")
-    assert session.handle(":write") == f"wrote {sheet_path} (2 changes)"
+    assert session.handle(":save") == f"saved {sheet_path} (2 changes)"
     text = sheet_path.read_text()
     assert text == SHEET.replace("m2 = 1.25 Msun", "m2 = 1.3 Msun") + "total = m1 + m2\n"
     assert "# the pulsar" in text
@@ -79,7 +81,7 @@ def test_commands(sheet_path):
     assert "m1" in session.handle(":users m1").splitlines()[0]
     assert session.handle(":deps nope").startswith("<sheet>: no cell `nope`")
     assert session.handle(":funcs deflection").startswith("deflection(M, b, gamma=…)")
-    assert ":write" in session.handle(":help")
+    assert ":save" in session.handle(":help")
     assert session.handle(":nonsense").startswith("unknown command `:nonsense`")
 
 
@@ -97,13 +99,13 @@ def test_completion_candidates(sheet_path):
     assert "const.GM_sun" in texts("x = const.GM")
     assert texts("x = ppn.g") == ["ppn.gamma"]
     assert "Msun" in texts("x = 3 Ms")
-    assert texts(":wr") == [":write"]
+    assert texts(":sa") == [":save"]
 
 
 def test_session_without_a_file():
     session = Session()
     assert session.handle("a = 2 km") == "a = 2 km  (new cell)"
-    assert session.handle(":write").startswith("<sheet>: :write needs a file name")
+    assert session.handle(":save").startswith("<sheet>: :save needs a file name")
 
 
 @pytest.mark.parametrize("path", DEMOS, ids=[p.name for p in DEMOS])
@@ -129,19 +131,20 @@ def test_revert_ppn_typed_at_the_prompt_returns_to_general_relativity(tmp_path):
     path.write_text("a = deflection(1 Msun, 1 Rsun)\n")
     session = Session(path)
     session.handle("ppn gamma = 0")
-    assert session.handle(":revert") == "ppn.gamma = 1  (general relativity)"
+    assert session.handle(":revert").splitlines() == [
+        "ppn.gamma = 1  (general relativity)", "a: 0.875595 arcsec → 1.75119 arcsec"]
     assert session.handle("a") == "1.75119 arcsec"
-    session.handle(":write")
+    session.handle(":save")
     assert "ppn" not in path.read_text()
 
 
-def test_write_ppn_lines(tmp_path):
+def test_save_ppn_lines(tmp_path):
     path = tmp_path / "p.sheet"
     path.write_text("ppn beta = 1\na = periapsis_advance(1 Msun, 1 AU, 0.1)\n")
     session = Session(path)
     session.handle("ppn beta = 0.9")
     session.handle("ppn gamma = 1.1")
-    session.handle(":write")
+    session.handle(":save")
     assert path.read_text() == ("ppn beta = 0.9\na = periapsis_advance(1 Msun, 1 AU, 0.1)\n"
                                 "ppn gamma = 1.1\n")
     assert Sheet.load(path).ok

@@ -38,7 +38,7 @@ from ..errors import (
 from ..files import read_sheet
 from ..language.parse import parse_expression
 from ..language.scope import Scope
-from ..language.syntax import CellDef, Expr, Note, UseDef
+from ..language.syntax import CellDef, CheckDef, Expr, Note, UseDef
 from ..physics.constants import ConstantSelection
 from ..physics.units import conversion_scale, physical_type, unit_table, unit_text
 from . import budget, montecarlo
@@ -155,12 +155,51 @@ class Sheet:
         :class:`~calc.errors.SheetSyntaxError` and changes nothing.
         """
         source = Source(label or f"--set {name}", text)
+        namespace, _, inner = name.partition(".")
+        if inner and namespace in self.namespaces and name not in self:
+            # a cell of an imported sheet: that sheet re-evaluates with the override, then every
+            # sheet that imports it (this one among them) refreshes the cells that read it
+            imported = self.namespaces[namespace]
+            imported.set(inner, text, label)
+            return self._refresh_importers_of(imported)
         with numeric_context(), entered(self.context):
             line = parse_expression(text, source)
             self._same_dimension(name, line, source)
             changed = self._cells.assign(name, line.expr, line.unit, source)
             self._cells.run_checks()
             return changed
+
+    def _refresh_importers_of(self, changed: Sheet) -> list[Cell]:
+        """After ``changed`` (a sheet imported somewhere below this one) took an override:
+        recompile and recompute, in every sheet from the imports up to this one, the cells
+        that read a namespace bound to a sheet that changed; returns this sheet's changed
+        cells."""
+        from .montecarlo import imports_first
+
+        moved = {id(changed)}
+        mine: list[Cell] = []
+        for each in imports_first(self):
+            if id(each) in moved:
+                continue
+            namespaces = [ns for ns, sheet in each.namespaces.items() if id(sheet) in moved]
+            if not namespaces:
+                continue
+            cells = each.engine
+            with numeric_context(), entered(each.context):
+                forced: set[str] = set()
+                for namespace in namespaces:
+                    for name in cells.seeing(namespace):
+                        cells.recompile(name)
+                        forced.add(name)
+                if cells.reorder():
+                    forced |= set(cells.cells)
+                changed_cells = cells.propagate(forced)
+                cells.run_checks()
+            if changed_cells:
+                moved.add(id(each))
+            if each is self:
+                mine = changed_cells
+        return mine
 
     def _same_dimension(self, name: str, line, source: Source) -> None:
         """An override keeps a cell's dimension: `--set omdot=4.2 deg` where the sheet has
@@ -196,7 +235,12 @@ class Sheet:
 
     def revert(self, name: str) -> list[Cell]:
         """Give cell ``name`` back the definition it has in the file (KeyError if the file
-        has none)."""
+        has none); `ns.name` reverts a cell of an imported sheet."""
+        namespace, _, inner = name.partition(".")
+        if inner and namespace in self.namespaces and name not in self:
+            imported = self.namespaces[namespace]
+            imported.revert(inner)
+            return self._refresh_importers_of(imported)
         definition = self._cells.original.get(name)
         if definition is None:
             raise KeyError(name)
@@ -205,6 +249,23 @@ class Sheet:
                                          definition.span)
             self._cells.run_checks()
             return changed
+
+    def judge(self, text: str, label: str = "<check>") -> CheckResult:
+        """Judge a `check` line (typed at a prompt) against the current values, without
+        adding it to the sheet. Raises SheetError when it does not parse."""
+        from ..language.parse import parse_prompt_line
+        from .checks import compile_check, run_check
+
+        source = Source(label, text)
+        with numeric_context(), entered(self.context):
+            definition = parse_prompt_line(text, source)
+            if not isinstance(definition, CheckDef):
+                raise UnitError("not a check: write `check a == b within 1%` or an order "
+                                "such as `check a < b`", Span(1, 1, 1, len(text) + 1),
+                                source=source)
+            program = compile_check(definition, self._cells.scope, source, self._cells.inputs)
+            failed = {n for n, c in self._cells.cells.items() if c.error is not None}
+            return run_check(program, self._cells.values, failed)
 
     def file_definition(self, name: str) -> CellDef | None:
         """The definition cell ``name`` has in the file (None for a cell added since)."""
@@ -300,8 +361,23 @@ class Sheet:
             raise cell.error
         return cell.raw
 
-    def names(self) -> list[str]:
-        return list(self._cells.cells)
+    def names(self, imported: bool = False) -> list[str]:
+        """The cell names, in file order; with ``imported``, the imported sheets' cells too
+        (`sys.M_star`)."""
+        names = list(self._cells.cells)
+        if imported:
+            for namespace, sheet in self.namespaces.items():
+                names += [f"{namespace}.{n}" for n in sheet.names(imported=True)]
+        return names
+
+    def can_set(self, name: str) -> bool:
+        """Whether ``name`` is a cell a what-if can change: one of this sheet's, or one of an
+        imported sheet's (`sys.M_star`)."""
+        if name in self:
+            return True
+        namespace, _, inner = name.partition(".")
+        return bool(inner) and namespace in self.namespaces and \
+            self.namespaces[namespace].can_set(inner)
 
     def unit_names(self) -> list[str]:
         """Every unit name a cell of this sheet can use."""

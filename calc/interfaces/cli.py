@@ -211,9 +211,9 @@ def _apply_overrides(sheet, overrides: list[str]) -> None:
         name = name.strip()
         if not sep or not name:
             raise UsageError(f"--set takes NAME=EXPR, got `{item}`", hint="for example --set a=2 AU")
-        if name not in sheet and name not in [ppn_cell(p) for p in PPN_PARAMETERS]:
+        if not sheet.can_set(name) and name not in [ppn_cell(p) for p in PPN_PARAMETERS]:
             raise UsageError(f"--set: the sheet has no cell `{name}`",
-                             hint=did_you_mean(close_matches(name, sheet.names())))
+                             hint=did_you_mean(close_matches(name, sheet.names(imported=True))))
         sheet.set(name, expr.strip(), label=f"--set {name}")
 
 
@@ -478,7 +478,7 @@ def cmd_units(args) -> int:
 def cmd_repl(args) -> int:
     from .repl import run
 
-    return run(args.file)
+    return run(args.file, debug=getattr(args, "debug", False))
 
 
 def cmd_funcs(args) -> int:

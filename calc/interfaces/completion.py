@@ -12,9 +12,39 @@ from ..physics import functions
 from ..physics.constants import constant_table
 
 _WORD = re.compile(r"[\w.]*$")
-_COMMANDS = ["cells", "deps", "users", "revert", "write", "funcs", "help", "quit"]
+_COMMANDS = ["cells", "deps", "users", "revert", "save", "funcs", "help", "quit"]
 #: At most this many unit names are offered for one prefix (astropy knows thousands).
 MAX_UNITS = 40
+
+
+#: Units the trade writes most; they come first among the units a prefix matches (`y` offers
+#: `yr` before the yocto-units).
+_COMMON_UNITS = ("yr", "d", "s", "h", "min", "day", "year", "km", "m", "AU", "au", "pc", "kpc",
+                 "Mpc", "deg", "rad", "arcsec", "mas", "uas", "Msun", "Rsun", "Mearth",
+                 "Rearth", "Mjup", "Rjup", "kg", "lsec", "lyr", "century", "Hz", "GHz", "MHz",
+                 "us", "ns", "ms", "ppm", "ppb", "cycle")
+_PREFIXES = ("y", "z", "a", "f", "p", "n", "u", "m", "c", "d", "da", "h", "k", "M", "G", "T",
+             "P", "E", "Z", "Y")
+
+
+def _unit_rank(name: str, names: set[str]) -> tuple:
+    """Common units first, then plain names before prefixed ones (`yA` is the yocto-ampere),
+    then shorter names."""
+    common = name in _COMMON_UNITS
+    prefixed = any(name.startswith(p) and name[len(p):] in names for p in _PREFIXES)
+    return (not common, _COMMON_UNITS.index(name) if common else 0, prefixed, len(name), name)
+
+
+def _fields(sheet, name: str) -> list[tuple[str, str]]:
+    """The fields of a record cell (`venus.` offers `venus.a`, `venus.e`, …)."""
+    from ..engine.values import ShownRecord, shown
+
+    if name not in sheet or sheet.cell(name).error is not None:
+        return []
+    value = shown(sheet.cell(name).raw)
+    if not isinstance(value, ShownRecord):
+        return []
+    return [(field, f"field of the {value.kind} record") for field in value.fields]
 
 
 class SheetCompleter(Completer):
@@ -46,7 +76,8 @@ class SheetCompleter(Completer):
             if imported is not None:
                 return [(f"{head}.{n}", f"cell of {imported.source.label}")
                         for n in imported.names() if n.startswith(rest)]
-            return []
+            return [(f"{head}.{field}", meta) for field, meta in _fields(sheet, head)
+                    if field.startswith(rest)]
         if not word:
             return []
         found: list[tuple[str, str]] = []
@@ -57,7 +88,9 @@ class SheetCompleter(Completer):
         table = constant_table(sheet.selection)
         found += [(n, f"constant: {e.description}") for n, e in sorted(table.items())
                   if n.startswith(word) and n not in sheet.names()]
-        units = sorted({n for n in sheet.unit_names() if n.startswith(word)})
+        every = set(sheet.unit_names())
+        units = sorted({n for n in every if n.startswith(word)},
+                       key=lambda n: _unit_rank(n, every))
         found += [(n, "unit") for n in units[:MAX_UNITS]]
         seen: set[str] = set()
         unique = []

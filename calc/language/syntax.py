@@ -481,8 +481,10 @@ class NodeBuilder(Transformer):
         unit = items[1] if len(items) > 1 else None
         return ExpressionLine(expr, unit, expr.span if unit is None else expr.span.to(unit.span))
 
+    imported_cell = cell
+
     def prompt_input(self, children):
         items = [c for c in children if c is not None and not isinstance(c, Token)]
-        if isinstance(items[0], (CellDef, PPNDef)):
+        if isinstance(items[0], (CellDef, PPNDef, CheckDef)):
             return items[0]
         return self.expression_input(items)

@@ -97,7 +97,8 @@ def dependency_tree(sheet: Sheet, name: str, users: bool = False) -> str:
         node, depth = stack.pop()
         cell = sheet.cell(node)
         mark = "  (above)" if node in seen else ""
-        lines.append(f"{'  ' * depth}{node}  (line {cell.line}){mark}")
+        where = f"line {cell.line}" if cell.source is sheet.source else "typed at the prompt"
+        lines.append(f"{'  ' * depth}{node}  ({where}){mark}")
         if node in seen:
             continue
         seen.add(node)
