@@ -129,7 +129,7 @@ def test_expression_input_for_set():
      "t.sheet:1:5: `(` is never closed\n  x = (1 + 2\n      ^\n"
      "  hint: add `)`; inside brackets a statement goes on to the next line"),
     ("x = [1, 2\n",
-     "t.sheet:1:5: `[` is never closed\n  x = [1, 2\n      ^\n  hint: add the closing `]`"),
+     "t.sheet:1:5: `[` is never closed\n  x = [1, 2\n      ^\n  hint: add `]`; inside brackets a statement goes on to the next line"),
     ("x = 1)\n",
      "t.sheet:1:6: `)` closes no open bracket\n  x = 1)\n       ^"),
     ("x = 1 +\n",

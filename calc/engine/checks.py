@@ -22,10 +22,10 @@ from typing import Literal
 import astropy.units as u
 import numpy as np
 
-from ..errors import SheetError, Source, UnitError
+from ..errors import DomainError, SheetError, Source, UnitError
 from ..language.scope import Scope
 from ..language.syntax import CellDef, Chain, CheckDef, Name, Number, Percent
-from ..physics.units import describe, value_in
+from ..physics.units import describe, quantity, value_in
 from .compile import InputTable, compile_cell
 from .run import CellProgram, Env, failed_input, run_cell
 from .uncertain import Uncertain
@@ -132,6 +132,11 @@ def run_check(program: CheckProgram, env: Env, failed: set[str]) -> CheckResult:
                             f"{describe(rv.unit)}", d.span, source=program.left.source) from None
         a = np.asarray(lv.value, dtype=float)
         b = np.asarray(rv_in_left, dtype=float)
+        try:
+            np.broadcast_shapes(a.shape, b.shape)
+        except ValueError:
+            raise DomainError(f"the two sides have different lengths ({a.size} and {b.size})",
+                              d.span, source=program.left.source) from None
         if program.kind == "order":
             ok = {"<": a < b, "<=": a <= b, ">": a > b, ">=": a >= b}[d.op]
             result.passed = bool(np.all(ok))
@@ -159,7 +164,9 @@ def run_check(program: CheckProgram, env: Env, failed: set[str]) -> CheckResult:
         else:
             # sigma: the σ of the difference, correlations included
             if isinstance(left, Uncertain) or isinstance(right, Uncertain):
-                difference = left - right
+                # in the left side's unit (angles and plain numbers interconvert)
+                difference = left - (right.to(lv.unit) if isinstance(right, Uncertain)
+                                     else quantity(rv_in_left, lv.unit))
                 sigma = np.asarray(difference.to(lv.unit).sigma_value()
                                    if isinstance(difference, Uncertain) else 0.0)
                 result.sigma = float(np.max(sigma))

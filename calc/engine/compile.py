@@ -32,7 +32,7 @@ from ..errors import (
     Span,
     UnitError,
 )
-from ..language.scope import PPN_PARAMETERS, Scope, ppn_cell
+from ..language.scope import PPN_PARAMETERS, UNIT_SLOT, Scope, ppn_cell
 from ..language.syntax import (
     ArrayLiteral,
     BinaryOp,
@@ -368,6 +368,9 @@ class _Compiler:
                             node.span) from None
         if np.ndim(e) != 0:
             raise UnitError("a unit's exponent must be a single number", node.span)
+        if not np.isfinite(e):
+            raise UnitError("a unit's exponent must be a finite number", node.span,
+                            hint="the exponent here works out as not a number")
         return float(e)
 
     # -- expressions
@@ -447,18 +450,18 @@ class _Compiler:
     def _juxtaposed(self, chain: Chain, item):
         def spellings() -> tuple[str, str]:
             prefix = self.text(chain.span, item.span)
-            return f"{prefix} * {self.text(item.span)}", f"{prefix} {{unit}}{self._after_name(item)}"
+            return f"{prefix} * {self.text(item.span)}", f"{prefix} {UNIT_SLOT}{self._after_name(item)}"
         return spellings
 
     def _divided(self, node: BinaryOp):
         def spellings() -> tuple[str, str]:
             prefix = self.text(node.span, node.right.span).rstrip("/ ").rstrip()
             return (f"{prefix} / ({self.text(node.right.span)})",
-                    f"{prefix} / {{unit}}{self._after_name(node.right)}")
+                    f"{prefix} / {UNIT_SLOT}{self._after_name(node.right)}")
         return spellings
 
     def _alone(self, node):
-        return lambda: (f"1 * {self.text(node.span)}", "{unit}")
+        return lambda: (f"1 * {self.text(node.span)}", UNIT_SLOT)
 
     def _after_name(self, item) -> str:
         if isinstance(item, NamePower):

@@ -25,6 +25,10 @@ from ..errors import InputError, SheetSyntaxError, Span
 
 #: Brackets nested deeper than this are refused before they reach the parser.
 MAX_BRACKET_DEPTH = 64
+#: A statement longer than this many tokens is refused as it is read (an 8 MB line of
+#: `1+1+…` would otherwise take the parser a minute and gigabytes); data this size belongs in
+#: a table file (`read_table`).
+MAX_STATEMENT_TOKENS = 100_000
 
 _CLOSING = {"LPAR": "RPAR", "LSQB": "RSQB"}
 
@@ -96,14 +100,25 @@ class SheetLexer(Lexer):
         self.group_names = {n.lstrip("_") or n: n for n in _PATTERN_TERMINALS}
         self.open_brackets: list[Token] = []
         self.last: Token | None = None
+        #: the text being lexed starts after this many lines of the file (error recovery
+        #: parses statements one by one and keeps the file's line numbers)
+        self.line_offset = 0
 
     def lex(self, lexer_state, parser_state):
         """Tokens of the text. Inside brackets a newline or comment does not end the statement,
         so those tokens are dropped there; brackets nested absurdly deep are refused, one left
         open is reported at the bracket, and the input always ends with a newline."""
+        count = 0
         for tok in self._tokens(lexer_state):
             kind = tok.type
-            if kind == "LPAR" or kind == "LSQB":
+            count += 1
+            if count > MAX_STATEMENT_TOKENS:
+                raise InputError(f"a statement of more than {MAX_STATEMENT_TOKENS:,} tokens",
+                                 _span(tok), hint="split it into several cells, or put the "
+                                                  "data in a table file (read_table)")
+            if kind == "_NL" and not self.open_brackets:
+                count = 0
+            elif kind == "LPAR" or kind == "LSQB":
                 self.open_brackets.append(tok)
                 if len(self.open_brackets) > MAX_BRACKET_DEPTH:
                     raise InputError(f"brackets nested more than {MAX_BRACKET_DEPTH} deep",
@@ -119,7 +134,8 @@ class SheetLexer(Lexer):
         if self.open_brackets:
             opener = self.open_brackets[-1]
             raise SheetSyntaxError(f"`{opener.value}` is never closed", _span(opener),
-                                   hint=f"add the closing `{')' if opener.value == '(' else ']'}`")
+                                   hint=f"add `{')' if opener.value == '(' else ']'}`; inside brackets a "
+                                        "statement goes on to the next line")
         last = self.last
         if last is not None and last.type != "_NL":
             yield Token("_NL", "\n", start_pos=last.end_pos, line=last.end_line,
@@ -137,7 +153,7 @@ class SheetLexer(Lexer):
         keywords = self.keywords
         operators = self.operators
         names = self.group_names
-        line = 1
+        line = 1 + self.line_offset
         line_start = 0
         while pos < end:
             m = match(text, pos, end)

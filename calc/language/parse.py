@@ -104,7 +104,8 @@ def _expected_words(expected: set[str]) -> str | None:
     return "expected " + " or ".join(words)
 
 
-def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer) -> SheetSyntaxError:
+def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer,
+                  offset: int = 0) -> SheetSyntaxError:
     """Translate a lark exception into a message a sheet author can act on."""
     if isinstance(err, UnexpectedCharacters):
         ch = text[err.pos_in_stream] if err.pos_in_stream < len(text) else ""
@@ -125,9 +126,10 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer) -> SheetS
             hint=f"add `{closing}`; inside brackets a statement goes on to the next line")
     expected = set(getattr(err, "expected", ()) or ())
     lines = split_lines(text)
-    words = lines[tok.line - 1].split(maxsplit=1) if 0 < tok.line <= len(lines) else []
+    here = tok.line - offset        # the line in ``text``
+    words = lines[here - 1].split(maxsplit=1) if 0 < here <= len(lines) else []
     first_word = words[0] if words else ""
-    line_text = lines[tok.line - 1] if 0 < tok.line <= len(lines) else ""
+    line_text = lines[here - 1] if 0 < here <= len(lines) else ""
     named = _CELL_START.match(line_text)
     if named and named.group(1) in RESERVED_WORDS:
         column = named.start(1) + 1
@@ -137,7 +139,7 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer) -> SheetS
                                 hint=f"choose another name, such as `{word}_value`")
     if first_word in RESERVED_WORDS - {"in", "const", "constants", "ppn", "check", "within", "use",
                                        "as", "with"}:
-        column = len(lines[tok.line - 1]) - len(lines[tok.line - 1].lstrip()) + 1
+        column = len(lines[here - 1]) - len(lines[here - 1].lstrip()) + 1
         return SheetSyntaxError(
             f"`{first_word}` statements are not part of this version of relsheet",
             Span(tok.line, column, tok.line, column + len(first_word)),
@@ -178,42 +180,52 @@ def _character_hint(ch: str) -> str | None:
     }.get(ch)
 
 
-def _parse(text: str, start: str, source: Source):
+def _parse(text: str, start: str, source: Source, first_line: int = 1):
+    """Parse ``text`` from the rule ``start``; ``first_line`` is the file's line number of the
+    text's first line (recovery parses statements alone)."""
     parser, joiner = _parser()
+    joiner.line_offset = first_line - 1
     try:
         return parser.parse(text, start=start)
     except UnexpectedInput as err:
-        raise _syntax_error(err, text, joiner).located(source=source) from None
+        raise _syntax_error(err, text, joiner, first_line - 1).located(source=source) from None
     except SheetError as err:
         raise err.located(source=source) from None
     except RecursionError:
         raise InputError("the expression is nested too deeply", None,
                          hint="split it into several cells", source=source) from None
+    finally:
+        joiner.line_offset = 0
+
+
+#: A line that starts a statement (at the start of the line): a cell, a keyword, a note.
+_STATEMENT_START = re.compile(r"(#|(check|use|constants|ppn)\b|[^\W\d]\w*\s*=(?!=))")
 
 
 def logical_lines(text: str, start: int = 1) -> list[tuple[int, int]]:
     """(first, last) physical line numbers of each statement, joining lines inside brackets.
 
-    Used only to recover after a syntax error, from line ``start`` on; a `#`
-    starts a comment that runs to the end of the line, and brackets in it do
-    not count.
+    Used only to recover after a syntax error, from line ``start`` on; a `#` starts a
+    comment that runs to the end of the line, and brackets in it do not count. A line that
+    begins (at its first column) like a new statement while a bracket is open starts a new
+    statement: the one before left its bracket open. One pass over the text.
     """
     lines = split_lines(text)
     spans: list[tuple[int, int]] = []
     depth = 0
-    first = None
+    first: int | None = None
     for number in range(start, len(lines) + 1):
         line = lines[number - 1]
-        code = line.split("#", 1)[0]
+        if first is not None and depth > 0 and _STATEMENT_START.match(line):
+            spans.append((first, number - 1))
+            first, depth = None, 0
         if first is None:
             if not line.strip():
                 continue
             first = number
-        for ch in code:
-            if ch in "([":
-                depth += 1
-            elif ch in ")]":
-                depth = max(0, depth - 1)
+        code = line.split("#", 1)[0]
+        depth = max(0, depth + code.count("(") + code.count("[") - code.count(")")
+                    - code.count("]"))
         if depth == 0:
             spans.append((first, number))
             first = None
@@ -239,7 +251,8 @@ def _broken_cell(line: str, first: int, last: int, lines: list[str], err: SheetE
 
 
 def parse_sheet(text: str, source: Source) -> ParsedSheet:
-    """Parse a whole sheet; syntax errors are collected statement by statement."""
+    """Parse a whole sheet; syntax errors are collected statement by statement (in time
+    linear in the size of the text)."""
     try:
         return ParsedSheet(_parse(text, "sheet", source), [])
     except SheetError:
@@ -247,22 +260,34 @@ def parse_sheet(text: str, source: Source) -> ParsedSheet:
     lines = split_lines(text)
     statements: list[Statement] = []
     errors: list[SheetError] = []
-    pending = logical_lines(text)
-    while pending:
-        first, last = pending.pop(0)
-        # leading newlines keep the line numbers of the whole file
-        chunk = "\n" * (first - 1) + "\n".join(lines[first - 1:last]) + "\n"
+    for first, last in logical_lines(text):
+        chunk = "\n".join(lines[first - 1:last]) + "\n"
         try:
-            statements.extend(_parse(chunk, "sheet", source))
+            statements.extend(_parse(chunk, "sheet", source, first))
         except SheetError as err:
-            broken = _broken_cell(lines[first - 1], first, last, lines, err)
-            if broken is not None:
-                statements.append(broken)
-            errors.append(err)
-            if last > first and err.span is not None and err.span.line == first:
-                # a bracket left open on one line: go on with the next line
-                pending = logical_lines(text, first + 1)
+            if last > first and err.span is not None and err.span.line == first \
+                    and "never closed" in err.message:
+                # a bracket left open: the lines after it are statements of their own
+                err = SheetSyntaxError(err.message, err.span, hint=err.hint, source=source)
+                rest = [(n, n) for n in range(first + 1, last + 1) if lines[n - 1].strip()]
+                _record(statements, errors, lines, first, first, err)
+                for line_no, _ in rest:
+                    try:
+                        statements.extend(_parse(lines[line_no - 1] + "\n", "sheet", source,
+                                                 line_no))
+                    except SheetError as inner:
+                        _record(statements, errors, lines, line_no, line_no, inner)
+                continue
+            _record(statements, errors, lines, first, last, err)
     return ParsedSheet(statements, errors)
+
+
+def _record(statements: list, errors: list, lines: list[str], first: int, last: int,
+            err: SheetError) -> None:
+    broken = _broken_cell(lines[first - 1], first, last, lines, err)
+    if broken is not None:
+        statements.append(broken)
+    errors.append(err)
 
 
 def parse_expression(text: str, source: Source) -> ExpressionLine:

@@ -37,6 +37,10 @@ class Resolved:
     name: str | None = None
 
 
+#: Where the unit's name goes in a spelling of the hint (a character no sheet text holds:
+#: sheet text is never used as a format string).
+UNIT_SLOT = "\x00"
+
 #: The PPN parameters a sheet can set with a `ppn` line.
 PPN_PARAMETERS = ("gamma", "beta")
 #: A `ppn gamma = …` line defines the cell `ppn.gamma`.
@@ -85,7 +89,7 @@ class Scope:
                     f"`{name.id}` is both a cell and the unit `{spelled}`",
                     name.span,
                     hint=f"for the cell write `{cell_hint}`; "
-                         f"for the unit write `{unit_hint.format(unit=spelled)}`")
+                         f"for the unit write `{unit_hint.replace(UNIT_SLOT, spelled)}`")
             constant = self.constants.get(name.id)
             if constant is not None and not _same_value(unit, constant.quantity):
                 cell_hint, unit_hint = spellings()
@@ -95,7 +99,7 @@ class Scope:
                     f"{name.id} ({constant.description})",
                     name.span,
                     hint=f"for the constant write `{cell_hint}`; "
-                         f"for the unit write `{unit_hint.format(unit=spelled)}`")
+                         f"for the unit write `{unit_hint.replace(UNIT_SLOT, spelled)}`")
             return Resolved("unit", unit=unit)
         if name.id in self.cell_names:
             return Resolved("cell", cell=name.id)
