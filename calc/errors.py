@@ -71,8 +71,12 @@ class Source:
             starts.append(starts[-1] + len(line))
         return starts
 
+    @cached_property
+    def _lines(self) -> list[str]:
+        return split_lines(self.text)
+
     def line_text(self, line: int) -> str:
-        lines = split_lines(self.text)
+        lines = self._lines
         return lines[line - 1] if 0 < line <= len(lines) else ""
 
     def between(self, start: Span, end: Span | None = None) -> str:

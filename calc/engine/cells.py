@@ -16,16 +16,17 @@ import heapq
 from collections.abc import Iterable
 
 import astropy.units as u
+import numpy as np
 
-from ..errors import CycleError, InternalError, SheetError, Source, Span
+from ..errors import CycleError, DomainError, InternalError, SheetError, Source, Span
 from ..language.scope import Scope, ppn_parameter
 from ..language.syntax import CellDef, Expr
 from .checks import CheckProgram, CheckResult, compile_check, run_check
 from .compile import InputTable, compile_cell
-from .context import context
+from .context import context, memory_budget
 from .graph import DependencyGraph
 from .run import CellProgram, Env, failed_input, run_cell
-from .values import nominal, same, sigma
+from .values import leaves, nominal, same, sigma
 
 
 class Cell:
@@ -65,6 +66,24 @@ class Cell:
         return f"<Cell {self.name} (line {self.line}): {shown}>"
 
 
+#: Values smaller than this many numbers are never checked against the memory budget.
+HELD_LIMIT = 1_000_000
+
+
+def held_size(value) -> int:
+    """How many numbers a value holds: its elements, and as many again per contribution."""
+    total = 0
+    for leaf in leaves(value):
+        size = int(np.size(getattr(leaf, "value", 0)))
+        total += size * (1 + len(getattr(leaf, "parts", ())))
+    return total
+
+
+def held_budget() -> int:
+    """Numbers a sheet may hold: the memory budget in 8-byte floats, halved for temporaries."""
+    return memory_budget() // 16
+
+
 class Cells:
     """The compiled cells of one sheet, their order and their values."""
 
@@ -87,6 +106,8 @@ class Cells:
         self.checks: list[CheckResult] = []
         #: how many cell evaluations ran (tests count recomputation with it)
         self.evaluations = 0
+        #: numbers the values computed so far hold (contributions of uncertain values too)
+        self.held = 0
 
     # -- building
     def add(self, cell: Cell) -> None:
@@ -169,6 +190,15 @@ class Cells:
         finally:
             found = evaluation.stop_warnings(before)
         cell.warnings.extend(w for w in found if w not in cell.warnings)
+        size = held_size(value)
+        if size > HELD_LIMIT and self.held + size > held_budget():
+            cell.error = DomainError(
+                f"`{name}` would make the sheet hold {(self.held + size) / 1e6:,.0f} million "
+                f"numbers, more than fits in the memory free now", cell.definition.span,
+                hint="use fewer or shorter arrays (`relsheet map` streams tables in chunks)",
+                source=cell.source)
+            return
+        self.held += size
         cell.error = None
         cell.raw = value
         self.values[name] = value

@@ -36,6 +36,35 @@ if TYPE_CHECKING:
 Progress = Callable[[int, int], None]
 
 
+def memory_budget() -> int:
+    """Bytes an evaluation may plan to hold: half the memory available now (Linux's
+    MemAvailable; else a quarter of the physical memory; else 2 GB), and no more than half of
+    an address-space limit the process runs under."""
+    budget = 2 * 1024**3
+    try:
+        with open("/proc/meminfo", encoding="ascii") as info:
+            for line in info:
+                if line.startswith("MemAvailable:"):
+                    budget = int(line.split()[1]) * 1024 // 2
+                    break
+    except OSError:
+        try:
+            import os
+
+            budget = os.sysconf("SC_PHYS_PAGES") * os.sysconf("SC_PAGE_SIZE") // 4
+        except (ValueError, OSError, AttributeError):
+            pass
+    try:
+        import resource
+
+        limit = resource.getrlimit(resource.RLIMIT_AS)[0]
+        if limit != resource.RLIM_INFINITY:
+            budget = min(budget, limit // 2)
+    except (ImportError, OSError, ValueError):
+        pass
+    return budget
+
+
 class Sampling:
     """One Monte Carlo run: the number of samples, the generator, the draws so far, and each
     sheet's sampled values (so that an importing sheet reads its imports' samples)."""

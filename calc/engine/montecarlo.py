@@ -10,10 +10,12 @@ importing sheet is drawn once; each runs under its own pinned constants.
 
 from __future__ import annotations
 
-from ..errors import InternalError, SheetError
-from .context import Progress, Sampling, entered
+import numpy as np
+
+from ..errors import InternalError, SheetError, UsageError
+from .context import Progress, Sampling, entered, memory_budget
 from .run import Env, failed_input, run_cell
-from .values import ShownValue, shown
+from .values import ShownValue, is_uncertain, leaves, shown
 
 #: Largest number of samples × values a run may hold at once (8 bytes each: 2 GB).
 MAX_SAMPLE_VALUES = 250_000_000
@@ -45,12 +47,31 @@ def run(sheet, samples: int, seed: int | None, progress: Progress | None = None
     """Per cell of ``sheet``: its shown form under Monte Carlo (sample mean and standard
     deviation, percentiles on request; cells that depend on no input as they are), or its
     error."""
+    _check_memory(sheet, samples)
     sampling = Sampling(samples, seed, progress)
     out: dict[str, ShownValue | SheetError] = {}
     for each in imports_first(sheet):
         env, out = _evaluate(each, sampling, progress if each is sheet else None)
         sampling.results[each] = env
     return out
+
+
+def _check_memory(sheet, samples: int) -> None:
+    """Refuse a run whose samples would not fit: every cell of every sheet holds ``samples``
+    copies of its value, and an operation needs room for its operands and its result."""
+    values = 0
+    for each in imports_first(sheet):
+        for cell in each.engine.cells.values():
+            if is_uncertain(cell.raw):   # only cells that depend on an input hold samples
+                values += sum(int(np.size(getattr(leaf, "value", 0)))
+                              for leaf in leaves(cell.raw))
+    needed = samples * max(values, 1) * 8 * 2
+    budget = memory_budget()
+    if needed > budget:
+        largest = max(2, budget // (max(values, 1) * 8 * 2))
+        raise UsageError(f"--mc {samples:,} would need about {needed / 1e9:.1f} GB for the "
+                         f"samples of {values:,} values; about {budget / 1e9:.1f} GB is free",
+                         hint=f"use --mc {largest:,} or fewer")
 
 
 def _evaluate(sheet, sampling: Sampling, progress: Progress | None

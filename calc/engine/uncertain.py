@@ -185,8 +185,18 @@ def _merge(a: Parts, b: Parts, fa, fb) -> Parts:
     return out
 
 
+#: Most numbers the contributions of one uncertain value may hold (an array of n values with
+#: k inputs holds n·k): beyond it first-order propagation is refused in favour of --mc.
+MAX_CONTRIBUTIONS = 50_000_000
+
+
 def _combined(x: Uncertain, y: Uncertain, fa, fb, nominal: u.Quantity) -> Uncertain:
     """fa·x + fb·y as first-order contributions; noise bounds add up in absolute value."""
+    inputs = len(x.parts) + len(y.parts)
+    if inputs > 1 and np.size(nominal.value) * inputs > MAX_CONTRIBUTIONS:
+        raise DomainError(f"{np.size(nominal.value):,} values with {inputs} uncertain inputs "
+                          f"are too many for first-order propagation",
+                          hint="use Monte Carlo (--mc N), or fewer inputs")
     noise = None
     if x.noise or y.noise:
         noise = _merge(x.noise or {}, y.noise or {}, np.abs(fa), np.abs(fb))

@@ -297,9 +297,16 @@ def vectorised(call: Callable, values: tuple):
     return map_leaves(wrap, result)
 
 
+#: Most samples a function that takes single values is run for (a Python call each).
+MAX_PER_SAMPLE = 100_000
+
+
 def per_sample(call: Callable, values: tuple):
     """Monte Carlo through a function that takes single values: once per sample, stacked."""
     count = next(leaf.count for v in values for leaf in leaves(v) if isinstance(leaf, Samples))
+    if count > MAX_PER_SAMPLE:
+        raise DomainError(f"this function runs once per sample; {count:,} samples would take "
+                          "too long", hint=f"use --mc {MAX_PER_SAMPLE:,} or fewer")
     progress = context().sampling.progress if context().sampling is not None else None
     results = []
     for k in range(count):

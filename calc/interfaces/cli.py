@@ -241,9 +241,11 @@ def cmd_eval(args) -> int:
         finally:
             progress.close()
     if args.format == "json":
-        from ..outputs.export import to_json
+        from ..outputs.export import json_pieces, sheet_record
 
-        print(to_json(sheet, monte_carlo, args.mc))
+        for piece in json_pieces(sheet_record(sheet, monte_carlo, args.mc)):
+            sys.stdout.write(piece)
+        sys.stdout.write("\n")
     elif args.format in ("csv", "md"):
         if monte_carlo is not None:
             raise UsageError("--mc prints as text or json", hint="add --format json")

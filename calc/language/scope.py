@@ -41,6 +41,10 @@ class Resolved:
 #: sheet text is never used as a format string).
 UNIT_SLOT = "\x00"
 
+#: Did-you-mean hints for unknown units one sheet gets (each looks through thousands of
+#: unit names; a sheet of thousands of unknown names must still be answered quickly).
+MAX_SUGGESTIONS = 20
+
 #: The PPN parameters a sheet can set with a `ppn` line.
 PPN_PARAMETERS = ("gamma", "beta")
 #: A `ppn gamma = …` line defines the cell `ppn.gamma`.
@@ -67,6 +71,8 @@ class Scope:
         self.cell_names = cell_names
         #: imported sheets by namespace
         self.namespaces = namespaces or {}
+        #: how many more did-you-mean hints for unknown names this sheet may compute
+        self.suggestions_left = MAX_SUGGESTIONS
         #: namespaces whose `use` line failed, with the line's span
         self.failed_namespaces: dict = failed_namespaces or {}
         self.selection = selection
@@ -108,7 +114,15 @@ class Scope:
             return Resolved("constant", value=constant.quantity, name=name.id)
         raise NameResolutionError(
             f"unknown unit `{name.id}`", name.span,
-            hint=did_you_mean(self.units.suggestions(name.id, list(self.cell_names))))
+            hint=self._unit_hint(name.id, with_cells=True))
+
+    def _unit_hint(self, name: str, with_cells: bool = False) -> str | None:
+        """A did-you-mean for an unknown unit, while this sheet's budget of suggestions
+        lasts (a sheet of thousands of unknown names is answered quickly)."""
+        if self.suggestions_left <= 0:
+            return None
+        self.suggestions_left -= 1
+        return did_you_mean(self.units.suggestions(name, self.cell_names if with_cells else ()))
 
     def plain(self, name: Name) -> Resolved:
         """A name outside a chain: a cell, else a built-in constant."""
@@ -133,7 +147,7 @@ class Scope:
         unit = self.units.lookup(name.id)
         if unit is not None:
             return unit
-        hint = did_you_mean(self.units.suggestions(name.id))
+        hint = self._unit_hint(name.id)
         if name.id in self.cell_names:
             hint = f"`{name.id}` is a cell; `in` takes a unit such as `km / s`"
         raise NameResolutionError(f"unknown unit `{name.id}`", name.span, hint=hint)

@@ -43,10 +43,71 @@ def _number(x: float):
     return x
 
 
+class Numbers:
+    """An array of numbers on its way into JSON: kept as numpy until it is written, then
+    written in pieces (a ten-million-element array never becomes a Python list)."""
+
+    __slots__ = ("values",)
+
+    def __init__(self, values) -> None:
+        self.values = np.ravel(np.asarray(values, dtype=float))
+
+    def tolist(self) -> list:
+        return [_number(v) for v in self.values]
+
+
 def json_value(value):
     if np.ndim(value) == 0:
         return _number(value)
-    return [_number(v) for v in np.ravel(value)]
+    return Numbers(value)
+
+
+#: Elements written per piece of a long array.
+_PIECE = 65536
+
+
+def _number_pieces(numbers: Numbers):
+    """`[1.0, 2.5, "inf", null]` of an array, in pieces."""
+    values = numbers.values
+    yield "["
+    for start in range(0, values.size, _PIECE):
+        chunk = values[start:start + _PIECE]
+        if np.isfinite(chunk).all():
+            text = json.dumps(chunk.tolist())[1:-1]   # the C encoder: shortest exact digits
+        else:
+            text = ", ".join(json.dumps(_number(v)) for v in chunk)
+        yield (", " if start else "") + text
+    yield "]"
+
+
+def json_pieces(value, indent: int = 0):
+    """JSON text of a document whose arrays of numbers are :class:`Numbers`, in pieces: the
+    layout of ``json.dumps(indent=2)``, each array of numbers on one line."""
+    pad, inner = " " * indent, " " * (indent + 2)
+    if isinstance(value, Numbers):
+        yield from _number_pieces(value)
+    elif isinstance(value, dict):
+        if not value:
+            yield "{}"
+            return
+        yield "{\n"
+        for index, (key, item) in enumerate(value.items()):
+            yield f"{inner}{json.dumps(key, ensure_ascii=False)}: "
+            yield from json_pieces(item, indent + 2)
+            yield ",\n" if index < len(value) - 1 else "\n"
+        yield pad + "}"
+    elif isinstance(value, list):
+        if not value:
+            yield "[]"
+            return
+        yield "[\n"
+        for index, item in enumerate(value):
+            yield inner
+            yield from json_pieces(item, indent + 2)
+            yield ",\n" if index < len(value) - 1 else "\n"
+        yield pad + "]"
+    else:
+        yield json.dumps(value, ensure_ascii=False)
 
 
 def error_text(cell: Cell) -> str | None:
@@ -126,7 +187,7 @@ def sheet_record(sheet: Sheet, monte_carlo: dict | None = None,
 
 
 def to_json(sheet: Sheet, monte_carlo: dict | None = None, samples: int | None = None) -> str:
-    return json.dumps(sheet_record(sheet, monte_carlo, samples), ensure_ascii=False, indent=2)
+    return "".join(json_pieces(sheet_record(sheet, monte_carlo, samples)))
 
 
 # ---- CSV -----------------------------------------------------------------------------

@@ -64,6 +64,7 @@ class UnitTable:
     def __init__(self, selection: ConstantSelection) -> None:
         self.selection = selection
         self._registry = u.get_current_unit_registry().registry
+        self._index: NameIndex | None = None
         self._overrides: dict[str, u.UnitBase] = dict(EXTRA_UNITS)
         if selection != default_selection():
             constants = constant_table(selection)
@@ -90,13 +91,39 @@ class UnitTable:
     def names(self) -> list[str]:
         return [*self._registry, *self._overrides]
 
-    def suggestions(self, name: str, extra: list[str] = ()) -> list[str]:
-        return close_matches(name, [*self.names(), *extra])
+    def suggestions(self, name: str, extra=()) -> list[str]:
+        """Up to three unit names (or ``extra`` names) spelled like ``name``."""
+        if self._index is None:
+            self._index = NameIndex(self.names())
+        return close_matches(name, [*self._index.near(name), *NameIndex.filtered(name, extra)])
 
 
 @lru_cache(maxsize=8)
 def unit_table(selection: ConstantSelection) -> UnitTable:
     return UnitTable(selection)
+
+
+class NameIndex:
+    """Names by length, so that a near spelling is looked for only among names of a length
+    that could match (difflib's cutoff of 0.75 needs the shorter at least 0.6 of the longer):
+    thousands of unit names, looked up for every unknown name, stay quick."""
+
+    def __init__(self, names) -> None:
+        self.by_length: dict[int, list[str]] = {}
+        for name in set(names):
+            self.by_length.setdefault(len(name), []).append(name)
+
+    def near(self, name: str) -> list[str]:
+        low, high = math.ceil(0.6 * len(name)), math.floor(len(name) / 0.6)
+        found = [n for size in range(low, high + 1) for n in self.by_length.get(size, ())]
+        lower = name.lower()
+        found += [n for n in self.by_length.get(len(name), ()) if n.lower() == lower]
+        return found
+
+    @staticmethod
+    def filtered(name: str, names) -> list[str]:
+        low, high = 0.6 * len(name), len(name) / 0.6
+        return [n for n in names if low <= len(n) <= high]
 
 
 def close_matches(name: str, candidates) -> list[str]:
