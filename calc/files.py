@@ -142,7 +142,8 @@ def atomic_write(path: str | Path, data: bytes, *, expected: bytes | None = None
         raise InputError(f"cannot write {label}: it is a folder", hint="name a file",
                          source=Source(label, ""))
     exists = target.exists()
-    if exists and not force and not os.access(target, os.W_OK):
+    # read-only to its owner means read-only (even to an administrator, who could write it)
+    if exists and not force and not target.stat().st_mode & 0o200:
         raise InputError(f"{label} is read-only; nothing written",
                          hint="make it writable, or pass --force to replace it",
                          source=Source(label, ""))

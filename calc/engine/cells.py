@@ -255,6 +255,19 @@ class Cells:
             forced |= self.reorder()
         return self.propagate(forced)
 
+    def restore(self, definition: CellDef, source: Source) -> list[Cell]:
+        """Give a cell back a definition of the file that does not parse (its syntax error)."""
+        name = definition.name
+        cell = self.cells[name]
+        cell.definition, cell.source = definition, source
+        self.fixed_errors[name] = definition.syntax_error
+        program = CellProgram(definition, source, error=definition.syntax_error)
+        self.programs[name] = program
+        forced = {name}
+        if self.graph.set_uses(name, program.deps):
+            forced |= self.reorder()
+        return self.propagate(forced)
+
     def seeing(self, name: str) -> list[str]:
         """Cells whose meaning changes when a cell called ``name`` appears (they looked the
         name up as a constant, a unit or an unknown name)."""

@@ -244,6 +244,11 @@ class Sheet:
         definition = self._cells.original.get(name)
         if definition is None:
             raise KeyError(name)
+        if definition.syntax_error is not None:   # the file's line does not parse: its error
+            with numeric_context(), entered(self.context):
+                changed = self._cells.restore(definition, self.source)
+                self._cells.run_checks()
+                return changed
         with numeric_context(), entered(self.context):
             changed = self._cells.assign(name, definition.expr, definition.unit, self.source,
                                          definition.span)

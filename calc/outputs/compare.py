@@ -10,7 +10,7 @@ import numpy as np
 from ..engine.cells import Cell
 from ..engine.sheet import Sheet
 from ..engine.values import is_record
-from ..errors import InputError
+from ..errors import InputError, UsageError
 from ..files import decode_sheet
 from .format import cell_text
 
@@ -69,13 +69,17 @@ def diff(old: Sheet, new: Sheet, show_all: bool = False,
 
 def sheet_at_revision(path: str, revision: str) -> Sheet:
     """The sheet as committed at a git revision (read with `git show`)."""
+    if not revision or revision.startswith("-") or any(ch.isspace() or ch == ":"
+                                                        for ch in revision):
+        raise UsageError(f"`{revision}` is not a git revision",
+                         hint="give a commit, a branch or a tag, such as HEAD~1 or v1.0")
     file = Path(path).resolve()
     try:
         top = subprocess.run(["git", "rev-parse", "--show-toplevel"], cwd=file.parent,
                              capture_output=True, text=True, check=True).stdout.strip()
         relative = file.relative_to(Path(top).resolve()).as_posix()
-        shown = subprocess.run(["git", "show", f"{revision}:{relative}"], cwd=top,
-                               capture_output=True, check=True)
+        shown = subprocess.run(["git", "show", "--end-of-options", f"{revision}:{relative}"],
+                               cwd=top, capture_output=True, check=True)
     except FileNotFoundError:
         raise InputError("git is not installed: --rev needs it") from None
     except subprocess.CalledProcessError as exc:

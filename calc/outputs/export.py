@@ -199,6 +199,13 @@ def _number_text(value) -> str:
     return " ".join(repr(float(v)) for v in np.ravel(value))
 
 
+def _sigma_text(sigma) -> str:
+    """σ to the two significant digits a value is shown with, and two guard digits: the
+    float noise of propagation (0.005999999999815677) is not data."""
+    rounded = [float(f"{float(s):.4g}") for s in np.ravel(sigma)]
+    return " ".join(repr(s) for s in rounded)
+
+
 def to_csv(sheet: Sheet) -> str:
     """``name,value,sigma,unit`` with a header; record fields as ``name.field`` rows, array
     values as space-separated numbers, failed cells with empty fields."""
@@ -217,7 +224,7 @@ def to_csv(sheet: Sheet) -> str:
             for field, q in s.fields.items():
                 rows(f"{name}.{field}", q)
         else:
-            sigma = _number_text(s.sigma) if s.sigma is not None else ""
+            sigma = _sigma_text(s.sigma) if s.sigma is not None else ""
             writer.writerow([name, _number_text(s.value), sigma, unit_string(s.unit)])
 
     for cell in sheet.cells:
