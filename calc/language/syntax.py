@@ -12,11 +12,12 @@ nodes and checks number literals; it never evaluates anything.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Union
-
-from lark import Token, Transformer
+from typing import TYPE_CHECKING, Union
 
 from ..errors import SheetSyntaxError, Span
+
+if TYPE_CHECKING:
+    from lark import Token
 
 # ---- expressions --------------------------------------------------------------
 
@@ -277,8 +278,17 @@ def parse_number(tok: Token) -> float:
     return value
 
 
-class NodeBuilder(Transformer):
-    """Turns LALR reductions into nodes. Method names follow grammar rules and aliases."""
+def _is_token(item, kind: str) -> bool:
+    """Whether a child is a token of ``kind`` (tokens are strings; nodes never are)."""
+    return isinstance(item, str) and item.type == kind  # type: ignore[attr-defined]
+
+
+class NodeBuilder:
+    """Turns LALR reductions into nodes. Method names follow grammar rules and aliases.
+
+    lark calls the method named after each rule (or alias) with the rule's children; it needs
+    no base class, so this module does not import lark (a sheet read from the parse cache
+    never loads it)."""
 
     # -- atoms
     def number(self, children):
@@ -393,7 +403,7 @@ class NodeBuilder(Transformer):
         for item in rest:
             if item is None:
                 continue
-            if isinstance(item, Token) and item.type == "HASH_TEXT":
+            if _is_token(item, "HASH_TEXT"):
                 comment, marker = split_trailer(item.value)
             else:
                 unit = item
@@ -418,7 +428,7 @@ class NodeBuilder(Transformer):
         keyword, tok, expr, *rest = children
         comment = marker = None
         for item in rest:
-            if isinstance(item, Token) and item.type == "HASH_TEXT":
+            if _is_token(item, "HASH_TEXT"):
                 comment, marker = split_trailer(item.value)
         return PPNDef(tok.value, token_span(tok), expr, comment, marker,
                       token_span(keyword).to(expr.span))
@@ -438,7 +448,7 @@ class NodeBuilder(Transformer):
         keyword, left, op, right, *rest = children
         tolerance = None
         for item in rest:
-            if item is None or (isinstance(item, Token) and item.type in ("WITHIN", "HASH_TEXT")):
+            if item is None or _is_token(item, "WITHIN") or _is_token(item, "HASH_TEXT"):
                 continue
             tolerance = item
         end = (tolerance or right).span
@@ -455,13 +465,13 @@ class NodeBuilder(Transformer):
         return [c for c in children if c is not None]
 
     def expression_input(self, children):
-        items = [c for c in children if c is not None and not isinstance(c, Token)]
+        items = [c for c in children if c is not None and not isinstance(c, str)]
         expr = items[0]
         unit = items[1] if len(items) > 1 else None
         return ExpressionLine(expr, unit, expr.span if unit is None else expr.span.to(unit.span))
 
     def prompt_input(self, children):
-        items = [c for c in children if c is not None and not isinstance(c, Token)]
+        items = [c for c in children if c is not None and not isinstance(c, str)]
         if isinstance(items[0], (CellDef, PPNDef)):
             return items[0]
         return self.expression_input(items)
