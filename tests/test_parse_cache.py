@@ -3,7 +3,6 @@ parsed sheets is used, holds data only, and is trusted only when it is ours and 
 
 from __future__ import annotations
 
-import dataclasses
 import json
 import os
 import pickle
@@ -473,8 +472,8 @@ def _same_tree(a, b) -> bool:
             if len(x) != len(y):
                 return False
             todo.extend(zip(x, y))
-        elif dataclasses.is_dataclass(x):
-            todo.extend((getattr(x, f.name), getattr(y, f.name)) for f in dataclasses.fields(x))
+        elif hasattr(x, "__slots__") and not isinstance(x, tuple):
+            todo.extend((getattr(x, name), getattr(y, name)) for name in x.__slots__)
         elif x != y:
             return False
     return True
