@@ -198,8 +198,7 @@ def encode(statements: list[Statement]) -> bytes:
 # ---- reading ----------------------------------------------------------------------------
 # Each decoder takes its record and the stack of nodes built so far (its children on top).
 
-def _span(r: list, at: int) -> Span:
-    return Span(r[at], r[at + 1], r[at + 2], r[at + 3])
+_new = tuple.__new__  # a Span from four integers of a record, without the named tuple's checks
 
 
 def _take(stack: list, count: int) -> tuple:
@@ -213,15 +212,15 @@ def _take(stack: list, count: int) -> tuple:
 
 
 def _d_number(r, s):
-    return Number(r[1], r[2], _span(r, 3))
+    return Number(r[1], r[2], _new(Span, r[3:7]))
 
 
 def _d_percent(r, s):
-    return Percent(r[1], r[2], _span(r, 3))
+    return Percent(r[1], r[2], _new(Span, r[3:7]))
 
 
 def _d_name(r, s):
-    return Name(r[1], _span(r, 2))
+    return Name(r[1], _new(Span, r[2:6]))
 
 
 def _d_name_power(r, s):
@@ -229,96 +228,96 @@ def _d_name_power(r, s):
     name = s.pop()
     if type(name) is not Name:
         raise TypeError("a unit power of something other than a name")
-    return NamePower(name, exponent, _span(r, 1))
+    return NamePower(name, exponent, _new(Span, r[1:5]))
 
 
 def _d_dotted(r, s):
-    return Dotted(tuple(r[1]), _span(r, 2))
+    return Dotted(tuple(r[1]), _new(Span, r[2:6]))
 
 
 def _d_keyword(r, s):
-    return Keyword(r[1], s.pop(), _span(r, 2))
+    return Keyword(r[1], s.pop(), _new(Span, r[2:6]))
 
 
 def _d_call(r, s):
     keywords = _take(s, r[7])
     if any(type(k) is not Keyword for k in keywords):
         raise TypeError("a keyword argument that is not one")
-    return Call(r[1], _span(r, 2), _take(s, r[6]), keywords, _span(r, 8))
+    return Call(r[1], _new(Span, r[2:6]), _take(s, r[6]), keywords, _new(Span, r[8:12]))
 
 
 def _d_group(r, s):
-    return Group(s.pop(), _span(r, 1))
+    return Group(s.pop(), _new(Span, r[1:5]))
 
 
 def _d_array(r, s):
-    return ArrayLiteral(_take(s, r[1]), _span(r, 2))
+    return ArrayLiteral(_take(s, r[1]), _new(Span, r[2:6]))
 
 
 def _d_chain(r, s):
     items = _take(s, r[1])
-    return Chain(s.pop(), items, _span(r, 2))
+    return Chain(s.pop(), items, _new(Span, r[2:6]))
 
 
 def _d_unit_product(r, s):
-    return UnitProduct(_take(s, r[1]), _span(r, 2))
+    return UnitProduct(_take(s, r[1]), _new(Span, r[2:6]))
 
 
 def _d_percent_unit(r, s):
-    return PercentUnit(_span(r, 1))
+    return PercentUnit(_new(Span, r[1:5]))
 
 
 def _d_binary(r, s):
     right = s.pop()
-    return BinaryOp(r[1], s.pop(), right, _span(r, 2))
+    return BinaryOp(r[1], s.pop(), right, _new(Span, r[2:6]))
 
 
 def _d_unary(r, s):
-    return UnaryOp(r[1], s.pop(), _span(r, 2))
+    return UnaryOp(r[1], s.pop(), _new(Span, r[2:6]))
 
 
 def _d_plus_minus(r, s):
     sigma = s.pop()
-    return PlusMinus(s.pop(), sigma, _span(r, 1))
+    return PlusMinus(s.pop(), sigma, _new(Span, r[1:5]))
 
 
 def _d_power(r, s):
     exponent = s.pop()
-    return Power(s.pop(), exponent, _span(r, 1))
+    return Power(s.pop(), exponent, _new(Span, r[1:5]))
 
 
 def _d_cell(r, s):
     unit = s.pop() if r[6] else None
-    return CellDef(r[1], _span(r, 2), s.pop(), unit, r[7], r[8], _span(r, 9))
+    return CellDef(r[1], _new(Span, r[2:6]), s.pop(), unit, r[7], r[8], _new(Span, r[9:13]))
 
 
 def _d_constants(r, s):
-    return ConstantsDef(tuple((item[0], _span(item, 1)) for item in r[1]), _span(r, 2))
+    return ConstantsDef(tuple((item[0], _new(Span, item[1:5])) for item in r[1]), _new(Span, r[2:6]))
 
 
 def _d_ppn(r, s):
-    return PPNDef(r[1], _span(r, 2), s.pop(), r[6], r[7], _span(r, 8))
+    return PPNDef(r[1], _new(Span, r[2:6]), s.pop(), r[6], r[7], _new(Span, r[8:12]))
 
 
 def _d_override(r, s):
-    return Override(r[1], _span(r, 2), s.pop())
+    return Override(r[1], _new(Span, r[2:6]), s.pop())
 
 
 def _d_use(r, s):
     overrides = _take(s, r[11])
     if any(type(o) is not Override for o in overrides):
         raise TypeError("an override that is not one")
-    return UseDef(r[1], _span(r, 2), r[6], _span(r, 7), overrides, _span(r, 12))
+    return UseDef(r[1], _new(Span, r[2:6]), r[6], _new(Span, r[7:11]), overrides, _new(Span, r[12:16]))
 
 
 def _d_check(r, s):
     tolerance = s.pop() if r[2] else None
     right = s.pop()
-    return CheckDef(s.pop(), r[1], right, tolerance, r[3], _span(r, 4))
+    return CheckDef(s.pop(), r[1], right, tolerance, r[3], _new(Span, r[4:8]))
 
 
 def _d_note(r, s):
-    return Note(r[1], r[2], _span(r, 3))
+    return Note(r[1], r[2], _new(Span, r[3:7]))
 
 
 _DECODERS: dict[str, Callable[[list, list], Any]] = {
