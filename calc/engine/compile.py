@@ -52,7 +52,15 @@ from ..language.syntax import (
 )
 from ..physics import functions
 from ..physics.records import Record, RecordList
-from ..physics.units import close_matches, conversion_scale, describe, did_you_mean, quantity, value_in
+from ..physics.units import (
+    close_matches,
+    conversion_scale,
+    describe,
+    did_you_mean,
+    quantity,
+    unit_product,
+    value_in,
+)
 from .context import context
 from .run import (
     CellProgram,
@@ -146,6 +154,23 @@ def _number(value: float) -> u.Quantity:
             _NUMBERS.clear()
         q = _NUMBERS[value] = u.Quantity(value)
     return q
+
+
+_NUMBERS_IN: dict[tuple[object, int], tuple[u.UnitBase, u.Quantity]] = {}
+
+
+def _number_in(number: u.Quantity, unit: u.UnitBase) -> u.Quantity:
+    """``number`` (dimensionless) times ``unit``, as the product in a chain makes it; shared
+    like :func:`_number` (the entry keeps its unit alive, so the unit's id stays its own)."""
+    key = (number.value.item() if number.ndim == 0 else id(number), id(unit))
+    hit = _NUMBERS_IN.get(key) if number.ndim == 0 else None
+    if hit is None:
+        if len(_NUMBERS_IN) >= _NUMBERS_KEPT:
+            _NUMBERS_IN.clear()
+        hit = (unit, quantity(number.value, unit_product(number.unit, unit)))
+        if number.ndim == 0:
+            _NUMBERS_IN[key] = hit
+    return hit[1]
 
 
 def _uncertain_array(values, spans) -> Uncertain:
@@ -402,6 +427,12 @@ class _Compiler:
                 item_code, is_open = self.chain_item(item, depth, self._juxtaposed(node, item))
             else:
                 item_code = self.expr(item, depth + 1)
+            if type(code) is Const and type(item_code) is Const \
+                    and isinstance(item_code.value, u.UnitBase) and type(code.value) is u.Quantity \
+                    and code.value.unit is _ONE:
+                # a number and its unit (`1500 km`): the same quantity every time it is written
+                code = Const(_number_in(code.value, item_code.value))
+                continue
             code = _lift(mul_op(node.span, divide=False), code, item_code)
         return code, is_open
 
