@@ -63,9 +63,17 @@ from ..physics.units import (
 )
 from .context import context
 from .run import (
+    ADD,
+    DIV,
+    MUL,
+    NEG,
+    POW,
+    REF,
+    SUB,
     CellProgram,
     Code,
     Const,
+    Kernel,
     _finite,
     add_op,
     checked,
@@ -74,6 +82,8 @@ from .run import (
     mul_op,
     neg_op,
     power_op,
+    scalar_constant,
+    scalar_power,
     unit_range_error,
 )
 from .samples import Samples, draw
@@ -253,6 +263,8 @@ class _Compiler:
         self.inputs_made = 0
         self.deps: dict[str, Span] = {}
         self.looked_up: set[str] = set()
+        #: the scalar kernel (run.py) of each compiled code that has one, by the code's id
+        self.kernels: dict[int, object] = {}
 
     # -- helpers
     def text(self, start: Span, end: Span | None = None) -> str:
@@ -260,7 +272,33 @@ class _Compiler:
 
     def cell_ref(self, name: str, span: Span) -> Code:
         self.deps.setdefault(name, span)
-        return itemgetter(name)
+        code = itemgetter(name)
+        self.kernels[id(code)] = (REF, name)
+        return code
+
+    # -- scalar kernels (run.py): each arithmetic code gets one when its operands have one
+    def kernel(self, code: Code) -> Kernel | None:
+        if type(code) is Const:
+            return scalar_constant(code.value)
+        return self.kernels.get(id(code))
+
+    def with_kernel(self, code: Code, op: int, a: Code, b: Code | None = None) -> Code:
+        """``code``, with the kernel (op, kernels of a and b) when they both have one."""
+        if type(code) is Const:
+            return code
+        ka = scalar_constant(a.value) if type(a) is Const else self.kernels.get(id(a))
+        if ka is None:
+            return code
+        if b is None:
+            self.kernels[id(code)] = (op, ka)
+            return code
+        kb = scalar_constant(b.value) if type(b) is Const else self.kernels.get(id(b))
+        if kb is None:
+            return code
+        kernel = scalar_power(ka, kb) if op == POW else (op, ka, kb)
+        if kernel is not None:
+            self.kernels[id(code)] = kernel
+        return code
 
     def resolved(self, resolved, span: Span) -> Code:
         if resolved.kind == "unit":
@@ -379,19 +417,25 @@ class _Compiler:
             left = self.expr(node.left, depth + 1)
             right = self.expr(node.right, depth + 1)
             if node.op == "*":
-                return _lift(mul_op(node.span, divide=False), left, right)
-            return _lift(add_op(node.span, subtract=node.op == "-"), left, right)
+                return self.with_kernel(_lift(mul_op(node.span, divide=False), left, right),
+                                        MUL, left, right)
+            subtract = node.op == "-"
+            return self.with_kernel(_lift(add_op(node.span, subtract=subtract), left, right),
+                                    SUB if subtract else ADD, left, right)
         if kind is Chain:
             return self.chain(node, depth)[0]
         if kind is UnaryOp:
             operand = self.expr(node.operand, depth + 1)
-            return operand if node.op == "+" else _lift(neg_op(node.span), operand)
+            if node.op == "+":
+                return operand
+            return self.with_kernel(_lift(neg_op(node.span), operand), NEG, operand)
         if kind is PlusMinus:
             return self.plus_minus(node, depth)
         if kind is Power:
             base = self.expr(node.base, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
-            return _lift(power_op(node.span, node.exponent.span), base, exponent)
+            return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
+                                    POW, base, exponent)
         if kind is Group:
             return self.expr(node.inner, depth + 1)
         if kind is Call:
@@ -415,7 +459,8 @@ class _Compiler:
         if kind is NamePower:
             base = self.expr(node.name, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
-            return _lift(power_op(node.span, node.exponent.span), base, exponent)
+            return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
+                                    POW, base, exponent)
         raise NameResolutionError("this is not a value", node.span)
 
     def chain(self, node: Chain, depth: int) -> tuple[Code, bool]:
@@ -433,7 +478,8 @@ class _Compiler:
                 # a number and its unit (`1500 km`): the same quantity every time it is written
                 code = Const(_number_in(code.value, item_code.value))
                 continue
-            code = _lift(mul_op(node.span, divide=False), code, item_code)
+            code = self.with_kernel(_lift(mul_op(node.span, divide=False), code, item_code),
+                                    MUL, code, item_code)
         return code, is_open
 
     # The two spellings an ambiguous name's hint shows, built only when needed.
@@ -478,7 +524,8 @@ class _Compiler:
                 return Const(resolved.unit ** self.exponent_number(item.exponent, depth)), True
             base = self.resolved(resolved, name.span)
             exponent = self.expr(item.exponent, depth + 1)
-            return _lift(power_op(item.span, item.exponent.span), base, exponent), False
+            code = _lift(power_op(item.span, item.exponent.span), base, exponent)
+            return self.with_kernel(code, POW, base, exponent), False
         if isinstance(item, Name):
             self.looked_up.add(item.id)
             resolved = self.scope.in_chain(item, spellings)
@@ -504,7 +551,8 @@ class _Compiler:
                 right, is_open = self.chain_item(node.right, depth, self._divided(node))
             else:
                 right, is_open = self.expr(node.right, depth + 1), False
-            return _lift(mul_op(node.span, divide=True), left, right), is_open
+            code = _lift(mul_op(node.span, divide=True), left, right)
+            return self.with_kernel(code, DIV, left, right), is_open
         return self.expr(node, depth), False
 
     def call(self, node: Call, depth: int) -> Code:
@@ -672,6 +720,8 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
                     lambda: finish(program, _constant(again.expr(definition.expr))))
         else:
             program.run = code
+            kernel = compiler.kernel(code)
+            program.scalar = kernel if kernel is not None and kernel[0] >= REF else None
     except SheetError as err:
         program.error = err.located(definition.span, compiler.source)
     except (u.UnitScaleError, OverflowError):
