@@ -40,6 +40,8 @@ from .context import context
 from .samples import Samples, value_ndim
 from .uncertain import Input, Uncertain
 
+_item = np.ndarray.item  # the float of a 0-d array
+
 Leaf = Union[u.Quantity, Uncertain, Samples]
 Value = Union[u.Quantity, Uncertain, Samples, Record, RecordList]
 CONTAINERS = (Record, RecordList)
@@ -283,6 +285,9 @@ def same(a, b) -> bool:
         return True
     if a is None or b is None:
         return False
+    if type(a) is u.Quantity and type(b) is u.Quantity and a.ndim == 0 and b.ndim == 0:
+        # two single quantities (most cells): what the general case below finds, cheaply
+        return a.unit == b.unit and _item(a) == _item(b)
     if isinstance(a, Record) or isinstance(b, Record):
         return isinstance(a, Record) and isinstance(b, Record) and a.kind == b.kind \
             and a.label == b.label and list(a.fields) == list(b.fields) \

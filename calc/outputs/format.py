@@ -10,11 +10,14 @@ from __future__ import annotations
 
 import math
 
+import astropy.units as u
 import numpy as np
 
 from ..engine.checks import CheckResult
 from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue, shown
 from ..physics.units import unit_string
+
+_item = np.ndarray.item  # the float of a 0-d array
 
 DEFAULT_DIGITS = 6
 #: Arrays longer than this show their first and last few values.
@@ -55,6 +58,8 @@ def as_shown(value) -> ShownValue:
 
 def format_quantity(value, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
     """(number text, unit text) of a quantity; `value ± σ` when it carries an uncertainty."""
+    if type(value) is u.Quantity and value.ndim == 0:  # a single quantity (most cells)
+        return format_number(_item(value), digits), unit_string(value.unit)
     s = as_shown(value)
     if not isinstance(s, Shown):
         return s.summary(), ""
