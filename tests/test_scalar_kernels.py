@@ -5,6 +5,9 @@ throughout the suite; here both paths must agree to the last bit, unit and error
 
 from __future__ import annotations
 
+import gc
+import weakref
+
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
@@ -133,3 +136,13 @@ def test_a_what_if_agrees_too(monkeypatch):
         slow = Sheet.from_text(text)
         slow.set("a", "5 pc")
     assert [_outcome(fast, n) for n in "abc"] == [_outcome(slow, n) for n in "abc"]
+
+
+def test_a_kernel_giving_up_keeps_no_values_alive():
+    # the kernels give up on arrays; what they raised must not hold on to the values it met
+    sheet = Sheet.from_text("x = [1, 2, 3] km\ny = x * 2 + 1 m\nz = -y\n")
+    assert sheet["z"][2].value == pytest.approx(-6.001)
+    value = weakref.ref(sheet.cell("x").raw)
+    del sheet
+    gc.collect()
+    assert value() is None

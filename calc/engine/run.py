@@ -283,10 +283,10 @@ def field_op(parts: tuple[str, ...], span: Span):
 
 
 class NotScalar(Exception):
-    """A kernel met a value that is not a plain single quantity."""
+    """A kernel met a value that is not a plain single quantity. (Raised as a new instance each
+    time: an instance raised again would keep every traceback, and the values in its frames.)"""
 
 
-_NOT_SCALAR = NotScalar()
 #: what a kernel raises to give up (the ordinary operations then say what is wrong, if anything)
 GIVE_UP = (NotScalar, ArithmeticError, ValueError, u.UnitsError)
 _item = np.ndarray.item  # the float of a 0-d array, far cheaper than Quantity.value
@@ -341,14 +341,14 @@ def scalar_value(kernel: Kernel, env: Env) -> tuple[Any, u.UnitBase]:
     if op == REF:
         v = env[kernel[1]]
         if type(v) is not _QUANTITY or v.ndim:
-            raise _NOT_SCALAR
+            raise NotScalar
         return _item(v), v.unit
     if op == CONST:
         return kernel[1], kernel[2]
     if op <= DIV:  # MUL, DIV
         left = kernel[1]
         if left[0] == UNIT:
-            raise _NOT_SCALAR  # a unit times a value: astropy's own arithmetic, as in mul_op
+            raise NotScalar  # a unit times a value: astropy's own arithmetic, as in mul_op
         av, au = scalar_value(left, env)
         right = kernel[2]
         if right[0] == UNIT:
@@ -360,7 +360,7 @@ def scalar_value(kernel: Kernel, env: Env) -> tuple[Any, u.UnitBase]:
     if op <= SUB:  # ADD, SUB
         left, right = kernel[1], kernel[2]
         if left[0] == UNIT or right[0] == UNIT:
-            raise _NOT_SCALAR
+            raise NotScalar
         xv, xu = scalar_value(left, env)
         yv, yu = scalar_value(right, env)
         scale = conversion_scale(yu, xu)
@@ -376,7 +376,7 @@ def scalar_value(kernel: Kernel, env: Env) -> tuple[Any, u.UnitBase]:
             return np.power(bv, kernel[2]), _ONE
         p = kernel[3]
         return np.power(bv, p), unit_power(bu, p)
-    raise _NOT_SCALAR
+    raise NotScalar
 
 
 def finish_scalar(program: CellProgram, value, unit: u.UnitBase):
