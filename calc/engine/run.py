@@ -152,8 +152,13 @@ def add_op(span: Span, subtract: bool):
                 yv = y.value if scale == 1.0 else y.value * scale
                 result = quantity(x.value - yv if subtract else x.value + yv, x.unit)
             else:
-                with angle_equivalencies():
+                try:
                     result = x - y if subtract else x + y
+                except u.UnitConversionError:
+                    # only angles and plain numbers need the equivalency, and enabling it
+                    # costs more than most additions (astropy copies its unit registry)
+                    with angle_equivalencies():
+                        result = x - y if subtract else x + y
         except u.UnitConversionError:
             raise fail(x, y) from None
         except ValueError:

@@ -37,7 +37,7 @@ from ..physics.records import Record, RecordList
 from ..physics.units import quantity
 from . import uncertain
 from .context import context
-from .samples import Samples, value_ndim
+from .samples import Samples, percentiles, value_ndim
 from .uncertain import Input, Uncertain
 
 _item = np.ndarray.item  # the float of a 0-d array
@@ -342,7 +342,7 @@ class Shown:
         if self.samples is None:
             return None
         if self._points is None:
-            self._points = np.percentile(self.samples, [16, 50, 84], axis=0)
+            self._points = percentiles(self.samples)
         return self._points
 
 
