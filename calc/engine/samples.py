@@ -17,6 +17,7 @@ those registered ``samplewise`` take single values and run once per sample.
 from __future__ import annotations
 
 from collections.abc import Callable
+from functools import lru_cache
 
 import astropy.units as u
 import numpy as np
@@ -185,30 +186,40 @@ def percentiles(data: np.ndarray, points=POINTS) -> np.ndarray:
 
 def _points(x: np.ndarray, points) -> np.ndarray:
     """The percentiles of a 1-d float array, as np.percentile computes them."""
-    n = x.size
-    q = np.true_divide(np.asarray(points), 100)        # as np.percentile
-    virtual = (n - 1) * q                               # numpy's "linear" virtual index
-    previous = np.floor(virtual)
-    if np.isnan(x).any() or not ((previous >= 0) & (virtual < n - 1)).all():
+    plan = _plan(x.size, tuple(points))
+    if plan is None or np.isnan(x).any():
         return np.percentile(x, list(points))           # nan, or an end point: numpy's own way
-    previous_ranks = previous.astype(np.intp)
-    next_ranks = previous_ranks + 1
-    found = _order_statistics(x, {*previous_ranks.tolist(), *next_ranks.tolist()})
-    below = np.array([found[r] for r in previous_ranks.tolist()])
-    above = np.array([found[r] for r in next_ranks.tolist()])
-    gamma = np.asanyarray(virtual - previous_ranks, dtype=virtual.dtype)
+    previous_ranks, next_ranks, gamma, upper = plan
+    found = _order_statistics(x, sorted({*previous_ranks, *next_ranks}))
+    below = np.array([found[r] for r in previous_ranks])
+    above = np.array([found[r] for r in next_ranks])
     # numpy's _lerp: a + (b - a) t, or b - (b - a)(1 - t) from t = 0.5 on
     difference = above - below
     result = np.add(below, difference * gamma)
-    np.subtract(above, difference * (1 - gamma), out=result, where=gamma >= 0.5)
+    np.subtract(above, difference * (1 - gamma), out=result, where=upper)
     return result
 
 
-def _order_statistics(x: np.ndarray, ranks: set[int]) -> dict[int, float]:
-    """The values of the given 0-based ranks of ``x`` in sorted order (``x`` has no nan)."""
+@lru_cache(maxsize=64)
+def _plan(n: int, points: tuple) -> tuple | None:
+    """The ranks either side of each point and the interpolation weights, as np.percentile
+    finds them for ``n`` values; None when a point falls on an end (numpy's own way then)."""
+    q = np.true_divide(np.asarray(points), 100)         # as np.percentile
+    virtual = (n - 1) * q                               # numpy's "linear" virtual index
+    previous = np.floor(virtual)
+    if not ((previous >= 0) & (virtual < n - 1)).all():
+        return None
+    previous_ranks = previous.astype(np.intp)
+    gamma = np.asanyarray(virtual - previous_ranks, dtype=virtual.dtype)
+    return (tuple(previous_ranks.tolist()), tuple((previous_ranks + 1).tolist()), gamma,
+            gamma >= 0.5)
+
+
+def _order_statistics(x: np.ndarray, ranks: list[int]) -> dict[int, float]:
+    """The values of the given 0-based ranks (sorted) of ``x`` in sorted order (no nan)."""
     work = np.array(x, dtype=np.float64)  # a copy, partitioned in place
     found: dict[int, float] = {}
-    todo = [(0, work.size, sorted(ranks))]
+    todo = [(0, work.size, ranks)]
     while todo:
         start, stop, wanted = todo.pop()
         if not wanted:
