@@ -264,7 +264,7 @@ class _Compiler:
         self.deps: dict[str, Span] = {}
         self.looked_up: set[str] = set()
         #: the scalar kernel (run.py) of each compiled code that has one, by the code's id
-        self.kernels: dict[int, object] = {}
+        self.kernels: dict[int, Kernel] = {}
 
     # -- helpers
     def text(self, start: Span, end: Span | None = None) -> str:

@@ -32,7 +32,7 @@ class _Node:
     relsheet's own import time.
     """
 
-    __slots__ = ()
+    __slots__: tuple[str, ...] = ()
 
     def _values(self) -> tuple[Any, ...]:
         return tuple(getattr(self, name) for name in self.__slots__)
