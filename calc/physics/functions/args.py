@@ -106,7 +106,8 @@ def positive(value, q: u.Quantity, name: str, what: str = "positive") -> None:
 
 GM_UNIT = u.m**3 / u.s**2
 ANGULAR_MOMENTUM_UNIT = u.kg * u.m**2 / u.s
-# composite units made once: astropy builds a new one (tens of microseconds) at every `/`
+# composite units made once: astropy builds a new one (tens of microseconds) at every `/`;
+# constants are read with value_in, whose conversion factors are cached
 _G_UNIT = GM_UNIT / u.kg
 _SPEED_UNIT = u.m / u.s
 
@@ -127,7 +128,7 @@ def gravitational_parameter(M: u.Quantity, name: str = "M"):
                 f"`{name}` must be a mass or a gravitational parameter (m^3 / s^2), got {show(M)}",
                 name) from None
     else:
-        gm = kg * active("G").to_value(_G_UNIT)
+        gm = kg * value_in(active("G"), _G_UNIT)
     positive(gm, M, name)
     return gm
 
@@ -181,7 +182,7 @@ def ppn(q: u.Quantity | None, name: str):
 
 
 def speed_of_light() -> float:
-    return active("c").to_value(_SPEED_UNIT)
+    return value_in(active("c"), _SPEED_UNIT)
 
 
 def weak_field(gm, r, name: str, c: float, argument: str | None = None) -> None:
