@@ -138,8 +138,8 @@ def _unlink(path: Path) -> None:
 def open_store() -> Store | None:
     """The cache folder, created if need be, with its key; None when the cache is off or the
     folder cannot be trusted (not ours) or used (read-only home)."""
-    if not enabled():
-        return None
+    if not enabled() or not hasattr(os, "getuid") or not hasattr(os, "O_NOFOLLOW"):
+        return None  # off, or a system where ownership and links cannot be checked this way
     folder = folder_path()
     try:
         folder.mkdir(mode=0o700, parents=True, exist_ok=True)
