@@ -18,6 +18,15 @@ def only_error(sheet: Sheet, name: str):
     return cell.error
 
 
+@pytest.fixture(scope="session", autouse=True)
+def private_cache(tmp_path_factory):
+    """The suite's own cache folder (the analysed grammar, parsed sheets, prompt history), so
+    that tests neither read nor fill the user's. `RELSHEET_CACHE=off` runs it without one."""
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setenv("XDG_CACHE_HOME", str(tmp_path_factory.mktemp("cache")))
+        yield
+
+
 @pytest.fixture
 def sheet_of():
     return evaluate

@@ -53,12 +53,28 @@ from ..language.syntax import (
 )
 from ..physics import functions
 from ..physics.records import Record, RecordList
-from ..physics.units import close_matches, conversion_scale, describe, did_you_mean, quantity, value_in
+from ..physics.units import (
+    close_matches,
+    conversion_scale,
+    describe,
+    did_you_mean,
+    quantity,
+    unit_product,
+    value_in,
+)
 from .context import context
 from .run import (
+    ADD,
+    DIV,
+    MUL,
+    NEG,
+    POW,
+    REF,
+    SUB,
     CellProgram,
     Code,
     Const,
+    Kernel,
     _finite,
     add_op,
     checked,
@@ -67,6 +83,8 @@ from .run import (
     mul_op,
     neg_op,
     power_op,
+    scalar_constant,
+    scalar_power,
     unit_range_error,
 )
 from .samples import Samples, draw
@@ -261,6 +279,8 @@ class _Compiler:
         self.inputs_made = 0
         self.deps: dict[str, Span] = {}
         self.looked_up: set[str] = set()
+        #: the scalar kernel (run.py) of each compiled code that has one, by the code's id
+        self.kernels: dict[int, Kernel] = {}
 
     # -- helpers
     def text(self, start: Span, end: Span | None = None) -> str:
@@ -268,7 +288,33 @@ class _Compiler:
 
     def cell_ref(self, name: str, span: Span) -> Code:
         self.deps.setdefault(name, span)
-        return itemgetter(name)
+        code = itemgetter(name)
+        self.kernels[id(code)] = (REF, name)
+        return code
+
+    # -- scalar kernels (run.py): each arithmetic code gets one when its operands have one
+    def kernel(self, code: Code) -> Kernel | None:
+        if type(code) is Const:
+            return scalar_constant(code.value)
+        return self.kernels.get(id(code))
+
+    def with_kernel(self, code: Code, op: int, a: Code, b: Code | None = None) -> Code:
+        """``code``, with the kernel (op, kernels of a and b) when they both have one."""
+        if type(code) is Const:
+            return code
+        ka = scalar_constant(a.value) if type(a) is Const else self.kernels.get(id(a))
+        if ka is None:
+            return code
+        if b is None:
+            self.kernels[id(code)] = (op, ka)
+            return code
+        kb = scalar_constant(b.value) if type(b) is Const else self.kernels.get(id(b))
+        if kb is None:
+            return code
+        kernel = scalar_power(ka, kb) if op == POW else (op, ka, kb)
+        if kernel is not None:
+            self.kernels[id(code)] = kernel
+        return code
 
     def resolved(self, resolved, span: Span) -> Code:
         if resolved.kind == "unit":
@@ -390,19 +436,25 @@ class _Compiler:
             left = self.expr(node.left, depth + 1)
             right = self.expr(node.right, depth + 1)
             if node.op == "*":
-                return _lift(mul_op(node.span, divide=False), left, right)
-            return _lift(add_op(node.span, subtract=node.op == "-"), left, right)
+                return self.with_kernel(_lift(mul_op(node.span, divide=False), left, right),
+                                        MUL, left, right)
+            subtract = node.op == "-"
+            return self.with_kernel(_lift(add_op(node.span, subtract=subtract), left, right),
+                                    SUB if subtract else ADD, left, right)
         if kind is Chain:
             return self.chain(node, depth)[0]
         if kind is UnaryOp:
             operand = self.expr(node.operand, depth + 1)
-            return operand if node.op == "+" else _lift(neg_op(node.span), operand)
+            if node.op == "+":
+                return operand
+            return self.with_kernel(_lift(neg_op(node.span), operand), NEG, operand)
         if kind is PlusMinus:
             return self.plus_minus(node, depth)
         if kind is Power:
             base = self.expr(node.base, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
-            return _lift(power_op(node.span, node.exponent.span), base, exponent)
+            return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
+                                    POW, base, exponent)
         if kind is Group:
             return self.expr(node.inner, depth + 1)
         if kind is Call:
@@ -431,7 +483,8 @@ class _Compiler:
         if kind is NamePower:
             base = self.expr(node.name, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
-            return _lift(power_op(node.span, node.exponent.span), base, exponent)
+            return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
+                                    POW, base, exponent)
         raise NameResolutionError("this is not a value", node.span)
 
     def chain(self, node: Chain, depth: int) -> tuple[Code, bool]:
@@ -443,7 +496,14 @@ class _Compiler:
                 item_code, is_open = self.chain_item(item, depth, self._juxtaposed(node, item))
             else:
                 item_code = self.expr(item, depth + 1)
-            code = _lift(mul_op(node.span, divide=False), code, item_code)
+            if type(code) is Const and type(item_code) is Const \
+                    and isinstance(item_code.value, u.UnitBase) and type(code.value) is u.Quantity \
+                    and code.value.unit is _ONE:
+                # a number and its unit (`1500 km`), folded at once
+                code = Const(quantity(code.value.value, unit_product(_ONE, item_code.value)))
+                continue
+            code = self.with_kernel(_lift(mul_op(node.span, divide=False), code, item_code),
+                                    MUL, code, item_code)
         return code, is_open
 
     # The two spellings an ambiguous name's hint shows, built only when needed.
@@ -488,7 +548,8 @@ class _Compiler:
                 return Const(resolved.unit ** self.exponent_number(item.exponent, depth)), True
             base = self.resolved(resolved, name.span)
             exponent = self.expr(item.exponent, depth + 1)
-            return _lift(power_op(item.span, item.exponent.span), base, exponent), False
+            code = _lift(power_op(item.span, item.exponent.span), base, exponent)
+            return self.with_kernel(code, POW, base, exponent), False
         if isinstance(item, Name):
             self.looked_up.add(item.id)
             resolved = self.scope.in_chain(item, spellings)
@@ -514,19 +575,21 @@ class _Compiler:
                 right, is_open = self.chain_item(node.right, depth, self._divided(node))
             else:
                 right, is_open = self.expr(node.right, depth + 1), False
-            return _lift(mul_op(node.span, divide=True), left, right), is_open
+            code = _lift(mul_op(node.span, divide=True), left, right)
+            return self.with_kernel(code, DIV, left, right), is_open
         if kind is BinaryOp and node.op == "*":
             # `x * 3 km / s` reads as `x * (3 km / s)`: the chain of the right factor stays
             # open, as it would at the start of an expression (the number is the same)
             left = self.expr(node.left, depth + 1)
             right, is_open = self.chainable(node.right, depth + 1, False)
-            return _lift(mul_op(node.span, divide=False), left, right), is_open
+            code = _lift(mul_op(node.span, divide=False), left, right)
+            return self.with_kernel(code, MUL, left, right), is_open
         if kind is UnaryOp:
             # `-2 km / s`: the minus does not hide the number from the chain
             operand, is_open = self.chainable(node.operand, depth + 1, False)
             if node.op == "+":
                 return operand, is_open
-            return _lift(neg_op(node.span), operand), is_open
+            return self.with_kernel(_lift(neg_op(node.span), operand), NEG, operand), is_open
         return self.expr(node, depth), False
 
     def call(self, node: Call, depth: int) -> Code:
@@ -699,6 +762,8 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
                     lambda: finish(program, _constant(again.expr(definition.expr))))
         else:
             program.run = code
+            kernel = compiler.kernel(code)
+            program.scalar = kernel if kernel is not None and kernel[0] >= REF else None
     except SheetError as err:
         program.error = err.located(definition.span, compiler.source)
     except (u.UnitScaleError, OverflowError):

@@ -40,6 +40,9 @@ class DependencyGraph:
         """(cells in evaluation order, cycles). Each cycle is a closed path through it and
         every cell of its strongly connected component (a path shows one loop; the component
         may hold more cells on other loops). Cells in a cycle are not in the order."""
+        out = self._kahn(set())
+        if len(out) == len(self.uses):
+            return out, []  # every cell ordered: no cycle (the usual case; no need for Tarjan)
         components = self._components()
         in_cycle: set[str] = set()
         cycles: list[tuple[list[str], set[str]]] = []
@@ -47,22 +50,29 @@ class DependencyGraph:
             if len(comp) > 1 or comp[0] in self.uses.get(comp[0], ()):
                 cycles.append((self._cycle_path(set(comp)), set(comp)))
                 in_cycle.update(comp)
-        # Kahn's algorithm over the rest, smallest file rank first
-        remaining = {n: len([d for d in self.uses[n] if d in self.uses and d not in in_cycle])
-                     for n in self.uses if n not in in_cycle}
-        ready = [(self.rank.get(n, 0), n) for n, k in remaining.items() if k == 0]
+        out = self._kahn(in_cycle)
+        cycles.sort(key=lambda c: min(self.rank.get(n, 0) for n in c[1]))
+        return out, cycles
+
+    def _kahn(self, in_cycle: set[str]) -> list[str]:
+        """Kahn's algorithm over the cells not in ``in_cycle``, smallest file rank first."""
+        uses = self.uses
+        remaining = {n: len([d for d in uses[n] if d in uses and d not in in_cycle])
+                     for n in uses if n not in in_cycle}
+        rank = self.rank
+        ready = [(rank.get(n, 0), n) for n, k in remaining.items() if k == 0]
         heapq.heapify(ready)
         out: list[str] = []
+        users = self.users
         while ready:
             _, name = heapq.heappop(ready)
             out.append(name)
-            for user in self.users.get(name, ()):
+            for user in users.get(name, ()):
                 if user in remaining:
                     remaining[user] -= 1
                     if remaining[user] == 0:
-                        heapq.heappush(ready, (self.rank.get(user, 0), user))
-        cycles.sort(key=lambda c: min(self.rank.get(n, 0) for n in c[1]))
-        return out, cycles
+                        heapq.heappush(ready, (rank.get(user, 0), user))
+        return out
 
     def _components(self) -> list[list[str]]:
         """Tarjan's strongly connected components, without recursion."""

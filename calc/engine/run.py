@@ -79,6 +79,8 @@ class CellProgram:
     definition: CellDef
     source: Source
     run: Callable[[Env], Any] | None = None
+    #: the same computation on floats, for plain single quantities (see "scalar kernels")
+    scalar: tuple | None = None
     constant: Any = None
     unit: u.UnitBase | None = None
     unit_span: Span | None = None
@@ -169,8 +171,13 @@ def add_op(span: Span, subtract: bool):
                 yv = y.value if scale == 1.0 else y.value * scale
                 result = quantity(x.value - yv if subtract else x.value + yv, x.unit)
             else:
-                with angle_equivalencies():
+                try:
                     result = x - y if subtract else x + y
+                except u.UnitConversionError:
+                    # only angles and plain numbers need the equivalency, and enabling it
+                    # costs more than most additions (astropy copies its unit registry)
+                    with angle_equivalencies():
+                        result = x - y if subtract else x + y
         except u.UnitConversionError:
             raise fail(x, y) from None
         except ValueError:
@@ -288,6 +295,138 @@ def field_op(parts: tuple[str, ...], span: Span):
     return apply
 
 
+# ---- scalar kernels --------------------------------------------------------------------------
+# The arithmetic of a cell whose inputs are plain single quantities, on floats. A kernel
+# returns (value, unit): the value a float, the unit found with the cached unit algebra, so
+# a cell makes one Quantity at its end instead of one per operation. Each kernel does the
+# float operations of the operation above it in the same order, so the result is the same
+# to the last bit; whatever it does not handle (a value of another kind, an error to report,
+# a result that is not finite) makes it give up (raise one of GIVE_UP), and the cell runs
+# through its operations as usual. Kernels are used only while results are not checked
+# operation by operation.
+
+
+class NotScalar(Exception):
+    """A kernel met a value that is not a plain single quantity. (Raised as a new instance each
+    time: an instance raised again would keep every traceback, and the values in its frames.)"""
+
+
+#: what a kernel raises to give up (the ordinary operations then say what is wrong, if anything)
+GIVE_UP = (NotScalar, ArithmeticError, ValueError, u.UnitsError)
+_item = np.ndarray.item  # the float of a 0-d array, far cheaper than Quantity.value
+_QUANTITY = u.Quantity
+
+# A kernel is a nested tuple, read by scalar_value: cheaper to make at compile time than a
+# tree of closures, which matters as much as its speed, since most cells run once.
+#   (CONST, value, unit)       a constant single quantity
+#   (UNIT, unit)               a unit written as an operand (`(1 + x) AU`)
+#   (REF, name)                a cell
+#   (MUL | DIV | ADD | SUB, a, b)
+#   (NEG, a)
+#   (POW, a, e, p)             a ^ e for a written dimensionless exponent (e as np.float64,
+#                              p as float: what power_op computes with)
+CONST, UNIT, REF, MUL, DIV, ADD, SUB, NEG, POW = range(9)
+Kernel = tuple
+
+#: operand forms of constants by the constant's id (constants are shared: literal numbers and
+#: units); each entry keeps its constant alive so that the id stays its own. Bounded.
+_OPERANDS: dict[int, tuple[object, Kernel]] = {}
+_KEPT = 4096
+
+
+def scalar_constant(value) -> Kernel | None:
+    """The kernel of a constant: a plain single quantity or a unit; None for anything else."""
+    hit = _OPERANDS.get(id(value))
+    if hit is not None:
+        return hit[1]
+    if type(value) is _QUANTITY and value.ndim == 0:
+        kernel: Kernel = (CONST, _item(value), value.unit)
+    elif isinstance(value, u.UnitBase):
+        kernel = (UNIT, value)
+    else:
+        return None
+    if len(_OPERANDS) >= _KEPT:
+        _OPERANDS.clear()
+    _OPERANDS[id(value)] = (value, kernel)
+    return kernel
+
+
+def scalar_power(base: Kernel, exponent: Kernel) -> Kernel | None:
+    if exponent[0] != CONST or not is_one(exponent[2]) or base[0] == UNIT:
+        return None
+    e = np.float64(exponent[1])  # what value_in gives power_op
+    return (POW, base, e, float(e))
+
+
+def scalar_value(kernel: Kernel, env: Env) -> tuple[Any, u.UnitBase]:
+    """(value, unit) of a kernel, with the float operations of the operations it stands for
+    (mul_op, add_op, neg_op, power_op on plain quantities) in the same order."""
+    op = kernel[0]
+    if op == REF:
+        v = env[kernel[1]]
+        if type(v) is not _QUANTITY or v.ndim:
+            raise NotScalar
+        return _item(v), v.unit
+    if op == CONST:
+        return kernel[1], kernel[2]
+    if op <= DIV:  # MUL, DIV
+        left = kernel[1]
+        if left[0] == UNIT:
+            raise NotScalar  # a unit times a value: astropy's own arithmetic, as in mul_op
+        av, au = scalar_value(left, env)
+        right = kernel[2]
+        if right[0] == UNIT:
+            return av, (unit_product(au, right[1]) if op == MUL else unit_quotient(au, right[1]))
+        bv, bu = scalar_value(right, env)
+        if op == MUL:
+            return av * bv, unit_product(au, bu)
+        return av / bv, unit_quotient(au, bu)
+    if op <= SUB:  # ADD, SUB
+        left, right = kernel[1], kernel[2]
+        if left[0] == UNIT or right[0] == UNIT:
+            raise NotScalar
+        xv, xu = scalar_value(left, env)
+        yv, yu = scalar_value(right, env)
+        scale = conversion_scale(yu, xu)
+        if scale != 1.0:
+            yv = yv * scale
+        return (xv + yv if op == ADD else xv - yv), xu
+    if op == NEG:
+        v, unit = scalar_value(kernel[1], env)
+        return -v, unit
+    if op == POW:
+        bv, bu = scalar_value(kernel[1], env)
+        if is_one(bu):
+            return np.power(bv, kernel[2]), _ONE
+        p = kernel[3]
+        return np.power(bv, p), unit_power(bu, p)
+    raise NotScalar
+
+
+def finish_scalar(program: CellProgram, value, unit: u.UnitBase):
+    """:func:`finish` for a kernel's result: the cell's Quantity, or None when the ordinary
+    path must run (a conversion that fails, a result that is not finite)."""
+    if program.unit is not None:
+        try:
+            scale = conversion_scale(unit, program.unit)
+        except u.UnitConversionError:
+            return None
+        unit = program.unit
+    elif plain_number_unit(unit):
+        scale = conversion_scale(unit, _ONE)
+        unit = _ONE
+    else:
+        scale = 1.0
+        simpler = None if program.literal else simplified(unit)
+        if simpler is not None:   # as normalise does: `AU km` → `AU^2`
+            return None
+    if scale != 1.0:
+        value = value * scale
+    if not math.isfinite(value):
+        return None
+    return quantity(value, unit)
+
+
 # ---- conversions at the end of a cell ------------------------------------------------------
 
 
@@ -356,6 +495,16 @@ def run_cell(program: CellProgram, env: Env):
     """Evaluate a compiled cell with its inputs in ``env``; raises SheetError."""
     if program.constant is not None:
         return program.constant
+    kernel = program.scalar
+    if kernel is not None and not context().checking:
+        try:
+            value, unit = scalar_value(kernel, env)
+        except GIVE_UP:
+            pass
+        else:
+            result = finish_scalar(program, value, unit)
+            if result is not None:
+                return result
     try:
         value = finish(program, program.run(env))
         if not all_finite(value):

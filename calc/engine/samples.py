@@ -17,6 +17,7 @@ those registered ``samplewise`` take single values and run once per sample.
 from __future__ import annotations
 
 from collections.abc import Callable
+from functools import lru_cache
 
 import astropy.units as u
 import numpy as np
@@ -149,3 +150,111 @@ def draw(normal: np.ndarray, nominal: u.Quantity, sigma: u.Quantity,
         return Samples(quantity(nv + sv * normal, nominal.unit))
     z = np.stack(per_element or [], axis=-1).reshape((len(normal), *nv.shape))
     return Samples(quantity(nv + sv * z, nominal.unit))
+
+
+# ---- percentiles ------------------------------------------------------------------------------
+# `--mc` shows the 16/50/84 % points of every cell. np.percentile finds them with one partition
+# of the samples at six ranks at once, which numpy does with a general selection algorithm
+# (about 2.5 ms for 10^5 samples); numpy selects a single rank with a vectorised one that is
+# six times as fast. So the ranks are found one at a time, each partition working inside the
+# part the previous ones left (a rank next to one found is the largest or smallest value of
+# the part beside it), and the points are interpolated between them exactly as np.percentile
+# does (method "linear", Hyndman & Fan's definition 7): the same numbers to the last bit,
+# which :func:`_agrees` checks once per process before the first use.
+
+#: The points `--mc` shows.
+POINTS = (16, 50, 84)
+
+#: Below this many samples np.percentile itself is as fast.
+_FAST_FROM = 4096
+
+
+def percentiles(data: np.ndarray, points=POINTS) -> np.ndarray:
+    """``np.percentile(data, points, axis=0)`` (method "linear"), the same numbers, faster for
+    many samples: shape (len(points), *data.shape[1:])."""
+    data = np.asarray(data)
+    if data.shape[0] < _FAST_FROM or data.dtype != np.float64 or not _agrees():
+        return np.percentile(data, list(points), axis=0)
+    if data.ndim == 1:
+        return _points(data, points)
+    columns = data.reshape(data.shape[0], -1)
+    out = np.empty((len(points), columns.shape[1]))
+    for j in range(columns.shape[1]):
+        out[:, j] = _points(np.ascontiguousarray(columns[:, j]), points)
+    return out.reshape((len(points), *data.shape[1:]))
+
+
+def _points(x: np.ndarray, points) -> np.ndarray:
+    """The percentiles of a 1-d float array, as np.percentile computes them."""
+    plan = _plan(x.size, tuple(points))
+    if plan is None or np.isnan(x).any():
+        return np.percentile(x, list(points))           # nan, or an end point: numpy's own way
+    previous_ranks, next_ranks, gamma, upper = plan
+    found = _order_statistics(x, sorted({*previous_ranks, *next_ranks}))
+    below = np.array([found[r] for r in previous_ranks])
+    above = np.array([found[r] for r in next_ranks])
+    # numpy's _lerp: a + (b - a) t, or b - (b - a)(1 - t) from t = 0.5 on
+    difference = above - below
+    result = np.add(below, difference * gamma)
+    np.subtract(above, difference * (1 - gamma), out=result, where=upper)
+    return result
+
+
+@lru_cache(maxsize=64)
+def _plan(n: int, points: tuple) -> tuple | None:
+    """The ranks either side of each point and the interpolation weights, as np.percentile
+    finds them for ``n`` values; None when a point falls on an end (numpy's own way then)."""
+    q = np.true_divide(np.asarray(points), 100)         # as np.percentile
+    virtual = (n - 1) * q                               # numpy's "linear" virtual index
+    previous = np.floor(virtual)
+    if not ((previous >= 0) & (virtual < n - 1)).all():
+        return None
+    previous_ranks = previous.astype(np.intp)
+    gamma = np.asanyarray(virtual - previous_ranks, dtype=virtual.dtype)
+    return (tuple(previous_ranks.tolist()), tuple((previous_ranks + 1).tolist()), gamma,
+            gamma >= 0.5)
+
+
+def _order_statistics(x: np.ndarray, ranks: list[int]) -> dict[int, float]:
+    """The values of the given 0-based ranks (sorted) of ``x`` in sorted order (no nan)."""
+    work = np.array(x, dtype=np.float64)  # a copy, partitioned in place
+    found: dict[int, float] = {}
+    todo = [(0, work.size, ranks)]
+    while todo:
+        start, stop, wanted = todo.pop()
+        if not wanted:
+            continue
+        k = wanted[len(wanted) // 2]
+        part = work[start:stop]
+        part.partition(k - start)   # one rank: numpy's fast selection
+        found[k] = part[k - start]
+        left = [r for r in wanted if r < k]
+        right = [r for r in wanted if r > k]
+        if left and left[-1] == k - 1:
+            found[k - 1] = part[:k - start].max()
+            left.pop()
+        if right and right[0] == k + 1:
+            found[k + 1] = part[k - start + 1:].min()
+            right.pop(0)
+        todo.append((start, k, left))
+        todo.append((k + 1, stop, right))
+    return found
+
+
+_AGREES: list[bool] = []
+
+
+def _agrees() -> bool:
+    """Whether :func:`_points` gives np.percentile's numbers with this numpy (checked once)."""
+    if not _AGREES:
+        rng = np.random.default_rng(20260101)
+        trials = [rng.standard_normal(_FAST_FROM + 17), np.exp(rng.standard_normal(10_001)),
+                  np.round(rng.standard_normal(6000), 1),          # many equal values
+                  np.concatenate([rng.standard_normal(5000), [np.inf, -np.inf]])]
+        try:
+            ok = all(np.array_equal(_points(t, POINTS), np.percentile(t, list(POINTS)))
+                     for t in trials)
+        except Exception:  # noqa: BLE001 - any surprise means: use numpy's own
+            ok = False
+        _AGREES.append(ok)
+    return _AGREES[0]

@@ -37,8 +37,10 @@ from ..physics.records import Record, RecordList, is_date
 from ..physics.units import quantity
 from . import uncertain
 from .context import context
-from .samples import Samples, value_ndim
+from .samples import Samples, percentiles, value_ndim
 from .uncertain import Input, Uncertain
+
+_item = np.ndarray.item  # the float of a 0-d array
 
 Leaf = Union[u.Quantity, Uncertain, Samples]
 Value = Union[u.Quantity, Uncertain, Samples, Record, RecordList]
@@ -345,6 +347,9 @@ def same(a, b) -> bool:
         return True
     if a is None or b is None:
         return False
+    if type(a) is u.Quantity and type(b) is u.Quantity and a.ndim == 0 and b.ndim == 0:
+        # two single quantities (most cells): what the general case below finds, cheaply
+        return a.unit == b.unit and _item(a) == _item(b)
     if isinstance(a, Record) or isinstance(b, Record):
         return isinstance(a, Record) and isinstance(b, Record) and a.kind == b.kind \
             and a.label == b.label and list(a.fields) == list(b.fields) \
@@ -399,7 +404,7 @@ class Shown:
         if self.samples is None:
             return None
         if self._points is None:
-            self._points = np.percentile(self.samples, [16, 50, 84], axis=0)
+            self._points = percentiles(self.samples)
         return self._points
 
 

@@ -10,6 +10,7 @@ never a Python traceback unless ``--debug`` is given.
 from __future__ import annotations
 
 import argparse
+import gc
 import os
 import sys
 import traceback
@@ -438,6 +439,7 @@ def cmd_watch(args) -> int:
     from ..outputs.compare import diff
     from ..outputs.report import render_text
 
+    gc.enable()  # a long session (see `run`)
     path = Path(args.file)
     sheet = Sheet.load(path)
     print(render_text(sheet, 6), flush=True)
@@ -480,6 +482,7 @@ def cmd_units(args) -> int:
 def cmd_repl(args) -> int:
     from .repl import run
 
+    gc.enable()  # a long session (see `run`)
     return run(args.file, debug=getattr(args, "debug", False))
 
 
@@ -500,8 +503,12 @@ def run() -> None:
 
     Leaves through ``os._exit`` once the output is flushed: tearing down astropy's
     modules and the sheet's objects at interpreter exit costs a third of a short
-    run and does nothing a finished command needs.
+    run and does nothing a finished command needs. For the same reason the cyclic
+    garbage collector is off (its passes over astropy's import-time objects and the
+    sheet cost a tenth of a run and free nothing a command would reuse); the
+    long-running commands (`watch`, `repl`) turn it back on.
     """
+    gc.disable()
     code = main()
     try:
         sys.stdout.flush()

@@ -1,27 +1,33 @@
-"""The parser: grammar loading (built once, cached on disk), bracket handling, errors.
+"""The parser: grammar loading (analysed once, cached on disk), bracket handling, errors.
 
 ``parse_sheet`` turns sheet text into statements. The whole text is parsed in
 one LALR pass; only when that fails is the text split into statements and each
 parsed alone, so that one bad line is reported without losing the others.
+
+Both the analysed grammar and the statements of a sheet that parsed are cached
+on disk as data (:mod:`calc.language.cache`), so an unchanged sheet is read
+back without running the parser, and lark is imported only when something
+needs parsing.
 """
 
 from __future__ import annotations
 
-import hashlib
-import os
+import json
 import re
-import sys
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
-
-import lark
-from lark import Lark, Token
-from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput
+from typing import TYPE_CHECKING, Any
 
 from ..errors import InputError, SheetError, SheetSyntaxError, Source, Span, split_lines
-from .lexer import SheetLexer
+from . import cache, serial
 from .syntax import RESERVED_WORDS, CellDef, ExpressionLine, NodeBuilder, Statement, token_span
+
+if TYPE_CHECKING:
+    from lark import Lark, Token
+    from lark.exceptions import UnexpectedInput
+
+    from .lexer import SheetLexer
 
 # Words a reader understands, for the terminals the parser says it expected.
 _TERMINAL_WORDS = {
@@ -46,40 +52,120 @@ def grammar_path() -> Path:
                      hint="reinstall relsheet")
 
 
-def _cache_dir() -> Path:
-    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
-    return Path(base) / "relsheet"
+_START = ["sheet", "expression_input", "prompt_input"]
+
+#: Entries of the analysed grammar the cache keeps (other installed versions may want theirs).
+_KEEP_TABLES = 4
+#: Parsed sheets the cache keeps (the least recently used go first).
+_KEEP_PARSES = 256
 
 
-def _prune_grammar_caches(folder: Path, keep: Path, spare: int = 4) -> None:
-    """Keep the newest few analysed grammars (other installed versions may want theirs)."""
-    caches = sorted(folder.glob("grammar-*.cache"), key=lambda p: p.stat().st_mtime, reverse=True)
-    for old in [p for p in caches if p != keep][spare:]:
-        try:
-            old.unlink()
-        except OSError:
-            pass
+def _options() -> dict[str, Any]:
+    from .lexer import SheetLexer
+
+    return dict(parser="lalr", lexer=SheetLexer, transformer=NodeBuilder(), start=_START,
+                maybe_placeholders=True)
 
 
 @lru_cache(maxsize=1)
 def _parser() -> tuple[Lark, SheetLexer]:
-    path = grammar_path()
-    text = path.read_text(encoding="utf-8")
-    key = hashlib.sha256((text + lark.__version__ + sys.version).encode()).hexdigest()[:16]
-    options = dict(parser="lalr", lexer=SheetLexer, transformer=NodeBuilder(),
-                   start=["sheet", "expression_input", "prompt_input"], maybe_placeholders=True)
-    cache_dir = _cache_dir()
-    try:
-        cache_dir.mkdir(parents=True, exist_ok=True)
-        cache_file = cache_dir / f"grammar-{key}.cache"
-        fresh = not cache_file.exists()
-        parser = Lark(text, cache=str(cache_file), **options)
-        if fresh:
-            _prune_grammar_caches(cache_dir, keep=cache_file)
-    except OSError:
-        # a read-only home still parses, only slower to start
-        parser = Lark(text, **options)
+    from lark import Lark
+
+    text = grammar_path().read_text(encoding="utf-8")
+    store = cache.open_store()
+    subject = _tables_subject(text)
+    parser = _tables_from_json(cache.load(store, "tables", subject)) if store else None
+    if parser is None:
+        parser = Lark(text, **_options())
+        if store is not None:
+            payload = _tables_to_json(parser)
+            if payload is not None:
+                cache.save(store, "tables", subject, payload, _KEEP_TABLES)
+            # analysed grammars of earlier versions were pickled: never to be loaded again
+            for old in store.folder.glob("grammar-*.cache"):
+                try:
+                    old.unlink()
+                except OSError:
+                    pass
     return parser, parser.parser.lexer
+
+
+def _tables_subject(grammar: str) -> str:
+    import lark
+
+    return cache.digest(b"tables 1", grammar.encode(), lark.__version__.encode())
+
+
+# lark's analysed grammar (its `memo_serialize` form: dicts, lists, tuples, strings, numbers
+# and our lexer class) as JSON. Tuples and dicts keyed by integers (parse states) are tagged;
+# the lexer class is written as its name and put back by us, never looked up from the data.
+_LEXER_NAME = "SheetLexer"
+# options lark does not keep in a saved parser (objects given again when loading)
+_LOADED_OPTIONS = {"transformer", "lexer", "postlex", "lexer_callbacks", "edit_terminals",
+                   "_plugins", "tree_class"}
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, dict):
+        if all(type(k) is str for k in value):
+            return {k: _plain(v) for k, v in value.items()}
+        if all(type(k) is int for k in value):
+            return {"#int": [[k, _plain(v)] for k, v in value.items()]}
+        raise TypeError("a dict with mixed keys")
+    if isinstance(value, tuple):
+        return {"#tuple": [_plain(v) for v in value]}
+    if isinstance(value, list):
+        return [_plain(v) for v in value]
+    if value is None or type(value) in (str, int, float, bool):
+        return value
+    raise TypeError(f"cannot store {type(value).__name__}")
+
+
+def _tagged(obj: dict) -> Any:
+    if len(obj) == 1:
+        if "#int" in obj:
+            return {int(k): v for k, v in obj["#int"]}
+        if "#tuple" in obj:
+            return tuple(obj["#tuple"])
+    return obj
+
+
+def _tables_to_json(parser: Lark) -> bytes | None:
+    from lark.grammar import Rule
+    from lark.lexer import TerminalDef
+
+    from .lexer import SheetLexer
+
+    data, memo = parser.memo_serialize([TerminalDef, Rule])
+    data["options"] = {k: v for k, v in data["options"].items() if k not in _LOADED_OPTIONS}
+    lexer_conf = data["parser"]["lexer_conf"]
+    if lexer_conf.get("lexer_type") is not SheetLexer:
+        return None
+    lexer_conf["lexer_type"] = _LEXER_NAME
+    try:
+        return json.dumps({"data": _plain(data), "memo": _plain(memo)},
+                          separators=(",", ":")).encode("ascii")
+    except (TypeError, ValueError):
+        return None
+
+
+def _tables_from_json(payload: bytes | None) -> Lark | None:
+    if payload is None:
+        return None
+    from lark import Lark
+
+    from .lexer import SheetLexer
+
+    try:
+        stored = json.loads(payload, object_hook=_tagged)
+        data, memo = stored["data"], stored["memo"]
+        if data["parser"]["lexer_conf"]["lexer_type"] != _LEXER_NAME:
+            return None
+        data["parser"]["lexer_conf"]["lexer_type"] = SheetLexer
+        data["options"]["lexer"] = SheetLexer
+        return Lark._load_from_dict(data, memo, transformer=NodeBuilder())
+    except Exception:  # noqa: BLE001 - any failure means: analyse the grammar again
+        return None
 
 
 @dataclass
@@ -107,6 +193,8 @@ def _expected_words(expected: set[str]) -> str | None:
 def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer,
                   offset: int = 0) -> SheetSyntaxError:
     """Translate a lark exception into a message a sheet author can act on."""
+    from lark.exceptions import UnexpectedCharacters, UnexpectedEOF
+
     if isinstance(err, UnexpectedCharacters):
         ch = text[err.pos_in_stream] if err.pos_in_stream < len(text) else ""
         span = Span(err.line, err.column, err.line, err.column + 1)
@@ -184,6 +272,8 @@ def _parse(text: str, start: str, source: Source, first_line: int = 1):
     """Parse ``text`` from the rule ``start``; ``first_line`` is the file's line number of the
     text's first line (recovery parses statements alone)."""
     parser, joiner = _parser()
+    from lark.exceptions import UnexpectedInput
+
     joiner.line_offset = first_line - 1
     try:
         return parser.parse(text, start=start)
@@ -250,13 +340,70 @@ def _broken_cell(line: str, first: int, last: int, lines: list[str], err: SheetE
     return CellDef(name, name_span, None, None, None, None, whole, syntax_error=err)
 
 
+@lru_cache(maxsize=1)
+def _parse_stamp() -> bytes | None:
+    """What parsing depends on besides the text: the grammar, the code that lexes, parses and
+    builds nodes, the record layout and lark's version. None when a part cannot be read (no
+    parse cache then)."""
+    from importlib.util import find_spec
+
+    here = Path(__file__).resolve().parent
+    try:
+        lark_spec = find_spec("lark")  # its version, without importing it
+        if lark_spec is None or lark_spec.origin is None:
+            return None
+        parts = [grammar_path().read_bytes(), Path(lark_spec.origin).read_bytes()]
+        parts += [(here / f"{name}.py").read_bytes()
+                  for name in ("lexer", "parse", "syntax", "serial")]
+    except (OSError, SheetError, ValueError):
+        return None
+    parts.append(str(serial.FORMAT).encode())
+    return cache.digest(*parts).encode("ascii")
+
+
+def _parse_subject(text: str) -> str | None:
+    stamp = _parse_stamp()
+    if stamp is None:
+        return None
+    return cache.digest(b"parse 1", stamp, text.encode("utf-8", "surrogatepass"))
+
+
+def cached_statements(text: str) -> list[Statement] | None:
+    """The statements of ``text`` from the parse cache, or None (not cached, cache off)."""
+    store = cache.open_store()
+    subject = _parse_subject(text) if store is not None else None
+    if subject is None:
+        return None
+    payload = cache.load(store, "parse", subject)
+    return serial.decode(payload) if payload is not None else None
+
+
+def _remember(text: str, statements: list[Statement]) -> None:
+    store = cache.open_store()
+    subject = _parse_subject(text) if store is not None else None
+    if subject is None:
+        return
+    try:
+        payload = serial.encode(statements)
+    except (serial.NotEncodable, RecursionError):
+        return
+    cache.save(store, "parse", subject, payload, _KEEP_PARSES)
+
+
 def parse_sheet(text: str, source: Source) -> ParsedSheet:
     """Parse a whole sheet; syntax errors are collected statement by statement (in time
-    linear in the size of the text)."""
+    linear in the size of the text). A sheet that parsed before is read back from the parse
+    cache."""
+    cached = cached_statements(text)
+    if cached is not None:
+        return ParsedSheet(cached, [])
     try:
-        return ParsedSheet(_parse(text, "sheet", source), [])
+        parsed = _parse(text, "sheet", source)
     except SheetError:
         pass
+    else:
+        _remember(text, parsed)
+        return ParsedSheet(parsed, [])
     lines = split_lines(text)
     statements: list[Statement] = []
     errors: list[SheetError] = []

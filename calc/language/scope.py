@@ -14,8 +14,7 @@
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
-from typing import Literal
+from typing import Literal, NamedTuple
 
 import astropy.units as u
 
@@ -25,9 +24,9 @@ from ..physics.units import UnitTable, close_matches, did_you_mean, long_name, u
 from .syntax import Name
 
 
-@dataclass(frozen=True, slots=True)
-class Resolved:
-    """A name's meaning: a unit, a cell (by name) or a constant value."""
+class Resolved(NamedTuple):
+    """A name's meaning: a unit, a cell (by name) or a constant value. (A named tuple: one is
+    made for every name a sheet uses, and a tuple is the cheapest immutable record.)"""
 
     kind: Literal["unit", "cell", "constant"]
     unit: u.UnitBase | None = None

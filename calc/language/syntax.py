@@ -1,6 +1,6 @@
 """Statement and expression nodes, and the builder that makes them from the parse.
 
-The nodes are frozen dataclasses with a :class:`~calc.errors.Span` each. They
+The nodes are small immutable objects with a :class:`~calc.errors.Span` each. They
 say what was written, not what it means: whether ``km`` in ``3 km`` is a unit
 or a cell is decided later by :mod:`calc.scope`.
 
@@ -11,138 +11,273 @@ nodes and checks number literals; it never evaluates anything.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Union
-
-from lark import Token, Transformer
+from typing import TYPE_CHECKING, Any, Union
 
 from ..errors import SheetSyntaxError, Span
+
+if TYPE_CHECKING:
+    from lark import Token
+
+# ---- nodes ------------------------------------------------------------------------
+
+
+class _Node:
+    """What every node shares: its fields are its ``__slots__``; two nodes are equal when they
+    are of one type with equal fields; nodes hash and print by their fields.
+
+    Nodes are immutable by convention (nothing assigns a field after construction). They are
+    plain slotted classes rather than frozen dataclasses: a sheet makes one per name, number
+    and operator, and a plain ``__init__`` costs a third of a frozen one (which sets every
+    field through ``object.__setattr__``); the dataclass decorator also took a third of
+    relsheet's own import time.
+    """
+
+    __slots__: tuple[str, ...] = ()
+
+    def _values(self) -> tuple[Any, ...]:
+        return tuple(getattr(self, name) for name in self.__slots__)
+
+    def __eq__(self, other: object) -> bool:
+        if other.__class__ is not self.__class__:
+            return NotImplemented
+        return self._values() == other._values()  # type: ignore[attr-defined]
+
+    def __ne__(self, other: object) -> bool:
+        equal = self.__eq__(other)
+        return equal if equal is NotImplemented else not equal
+
+    def __hash__(self) -> int:
+        return hash((self.__class__, self._values()))
+
+    def __repr__(self) -> str:
+        fields = ", ".join(f"{name}={getattr(self, name)!r}" for name in self.__slots__)
+        return f"{self.__class__.__qualname__}({fields})"
+
 
 # ---- expressions --------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
-class Number:
+class Number(_Node):
+    __slots__ = ("value", "text", "span")
+
     value: float
     text: str
     span: Span
 
+    def __init__(self, value: float, text: str, span: Span) -> None:
+        self.value = value
+        self.text = text
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Percent:
+
+class Percent(_Node):
     """``5%``: the number 0.05."""
 
+    __slots__ = ("value", "text", "span")
+
     value: float
     text: str
     span: Span
 
+    def __init__(self, value: float, text: str, span: Span) -> None:
+        self.value = value
+        self.text = text
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Name:
+
+class Name(_Node):
+    __slots__ = ("id", "span")
+
     id: str
     span: Span
 
+    def __init__(self, id: str, span: Span) -> None:
+        self.id = id
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class NamePower:
+
+class NamePower(_Node):
     """``s^-2`` inside a unit chain: a name raised to a literal exponent."""
+
+    __slots__ = ("name", "exponent", "span")
 
     name: Name
     exponent: Expr
     span: Span
 
+    def __init__(self, name: Name, exponent: Expr, span: Span) -> None:
+        self.name = name
+        self.exponent = exponent
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Dotted:
+
+class Dotted(_Node):
     """``const.c``, ``ns.name``, ``orbit.a``."""
+
+    __slots__ = ("parts", "span")
 
     parts: tuple[str, ...]
     span: Span
 
+    def __init__(self, parts: tuple[str, ...], span: Span) -> None:
+        self.parts = parts
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Keyword:
+
+class Keyword(_Node):
+    __slots__ = ("name", "value", "span")
+
     name: str
     value: Expr
     span: Span
 
+    def __init__(self, name: str, value: Expr, span: Span) -> None:
+        self.name = name
+        self.value = value
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Call:
+
+class Call(_Node):
+    __slots__ = ("function", "function_span", "args", "keywords", "span")
+
     function: str
     function_span: Span
     args: tuple[Expr, ...]
     keywords: tuple[Keyword, ...]
     span: Span
 
+    def __init__(
+        self,
+        function: str,
+        function_span: Span,
+        args: tuple[Expr, ...],
+        keywords: tuple[Keyword, ...],
+        span: Span,
+    ) -> None:
+        self.function = function
+        self.function_span = function_span
+        self.args = args
+        self.keywords = keywords
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Group:
+
+class Group(_Node):
     """A parenthesised expression; kept so the chain rule can see the brackets."""
+
+    __slots__ = ("inner", "span")
 
     inner: Expr
     span: Span
 
+    def __init__(self, inner: Expr, span: Span) -> None:
+        self.inner = inner
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class ArrayLiteral:
+
+class ArrayLiteral(_Node):
+    __slots__ = ("items", "span")
+
     items: tuple[Expr, ...]
     span: Span
 
+    def __init__(self, items: tuple[Expr, ...], span: Span) -> None:
+        self.items = items
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Chain:
+
+class Chain(_Node):
     """An implicit product: a number, group or array followed by unit-chain items."""
+
+    __slots__ = ("head", "items", "span")
 
     head: Expr
     items: tuple[Expr, ...]
     span: Span
 
+    def __init__(self, head: Expr, items: tuple[Expr, ...], span: Span) -> None:
+        self.head = head
+        self.items = items
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class UnitProduct:
+
+class UnitProduct(_Node):
     """Juxtaposed factors in a unit expression after ``in`` (``m s^-2``)."""
+
+    __slots__ = ("factors", "span")
 
     factors: tuple[Expr, ...]
     span: Span
 
+    def __init__(self, factors: tuple[Expr, ...], span: Span) -> None:
+        self.factors = factors
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class PercentUnit:
+
+class PercentUnit(_Node):
     """``%`` written as a unit after ``in``."""
+
+    __slots__ = ("span",)
 
     span: Span
 
+    def __init__(self, span: Span) -> None:
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class BinaryOp:
+
+class BinaryOp(_Node):
+    __slots__ = ("op", "left", "right", "span")
+
     op: str  # one of + - * /
     left: Expr
     right: Expr
     span: Span
 
+    def __init__(self, op: str, left: Expr, right: Expr, span: Span) -> None:
+        self.op = op
+        self.left = left
+        self.right = right
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class UnaryOp:
+
+class UnaryOp(_Node):
+    __slots__ = ("op", "operand", "span")
+
     op: str  # - or +
     operand: Expr
     span: Span
 
+    def __init__(self, op: str, operand: Expr, span: Span) -> None:
+        self.op = op
+        self.operand = operand
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class PlusMinus:
+
+class PlusMinus(_Node):
     """``value ± sigma``: a measured input with its standard uncertainty."""
+
+    __slots__ = ("value", "sigma", "span")
 
     value: Expr
     sigma: Expr
     span: Span
 
+    def __init__(self, value: Expr, sigma: Expr, span: Span) -> None:
+        self.value = value
+        self.sigma = sigma
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Power:
+
+class Power(_Node):
+    __slots__ = ("base", "exponent", "span")
+
     base: Expr
     exponent: Expr
     span: Span
+
+    def __init__(self, base: Expr, exponent: Expr, span: Span) -> None:
+        self.base = base
+        self.exponent = exponent
+        self.span = span
 
 
 Expr = Union[
@@ -153,9 +288,10 @@ Expr = Union[
 # ---- statements ---------------------------------------------------------------
 
 
-@dataclass(frozen=True, slots=True)
-class CellDef:
+class CellDef(_Node):
     """``name = expr [in unit] [# comment] [#→ marker]``."""
+
+    __slots__ = ("name", "name_span", "expr", "unit", "comment", "marker", "span", "syntax_error")
 
     name: str
     name_span: Span
@@ -165,20 +301,46 @@ class CellDef:
     marker: str | None
     span: Span
     #: set (and ``expr`` None) for a line that names a cell but does not parse
-    syntax_error: SheetSyntaxError | None = None
+    syntax_error: SheetSyntaxError | None
+
+    def __init__(
+        self,
+        name: str,
+        name_span: Span,
+        expr: Expr | None,
+        unit: Expr | None,
+        comment: str | None,
+        marker: str | None,
+        span: Span,
+        syntax_error: SheetSyntaxError | None = None,
+    ) -> None:
+        self.name = name
+        self.name_span = name_span
+        self.expr = expr
+        self.unit = unit
+        self.comment = comment
+        self.marker = marker
+        self.span = span
+        self.syntax_error = syntax_error
 
 
-@dataclass(frozen=True, slots=True)
-class ConstantsDef:
+class ConstantsDef(_Node):
     """``constants codata2018 iau2015``."""
+
+    __slots__ = ("sets", "span")
 
     sets: tuple[tuple[str, Span], ...]
     span: Span
 
+    def __init__(self, sets: tuple[tuple[str, Span], ...], span: Span) -> None:
+        self.sets = sets
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class PPNDef:
+
+class PPNDef(_Node):
     """``ppn gamma = expr``: the sheet-wide default of a PPN parameter."""
+
+    __slots__ = ("parameter", "parameter_span", "expr", "comment", "marker", "span")
 
     parameter: str
     parameter_span: Span
@@ -187,17 +349,40 @@ class PPNDef:
     marker: str | None
     span: Span
 
+    def __init__(
+        self,
+        parameter: str,
+        parameter_span: Span,
+        expr: Expr,
+        comment: str | None,
+        marker: str | None,
+        span: Span,
+    ) -> None:
+        self.parameter = parameter
+        self.parameter_span = parameter_span
+        self.expr = expr
+        self.comment = comment
+        self.marker = marker
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Override:
+
+class Override(_Node):
+    __slots__ = ("name", "name_span", "expr")
+
     name: str
     name_span: Span
     expr: Expr
 
+    def __init__(self, name: str, name_span: Span, expr: Expr) -> None:
+        self.name = name
+        self.name_span = name_span
+        self.expr = expr
 
-@dataclass(frozen=True, slots=True)
-class UseDef:
+
+class UseDef(_Node):
     """``use "file.sheet" as ns [with a = …, b = …]``."""
+
+    __slots__ = ("path", "path_span", "namespace", "namespace_span", "overrides", "span")
 
     path: str
     path_span: Span
@@ -206,10 +391,27 @@ class UseDef:
     overrides: tuple[Override, ...]
     span: Span
 
+    def __init__(
+        self,
+        path: str,
+        path_span: Span,
+        namespace: str,
+        namespace_span: Span,
+        overrides: tuple[Override, ...],
+        span: Span,
+    ) -> None:
+        self.path = path
+        self.path_span = path_span
+        self.namespace = namespace
+        self.namespace_span = namespace_span
+        self.overrides = overrides
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class CheckDef:
+
+class CheckDef(_Node):
     """``check left OP right [within tolerance]``."""
+
+    __slots__ = ("left", "op", "right", "tolerance", "span")
 
     left: Expr
     op: str          # == < <= > >=
@@ -217,23 +419,49 @@ class CheckDef:
     tolerance: Expr | None
     span: Span
 
+    def __init__(
+        self,
+        left: Expr,
+        op: str,
+        right: Expr,
+        tolerance: Expr | None,
+        span: Span,
+    ) -> None:
+        self.left = left
+        self.op = op
+        self.right = right
+        self.tolerance = tolerance
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class Note:
+
+class Note(_Node):
     """``## heading`` or ``# note`` on a line of its own."""
+
+    __slots__ = ("text", "heading", "span")
 
     text: str
     heading: bool
     span: Span
 
+    def __init__(self, text: str, heading: bool, span: Span) -> None:
+        self.text = text
+        self.heading = heading
+        self.span = span
 
-@dataclass(frozen=True, slots=True)
-class ExpressionLine:
+
+class ExpressionLine(_Node):
     """A bare expression (``--set`` values, lines typed at the prompt)."""
+
+    __slots__ = ("expr", "unit", "span")
 
     expr: Expr
     unit: Expr | None
     span: Span
+
+    def __init__(self, expr: Expr, unit: Expr | None, span: Span) -> None:
+        self.expr = expr
+        self.unit = unit
+        self.span = span
 
 
 Statement = Union[CellDef, UseDef, ConstantsDef, PPNDef, CheckDef, Note]
@@ -293,8 +521,17 @@ def parse_number(tok: Token) -> float:
     return value
 
 
-class NodeBuilder(Transformer):
-    """Turns LALR reductions into nodes. Method names follow grammar rules and aliases."""
+def _is_token(item, kind: str) -> bool:
+    """Whether a child is a token of ``kind`` (tokens are strings; nodes never are)."""
+    return isinstance(item, str) and item.type == kind  # type: ignore[attr-defined]
+
+
+class NodeBuilder:
+    """Turns LALR reductions into nodes. Method names follow grammar rules and aliases.
+
+    lark calls the method named after each rule (or alias) with the rule's children; it needs
+    no base class, so this module does not import lark (a sheet read from the parse cache
+    never loads it)."""
 
     # -- atoms
     def number(self, children):
@@ -414,7 +651,7 @@ class NodeBuilder(Transformer):
         for item in rest:
             if item is None:
                 continue
-            if isinstance(item, Token) and item.type == "HASH_TEXT":
+            if _is_token(item, "HASH_TEXT"):
                 comment, marker = split_trailer(item.value)
             else:
                 unit = item
@@ -439,7 +676,7 @@ class NodeBuilder(Transformer):
         keyword, tok, expr, *rest = children
         comment = marker = None
         for item in rest:
-            if isinstance(item, Token) and item.type == "HASH_TEXT":
+            if _is_token(item, "HASH_TEXT"):
                 comment, marker = split_trailer(item.value)
         return PPNDef(tok.value, token_span(tok), expr, comment, marker,
                       token_span(keyword).to(expr.span))
@@ -459,7 +696,7 @@ class NodeBuilder(Transformer):
         keyword, left, op, right, *rest = children
         tolerance = None
         for item in rest:
-            if item is None or (isinstance(item, Token) and item.type in ("WITHIN", "HASH_TEXT")):
+            if item is None or _is_token(item, "WITHIN") or _is_token(item, "HASH_TEXT"):
                 continue
             tolerance = item
         end = (tolerance or right).span
@@ -476,7 +713,7 @@ class NodeBuilder(Transformer):
         return [c for c in children if c is not None]
 
     def expression_input(self, children):
-        items = [c for c in children if c is not None and not isinstance(c, Token)]
+        items = [c for c in children if c is not None and not isinstance(c, str)]
         expr = items[0]
         unit = items[1] if len(items) > 1 else None
         return ExpressionLine(expr, unit, expr.span if unit is None else expr.span.to(unit.span))
@@ -484,7 +721,7 @@ class NodeBuilder(Transformer):
     imported_cell = cell
 
     def prompt_input(self, children):
-        items = [c for c in children if c is not None and not isinstance(c, Token)]
+        items = [c for c in children if c is not None and not isinstance(c, str)]
         if isinstance(items[0], (CellDef, PPNDef, CheckDef)):
             return items[0]
         return self.expression_input(items)

@@ -11,11 +11,14 @@ from __future__ import annotations
 import math
 from decimal import ROUND_HALF_EVEN, Decimal, localcontext
 
+import astropy.units as u
 import numpy as np
 
 from ..engine.checks import CheckResult
 from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue, shown
 from ..physics.units import unit_string, unit_text
+
+_item = np.ndarray.item  # the float of a 0-d array
 
 DEFAULT_DIGITS = 6
 #: Arrays longer than this show their first and last few values.
@@ -66,6 +69,9 @@ def as_shown(value) -> ShownValue:
 def format_quantity(value, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
     """(number text, unit text) of a value; `value ± σ` when it carries an uncertainty. Both
     are written as the sheet language reads them (a percentage as `5%`)."""
+    if type(value) is u.Quantity and value.ndim == 0 and value.unit != u.percent:
+        # a single quantity (most cells), without the general machinery
+        return format_number(_item(value), digits), unit_text(value.unit)
     s = as_shown(value)
     if not isinstance(s, Shown):
         return s.summary(), ""

@@ -116,6 +116,10 @@ def positive(value, q: u.Quantity, name: str, what: str = "positive") -> None:
 
 GM_UNIT = u.m**3 / u.s**2
 ANGULAR_MOMENTUM_UNIT = u.kg * u.m**2 / u.s
+# composite units made once: astropy builds a new one (tens of microseconds) at every `/`;
+# constants are read with value_in, whose conversion factors are cached
+_G_UNIT = GM_UNIT / u.kg
+_SPEED_UNIT = u.m / u.s
 
 
 def gravitational_parameter(M: u.Quantity, name: str = "M"):
@@ -134,7 +138,7 @@ def gravitational_parameter(M: u.Quantity, name: str = "M"):
                 f"`{name}` must be a mass or a gravitational parameter (m^3 / s^2), got {show(M)}",
                 name) from None
     else:
-        gm = kg * active("G").to_value(GM_UNIT / u.kg)
+        gm = kg * value_in(active("G"), _G_UNIT)
     positive(gm, M, name)
     return gm
 
@@ -178,7 +182,7 @@ def duration(q: u.Quantity, name: str):
 
 
 def speed(q: u.Quantity, name: str):
-    value = to_value(q, u.m / u.s, name, "a speed")
+    value = to_value(q, _SPEED_UNIT, name, "a speed")
     if any_below(value, 0):
         raise ArgumentError(f"`{name}` must not be negative, got {show(q)}", name)
     return value
@@ -208,7 +212,7 @@ def ppn(q: u.Quantity | None, name: str):
 
 
 def speed_of_light() -> float:
-    return active("c").to_value(u.m / u.s)
+    return value_in(active("c"), _SPEED_UNIT)
 
 
 def weak_field(gm, r, name: str, c: float, argument: str | None = None) -> None:

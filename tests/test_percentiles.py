@@ -1,0 +1,101 @@
+"""calc.engine.samples.percentiles: the 16/50/84 % points `--mc` shows are exactly numpy's
+(np.percentile, method "linear", Hyndman & Fan 1996 definition 7), found faster."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from calc import Sheet
+from calc.engine import samples
+from calc.engine.samples import POINTS, percentiles
+
+
+def _numpy(data, points=POINTS):
+    return np.percentile(data, list(points), axis=0)
+
+
+@pytest.fixture
+def numpy_calls(monkeypatch) -> list[int]:
+    """Calls of np.percentile made by calc.engine.samples (its fallback)."""
+    calls: list[int] = []
+    original = np.percentile
+
+    def counted(*args, **kwargs):
+        calls.append(1)
+        return original(*args, **kwargs)
+
+    samples._agrees()  # its own check of numpy is not a fallback
+    monkeypatch.setattr(samples.np, "percentile", counted)
+    return calls
+
+
+def test_the_fast_way_is_taken_for_many_samples(numpy_calls):
+    data = np.random.default_rng(7).standard_normal(100_000)
+    points = percentiles(data)
+    assert numpy_calls == [], "np.percentile itself ran"
+    # the standard normal's 16/50/84 % points are −0.994, 0, 0.994 (Φ⁻¹; common practice);
+    # 10^5 samples place them within a few 0.01
+    assert points == pytest.approx([-0.9945, 0.0, 0.9945], abs=0.03)
+
+
+@pytest.mark.parametrize("make", [
+    lambda rng: rng.standard_normal(100_000),
+    lambda rng: np.exp(rng.standard_normal(50_001)),              # skewed
+    lambda rng: np.round(rng.standard_normal(20_000), 1),         # many equal values
+    lambda rng: np.full(10_000, 3.25),                            # all equal
+    lambda rng: np.sort(rng.standard_normal(30_000)),             # already sorted
+    lambda rng: np.sort(rng.standard_normal(30_000))[::-1].copy(),
+    lambda rng: np.concatenate([rng.standard_normal(9_000), [np.inf] * 3, [-np.inf] * 2]),
+    lambda rng: np.concatenate([rng.standard_normal(9_000), [np.nan]]),
+    lambda rng: rng.standard_normal(100),                         # few: numpy's own way
+    lambda rng: rng.standard_normal((40_000, 3)),                 # samples of an array
+    lambda rng: rng.standard_normal((5_000, 2, 2)),
+])
+def test_the_same_numbers_as_numpy(make):
+    data = make(np.random.default_rng(11))
+    expected = _numpy(data)
+    got = percentiles(data)
+    assert got.shape == expected.shape
+    assert np.array_equal(got, expected, equal_nan=True)
+    if data.ndim == 1:
+        assert np.array_equal(samples._points(data, POINTS), expected, equal_nan=True)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.integers(4096, 40_000), st.integers(0, 2**32 - 1),
+       st.sampled_from(["normal", "uniform", "integers", "lognormal"]),
+       st.lists(st.floats(0, 100), min_size=1, max_size=5))
+def test_the_same_numbers_as_numpy_for_any_sample(n, seed, kind, points):
+    rng = np.random.default_rng(seed)
+    data = {"normal": lambda: rng.standard_normal(n) * 1e3 + 5,
+            "uniform": lambda: rng.uniform(-1, 1, n),
+            "integers": lambda: rng.integers(-5, 5, n).astype(float),
+            "lognormal": lambda: rng.lognormal(0, 2, n)}[kind]()
+    assert np.array_equal(percentiles(data, points), _numpy(data, points))
+    # the fast way itself (percentiles() would fall back to numpy if it ever disagreed)
+    assert np.array_equal(samples._points(data, points), _numpy(data, points))
+
+
+def test_the_fast_way_agrees_with_numpy_here():
+    assert samples._agrees()
+
+
+def test_monte_carlo_shows_numpys_points():
+    sheet = Sheet.from_text("m = 1.438 ± 0.01 Msun\nr = 2 ± 0.1 AU\nv = sqrt(const.G * m / r) in km / s\n")
+    results = sheet.monte_carlo(20_000, seed=3)
+    shown = results["v"]
+    assert np.array_equal(shown.percentiles(), _numpy(shown.samples))
+
+
+def test_interpolation_from_the_upper_neighbour_as_numpy_does():
+    # numpy interpolates from the upper value when the fraction is at least 0.5
+    # (b − (b − a)(1 − t)); here that differs from a + (b − a) t in the last bit
+    a, b = 0.5436249914654229, 0.9350724237877682
+    data = np.concatenate([np.full(799, -1.0), [a, b], np.full(5000 - 801, 10.0)])
+    np.random.default_rng(5).shuffle(data)
+    expected = np.percentile(data, [16])  # rank 799.84: between a and b, t = 0.84
+    assert expected[0] != a + (b - a) * 0.8400000000000318
+    assert np.array_equal(samples._points(data, (16,)), expected)
