@@ -536,7 +536,9 @@ class _Writer:
         if r < 0.13:
             self.records.append(name)
             return self.call("periapsis_budget")
-        if r < 0.18 and self.records:
+        if r < 0.15 and self.records:
+            return self.record_misuse()
+        if r < 0.2 and self.records:
             self.kinds[name] = "angle" if rng.random() < 0.5 else "length"
             return f"{rng.choice(self.records)}.{rng.choice(['a', 'e', 'i', 'node', 'total', 'gr'])}"
         kind = rng.choice(list(RETURNS))
@@ -558,6 +560,8 @@ class _Writer:
         r = rng.random()
         if r < 0.06:
             body = self.special_expr()
+        elif r < 0.09 and self.records:
+            body = self.record_misuse()
         elif r < 0.2:
             body = self.call("orbit", plausible=rng.random() < 0.8)
             self.records.append(name)
@@ -574,6 +578,21 @@ class _Writer:
 
     def check(self) -> str:
         rng = self.rng
+        r = rng.random()
+        if r < 0.08:
+            # arrays of different lengths on the two sides
+            n, m = rng.choice([(2, 3), (1, 4), (3, 3), (0, 2)])
+            op = rng.choice(["<", ">=", "=="])
+            tail = f" within {rng.choice(['1%', '2 sigma', '1 km'])}" if op == "==" else ""
+            return (f"check [{', '.join(str(i + 1) for i in range(n))}] {op} "
+                    f"[{', '.join(str(i + 1) for i in range(m))}]{tail}")
+        if r < 0.14:
+            # a function of a plain number against an uncertain cell, or a record in a check
+            other = rng.choice(self.cells) if self.cells else self.measured()
+            left = rng.choice(["atan(4)", "sqrt(2)", "ln(3)", "cos(1)", "1",
+                               self.record_misuse() if self.records else "2"])
+            return f"check {left} {rng.choice(['==', '>', '<'])} {other}" + \
+                rng.choice([" within 2 sigma", " within 1%", ""])
         if rng.random() >= self.wild and self.kinds:
             name = rng.choice(list(self.kinds))
             kind = self.kinds[name]
@@ -664,13 +683,28 @@ class _Writer:
         return line
 
     def multiline(self) -> str:
-        """A statement continued on the next lines inside an open bracket, with comments."""
+        """A statement continued on the next lines inside an open bracket, with comments
+        (some with text a format string would read as fields)."""
         rng = self.rng
         name = self.new_name()
         self.cells.append(name)
+        comment = rng.choice(["# comment", "# {0}", "# {unit.__class__.__mro__}", "#= x", "# }{",
+                              "# %s", ""])
+        if rng.random() < 0.4:
+            # a group continued over lines, then a name after it: unit or cell?
+            after = rng.choice(self.cells + ["a", "t", "d", "h", "km", "AU"])
+            return f"{name} = ({self.expr(3)}  {comment}\n  ) {after}"
         items = [self.expr(3) for _ in range(rng.randint(1, 4))]
-        joiner = rng.choice([",\n    ", ",  # comment\n  ", ",\n\n", ",\r\n  ", ", #= x\n"])
+        joiner = rng.choice([",\n    ", f",  {comment}\n  ", ",\n\n", ",\r\n  ", ", #= x\n"])
         return f"{name} = [{joiner.join(items)}\n] {self.unit()}".rstrip()
+
+    def record_misuse(self) -> str:
+        """Records where numbers belong: arithmetic, powers, comparisons."""
+        rng = self.rng
+        record = rng.choice(self.records) if self.records else self.call("orbit")
+        return rng.choice([f"{record}^2", f"2^{record}", f"-{record}", f"{record} * 2 AU",
+                           f"{record} + {record}", f"sqrt({record})", f"[{record}, 1 AU]",
+                           f"{record} in AU", f"{record}.a^{record}.e"])
 
 
 def _finish(rng: random.Random, lines: list[str]) -> bytes:

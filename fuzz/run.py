@@ -1030,6 +1030,14 @@ def _minimiser(inp: FuzzInput, step: str) -> Reduction:
     steps = [step]
     current = yield from _reduce(_pieces(inp.main),
                                  lambda pieces: replace(inp, main=b"".join(pieces)), steps)
+    if len(current.main) <= 4000:
+        # then words (each with the blanks after it), for what one line still holds
+        base = current
+
+        def with_words(words: list) -> FuzzInput:
+            return replace(base, main=b"".join(words))
+        current = yield from _reduce([w for w in re.split(rb"(?<=[ \t])(?=[^ \t])", current.main) if w],
+                                     with_words, steps)
     for name in list(current.files):
         trial = replace(current, files={k: v for k, v in current.files.items() if k != name})
         if (yield trial, steps):
