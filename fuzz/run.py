@@ -198,11 +198,20 @@ _FRAME_LINE = re.compile(r'^\s*File "(.+)", line (\d+), in (.+)$')
 _WARNING_LINE = re.compile(r"^(\S.*?):(\d+): (\w*Warning): (.*)$", re.M)
 
 
+_CHAINED = ("During handling of the above exception, another exception occurred:",
+            "The above exception was the direct cause of the following exception:")
+
+
 def parse_tracebacks(text: str) -> list[tuple[str, str, str]]:
-    """(exception type, innermost calc/ frame, message) of every traceback printed in text."""
-    found = []
+    """(exception type, innermost calc/ frame, message) of every exception printed in text.
+
+    A chain (`During handling of the above exception…`, `The above exception was the direct
+    cause…`) counts once, as its last exception; its frame is the innermost calc/ frame of
+    that exception's traceback, or else of the nearest exception before it in the chain."""
+    found: list[tuple[str, str, str]] = []
     lines = text.splitlines()
     i = 0
+    chain_frame = ""
     while i < len(lines):
         if lines[i].strip() != "Traceback (most recent call last):":
             i += 1
@@ -216,10 +225,17 @@ def parse_tracebacks(text: str) -> list[tuple[str, str, str]]:
                 if shown:
                     frame = shown
             i += 1
-        if i < len(lines):
-            head, _, message = lines[i].partition(":")
-            exc_type = head.strip().rsplit(".", 1)[-1]
+        if i >= len(lines):
+            break
+        head, _, message = lines[i].partition(":")
+        exc_type = head.strip().rsplit(".", 1)[-1]
+        frame = frame or chain_frame
+        following = next((line.strip() for line in lines[i + 1:] if line.strip()), "")
+        if following in _CHAINED:
+            chain_frame = frame
+        else:
             found.append((exc_type, frame, message.strip()[:300]))
+            chain_frame = ""
         i += 1
     return found
 
@@ -705,8 +721,15 @@ def _address_space() -> int:
     return 0
 
 
-def _worker_main(conn, status, options: Options) -> None:
-    """A worker: limits, then tasks from the pipe until told to stop."""
+def _worker_main(conn, status, options: Options, inherited: list[int]) -> None:
+    """A worker: limits, then tasks from the pipe until told to stop (or until the parent is
+    gone: the parent's ends of the pipes, inherited through fork, are closed first, so that a
+    parent that dies leaves the worker reading the end of its pipe)."""
+    for fd in inherited:
+        try:
+            os.close(fd)
+        except OSError:
+            pass
     # keep stray output of the code under test off the terminal
     log = os.open(os.path.join(options.workdir_base, "workers.log"),
                   os.O_WRONLY | os.O_CREAT | os.O_APPEND, 0o600)
@@ -774,11 +797,12 @@ class Task:
 
 
 class _Worker:
-    def __init__(self, context, options: Options) -> None:
+    def __init__(self, context, options: Options, others: list[int]) -> None:
         self.conn, child = context.Pipe()
         self.status = context.RawArray("d", 3)
-        self.process = context.Process(target=_worker_main, args=(child, self.status, options),
-                                       daemon=True)
+        inherited = [self.conn.fileno(), *others]
+        self.process = context.Process(target=_worker_main,
+                                       args=(child, self.status, options, inherited), daemon=True)
         self.process.start()
         child.close()
         self.task: Task | None = None
@@ -809,7 +833,9 @@ class Pool:
 
         self.context = multiprocessing.get_context("fork")
         self.options = options
-        self.workers = [_Worker(self.context, options) for _ in range(jobs)]
+        self.workers: list[_Worker] = []
+        for _ in range(jobs):
+            self.workers.append(self._new())
         self.next_id = 0
         self.killed = 0
 
@@ -817,10 +843,15 @@ class Pool:
         for worker in self.workers:
             worker.stop()
 
+    def _new(self) -> _Worker:
+        return _Worker(self.context, self.options, [w.conn.fileno() for w in self.workers])
+
     def _replace(self, worker: _Worker, kill: bool) -> _Worker:
+        place = self.workers.index(worker)
         worker.stop(kill=kill)
-        fresh = _Worker(self.context, self.options)
-        self.workers[self.workers.index(worker)] = fresh
+        del self.workers[place]
+        fresh = self._new()
+        self.workers.insert(place, fresh)
         return fresh
 
     def run(self, next_task: Callable[[], Task | None], more: Callable[[], bool]) -> None:
@@ -1057,7 +1088,7 @@ def _minimiser(inp: FuzzInput, step: str) -> Reduction:
 
 
 def minimise(pool: Pool, campaign: Campaign, options: Options, budget: float,
-             log: Callable[[str], None]) -> None:
+             log: Callable[[str], None], hang_trials: int = 25) -> None:
     """Reduce each class's smallest input, two classes at a time (one per worker), then
     confirm each in a fresh worker and measure hangs with a long limit."""
     deadline = time.monotonic() + budget
@@ -1070,7 +1101,7 @@ def minimise(pool: Pool, campaign: Campaign, options: Options, budget: float,
     def start(cls: CrashClass) -> None:
         assert cls.smallest is not None
         state: dict = {"cls": cls, "trials": 0, "best": cls.smallest, "pending": False}
-        limit = 25 if cls.key.startswith("hang") else 250
+        limit = hang_trials if cls.key.startswith("hang") else 250
         state["limit"] = limit
         state["gen"] = _minimiser(cls.smallest, cls.first.step)
         try:
@@ -1291,8 +1322,8 @@ def run_campaign(count: int = 0, seed: int = 1, jobs: int = 2, timeout: float = 
                  all_paths: bool = False, rotate: int = 2, steps: list[str] | None = None,
                  minimise_budget: float = 0.0, time_budget: float | None = None,
                  out: Path | None = None, log: Callable[[str], None] = lambda s: None,
-                 setup: Callable[[], None] | None = None, grace: float = GRACE
-                 ) -> tuple[Campaign, dict]:
+                 setup: Callable[[], None] | None = None, grace: float = GRACE,
+                 hang_trials: int = 25) -> tuple[Campaign, dict]:
     """Run ``count`` generated inputs (or the given ``inputs``); returns the campaign (its
     crash classes) and the run's figures. Writes the report when ``out`` is given."""
     # on tmpfs when there is one: annotate and export fsync every write, which on a disk
@@ -1338,7 +1369,7 @@ def run_campaign(count: int = 0, seed: int = 1, jobs: int = 2, timeout: float = 
         elapsed = time.monotonic() - began
         if minimise_budget > 0 and campaign.classes:
             log(f"reducing {len(campaign.classes)} classes")
-            minimise(pool, campaign, options, minimise_budget, log)
+            minimise(pool, campaign, options, minimise_budget, log, hang_trials)
     finally:
         pool.close()
         shutil.rmtree(base, ignore_errors=True)

@@ -19,7 +19,7 @@ if str(ROOT) not in sys.path:  # `fuzz` is a top-level folder of the repository,
     sys.path.insert(0, str(ROOT))
 
 from fuzz.generate import SOURCE_WEIGHTS, TERMINAL_SAMPLES, FuzzInput, generate  # noqa: E402
-from fuzz.run import STEPS, Finding, plan, run_campaign, without_markers  # noqa: E402
+from fuzz.run import STEPS, Finding, parse_tracebacks, plan, run_campaign, without_markers  # noqa: E402
 
 #: The CI campaign's seed (any fixed number: the point is that the inputs are the same each run).
 SEED = 13
@@ -254,6 +254,27 @@ def test_an_exception_ending_the_prompt_is_reported():
     (found,) = campaign.classes.values()
     assert found.kinds == {"exception ends the prompt"}
     assert found.first.exc_type == "IsADirectoryError"
+
+
+def test_a_chained_traceback_counts_once_with_its_calc_frame():
+    calc = ROOT / "calc" / "engine" / "uncertain.py"
+    text = (
+        "Traceback (most recent call last):\n"
+        '  File "/site-packages/astropy/units/core.py", line 522, in _apply_equivalencies\n'
+        "astropy.units.errors.UnitConversionError: 'arcmin' and '' are not convertible\n\n"
+        "During handling of the above exception, another exception occurred:\n\n"
+        "Traceback (most recent call last):\n"
+        f'  File "{calc}", line 131, in _add\n'
+        "    return Uncertain(...)\n"
+        '  File "/site-packages/astropy/units/quantity.py", line 701, in __array_ufunc__\n'
+        "astropy.units.errors.UnitConversionError: Can only apply 'subtract' function\n"
+        "Traceback (most recent call last):\n"
+        '  File "/site-packages/numpy/core.py", line 5, in f\n'
+        "KeyError: 'x'\n")
+    assert parse_tracebacks(text) == [
+        ("UnitConversionError", "calc/engine/uncertain.py:131 in _add",
+         "Can only apply 'subtract' function"),
+        ("KeyError", "", "'x'")]
 
 
 def test_a_finding_class_is_the_exception_and_its_frame_or_the_symptom():
