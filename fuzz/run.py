@@ -421,7 +421,7 @@ def _step_eval_md(run: _Run) -> None:
 
 
 def _step_eval_mc(run: _Run) -> None:
-    run.cli(["eval", MAIN, "--mc", "200", "--seed", "1"], {0, 2})
+    run.cli(["eval", MAIN, "--mc", "64", "--seed", "1"], {0, 2})
 
 
 def _step_verify(run: _Run) -> None:
@@ -471,9 +471,12 @@ def _step_diff(run: _Run) -> None:
                 output=_excerpt(stdout))
 
 
+_MARKER = re.compile(r"#[→=]")
+
+
 def without_markers(data: bytes) -> list[str]:
-    """The file's lines (split at \\n only) with every `#=` marker and the blanks before it
-    removed: what annotate must leave as it was."""
+    """The file's lines (split at \\n only) with every result marker (`#→`, or `#=` of earlier
+    versions) and the blanks before it removed: what annotate must leave as it was."""
     text = data.decode("utf-8", errors="surrogateescape")
     if text.startswith("\ufeff"):
         text = text[1:]
@@ -481,9 +484,9 @@ def without_markers(data: bytes) -> list[str]:
     for piece in text.split("\n"):
         ending = "\r" if piece.endswith("\r") else ""
         body = piece[:-1] if ending else piece
-        at = body.find("#=")
-        if at >= 0:
-            body = body[:at]
+        found = _MARKER.search(body)
+        if found is not None:
+            body = body[:found.start()]
         out.append(body.rstrip(" \t\f") + ending)
     return out
 
@@ -593,9 +596,13 @@ def _step_repl(run: _Run) -> None:
             run.add("exception ends the prompt", exc_type="TypeError",
                     detail=f"handle returned {type(answer).__name__}")
             return
-        internal = "internal error" in answer and "internal error" not in run.input_text
+        # an internal error the session's cells carry is ours even when the sheet's text
+        # already holds those words (annotate may have written a cell's error into a marker)
+        causes = _session_causes(session) if "internal error" in answer else []
+        internal = bool(causes) or ("internal error" in answer
+                                    and "internal error" not in run.input_text)
         if internal or "Traceback (most recent call last)" in answer:
-            causes = _session_causes(session) or \
+            causes = causes or \
                 [(_type_in(answer), "", next((x for x in answer.splitlines() if "internal" in x),
                                              answer[:200]))]
             for exc_type, frame, message in causes:
@@ -1291,6 +1298,13 @@ def _warm_up(base: str) -> None:
     from calc.interfaces import cli, repl
     from fuzz.generate import demo_sheets
 
+    # modules relsheet imports on first use of a function (a second or more of CPU each)
+    for module in ("scipy.special", "scipy.integrate", "scipy.optimize", "astropy.time",
+                   "astropy.coordinates", "jplephem.spk"):
+        try:
+            __import__(module)
+        except ImportError:
+            pass
     folder = tempfile.mkdtemp(prefix="warm-", dir=base)
     home = os.getcwd()
     try:

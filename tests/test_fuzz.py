@@ -73,6 +73,7 @@ def test_token_soups_cover_every_terminal_of_the_grammar():
 def test_markers_are_removed_and_nothing_else():
     text = b"x = 1 km  #= 1 km\r\ny = 2\t#= old\n# a note #= kept as a note\nz = 3#=x"
     assert without_markers(text) == ["x = 1 km\r", "y = 2", "# a note", "z = 3"]
+    assert without_markers("x = 1 km  #→ 1 km\n".encode()) == ["x = 1 km", ""]
     # a line break the lexer does not know is not a marker's business
     assert without_markers(b"x = 1\x0by = 2  #= 2") != without_markers(b"x = 1  #= 1")
 
@@ -247,12 +248,14 @@ def _unsafe_save() -> None:
     setattr(Session, "cmd_save", save)  # noqa: B010
 
 
-def test_an_exception_ending_the_prompt_is_reported():
+def test_an_exception_inside_the_prompt_is_reported():
+    # the prompt survives a bug of ours (it answers "internal error …"); the harness still
+    # reports it, with the exception's type
     campaign, _ = run_campaign(inputs=[_given("x = 3 km\n", ["x = 4 km", ":save saved.sheet",
                                                              ":write saved.sheet"])],
                                jobs=1, steps=["repl"], setup=_unsafe_save)
     (found,) = campaign.classes.values()
-    assert found.kinds == {"exception ends the prompt"}
+    assert found.kinds == {"internal error"}
     assert found.first.exc_type == "IsADirectoryError"
 
 

@@ -776,9 +776,11 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
                                                definition.span, compiler.source)
 
 
-def _is_literal(node, scope: Scope) -> bool:
+def _is_literal(node, scope: Scope, depth: int = 0) -> bool:
     """A quantity as written: numbers with units (`70 km / s / Mpc`, `-3 m`, `1 ± 0.1 AU`,
     `[1, 2] km`), with no cell, constant, function or arithmetic of quantities."""
+    if depth > MAX_EXPRESSION_DEPTH:
+        return False
     def unit_item(item) -> bool:
         name = item.name if isinstance(item, NamePower) else item.base if isinstance(
             item, Power) else item
@@ -789,19 +791,20 @@ def _is_literal(node, scope: Scope) -> bool:
     if kind in (Number, Percent):
         return True
     if kind is Group:
-        return _is_literal(node.inner, scope)
+        return _is_literal(node.inner, scope, depth + 1)
     if kind is UnaryOp:
-        return _is_literal(node.operand, scope)
+        return _is_literal(node.operand, scope, depth + 1)
     if kind is Chain:
         return isinstance(node.head, (Number, Percent)) and all(
             _is_unit_item(item) and unit_item(item) for item in node.items)
     if kind is BinaryOp and node.op == "/":
-        return _is_literal(node.left, scope) and _is_unit_item(node.right) \
+        return _is_literal(node.left, scope, depth + 1) and _is_unit_item(node.right) \
             and unit_item(node.right)
     if kind is PlusMinus:
-        return _is_literal(node.value, scope) and _is_literal(node.sigma, scope)
+        return _is_literal(node.value, scope, depth + 1) and \
+            _is_literal(node.sigma, scope, depth + 1)
     if kind is ArrayLiteral:
-        return all(_is_literal(item, scope) for item in node.items)
+        return all(_is_literal(item, scope, depth + 1) for item in node.items)
     return False
 
 

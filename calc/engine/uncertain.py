@@ -107,13 +107,18 @@ class Uncertain:
         parts = self.significant_parts()
         if not parts:
             return np.zeros_like(np.asarray(self.nominal.value, dtype=float))
-        squares = sum(np.square(p) for p in parts.values())
-        for a, part in parts.items():
-            for b, r in a.correlations.items():
-                other = parts.get(b)
-                if other is not None:  # each pair twice: 2 r c_a c_b in all
-                    squares = squares + r * np.asarray(part) * np.asarray(other)
-        return np.sqrt(np.maximum(squares, 0.0))
+        # scaled by the largest contribution, so that squares of 1e300 do not overflow
+        scale = np.max([np.abs(p) for p in parts.values()], axis=0)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            safe = np.where(scale > 0, scale, 1.0)
+            squares = sum(np.square(np.asarray(p) / safe) for p in parts.values())
+            for a, part in parts.items():
+                for b, r in a.correlations.items():
+                    other = parts.get(b)
+                    if other is not None:  # each pair twice: 2 r c_a c_b in all
+                        squares = squares + r * (np.asarray(part) / safe) * (
+                            np.asarray(other) / safe)
+            return np.where(scale > 0, np.sqrt(np.maximum(squares, 0.0)) * scale, 0.0)
 
     @property
     def sigma(self) -> u.Quantity:

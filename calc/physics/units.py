@@ -208,7 +208,7 @@ def describe(unit: u.UnitBase) -> str:
     """`km` (length) -- a unit named with its physical type, for messages."""
     if unit == u.dimensionless_unscaled:
         return "a dimensionless number"
-    return f"`{unit_string(unit)}` ({physical_type(unit)})"
+    return f"`{unit_text(unit)}` ({physical_type(unit)})"
 
 
 def angle_equivalencies():
@@ -279,6 +279,11 @@ def conversion_scale(source: u.UnitBase, target: u.UnitBase) -> float:
                 scale = source.to(target, equivalencies=_ANGLES)
             except u.UnitConversionError as exc:
                 scale = exc
+            except (u.UnitScaleError, OverflowError, ZeroDivisionError):
+                scale = u.UnitConversionError("a unit's size is outside what a float can hold")
+        except (u.UnitScaleError, OverflowError, ZeroDivisionError):
+            # units so large or small that their SI scale leaves the float range (km^100)
+            scale = u.UnitConversionError("a unit's size is outside what a float can hold")
         hit = _remember(_SCALES, key, (source, target, scale))
     scale = hit[2]
     if isinstance(scale, Exception):

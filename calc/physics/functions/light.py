@@ -16,8 +16,6 @@ from typing import Annotated
 
 import astropy.units as u
 import numpy as np
-from scipy.special import beta as beta_function
-from scipy.special import betainc
 
 from ...errors import ArgumentError
 from ..constants import active
@@ -274,6 +272,10 @@ def ray_integral(k, b, s):
     """
     x = 1 / (1 + (b / s) ** 2)
     a = (k - 1) / 2
+    # scipy.special loads on first use: a fifth of a second that every other sheet saves
+    from scipy.special import beta as beta_function
+    from scipy.special import betainc
+
     return b ** (1 - k) * 0.5 * beta_function(0.5, a) * betainc(0.5, a, x)
 
 
