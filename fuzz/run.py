@@ -1298,6 +1298,11 @@ def _warm_up(base: str) -> None:
     from calc.interfaces import cli, repl
     from fuzz.generate import demo_sheets
 
+    # the parser (a sheet found in the parse cache never loads it, so a worker's first new
+    # sheet would pay for it) and modules relsheet imports on first use of a function
+    from calc.language import parse as _parse_module
+
+    _parse_module._parser()  # noqa: SLF001 - warming the cache the workers inherit
     # modules relsheet imports on first use of a function (a second or more of CPU each)
     for module in ("scipy.special", "scipy.integrate", "scipy.optimize", "astropy.time",
                    "astropy.coordinates", "jplephem.spk"):

@@ -404,7 +404,8 @@ class Shown:
         if self.samples is None:
             return None
         if self._points is None:
-            self._points = percentiles(self.samples)
+            with np.errstate(all="ignore"):   # samples with inf or nan give nan points
+                self._points = percentiles(self.samples)
         return self._points
 
 

@@ -325,7 +325,7 @@ def written_text(sheet: Sheet, assigned: dict[str, str]) -> str:
         rest = text[end:line_end]
         at = marker_at(rest)
         if at >= 0:   # the old result marker goes with the old definition (a comment stays)
-            edits.append((begin, line_end, statement + rest[:at].rstrip()))
+            edits.append((begin, line_end, statement + rest[:at].rstrip(" \t")))
         else:
             edits.append((begin, end, statement))
     for begin, end, replacement in sorted(edits, reverse=True):

@@ -56,7 +56,7 @@ def array_digest(value, digits: int) -> str | None:
 
 def _without_marker(rest: str) -> str:
     """The trailing text of a line without its marker (a comment before it stays)."""
-    at = marker_at(rest.lstrip())
+    at = marker_at(rest.lstrip(" \t"))
     if at == 0:
         return ""
     at = marker_at(rest)
@@ -76,7 +76,9 @@ def annotated_text(sheet: Sheet, text: str, digits: int = 6) -> str:
             continue
         body = lines[index].rstrip("\r\n")
         code_end = d.span.end_column - 1
-        keep = (body[:code_end] + _without_marker(body[code_end:])).rstrip()
+        # only blanks and tabs go before a marker: other characters Python calls white space
+        # (U+2029, \x1c…) belong to the line
+        keep = (body[:code_end] + _without_marker(body[code_end:])).rstrip(" \t")
         markers[index] = (keep, marker_text(cell, digits))
     out = list(lines)
     indices = sorted(markers)
