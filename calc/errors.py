@@ -108,6 +108,12 @@ class SheetError(Exception):
         self.hint = hint
         self.source = source
 
+    def kept(self) -> SheetError:
+        """The error as a cell keeps it: without the frames that raised it, which would hold
+        the whole evaluation in a reference cycle until the garbage collector came by."""
+        self.__traceback__ = None
+        return self
+
     def located(self, span: Span | None = None, source: Source | None = None) -> SheetError:
         """Fill in a span and source that are still missing; returns ``self``."""
         if self.span is None:

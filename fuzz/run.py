@@ -1296,11 +1296,11 @@ def _warm_up(base: str) -> None:
     import warnings
 
     from calc.interfaces import cli, repl
-    from fuzz.generate import demo_sheets
 
     # the parser (a sheet found in the parse cache never loads it, so a worker's first new
     # sheet would pay for it) and modules relsheet imports on first use of a function
     from calc.language import parse as _parse_module
+    from fuzz.generate import demo_sheets
 
     _parse_module._parser()  # noqa: SLF001 - warming the cache the workers inherit
     # modules relsheet imports on first use of a function (a second or more of CPU each)
@@ -1354,6 +1354,12 @@ def run_campaign(count: int = 0, seed: int = 1, jobs: int = 2, timeout: float = 
     campaign = Campaign()
     began = time.monotonic()
     _warm_up(base)
+    # what the warm-up made (astropy's registries, relsheet's modules) lives as long as the
+    # workers: out of the collector's way, so that its passes do not stall an input
+    import gc
+
+    gc.collect()
+    gc.freeze()
     pool = Pool(jobs, options)
     given = list(inputs or [])
     indices = iter(range(start, start + count))

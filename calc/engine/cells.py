@@ -181,7 +181,7 @@ class Cells:
         try:
             value = run_cell(program, self.values)
         except SheetError as err:
-            cell.error = err
+            cell.error = err.kept()
             return
         except Exception as exc:  # a bug of ours: keep the sheet going, say so plainly
             cell.error = InternalError.wrapping(exc, f"computing `{name}`",

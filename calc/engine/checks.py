@@ -179,7 +179,7 @@ def run_check(program: CheckProgram, env: Env, failed: set[str]) -> CheckResult:
         return result
     except SheetError as err:
         result.passed = False
-        result.error = err.located(d.span, program.left.source)
+        result.error = err.located(d.span, program.left.source).kept()
         return result
 
 

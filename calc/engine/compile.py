@@ -765,7 +765,7 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
             kernel = compiler.kernel(code)
             program.scalar = kernel if kernel is not None and kernel[0] >= REF else None
     except SheetError as err:
-        program.error = err.located(definition.span, compiler.source)
+        program.error = err.located(definition.span, compiler.source).kept()
     except (u.UnitScaleError, OverflowError):
         program.error = unit_range_error(definition).located(definition.span, compiler.source)
     except RecursionError:

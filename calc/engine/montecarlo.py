@@ -94,7 +94,7 @@ def _evaluate(sheet, sampling: Sampling, progress: Progress | None
             try:
                 value = run_cell(program, env)
             except SheetError as err:
-                out[name] = err
+                out[name] = err.kept()
                 continue
             except Exception as exc:  # a bug of ours
                 out[name] = InternalError.wrapping(exc, f"sampling `{name}`",

@@ -272,22 +272,25 @@ def conversion_scale(source: u.UnitBase, target: u.UnitBase) -> float:
     key = (id(source), id(target))
     hit = _SCALES.get(key)
     if hit is None:
+        # a failure is remembered by its message: an exception kept in the table would keep its
+        # traceback's frames, and everything they hold, alive
+        scale: float | str
         try:
             scale = source.to(target)
         except u.UnitConversionError:
             try:
                 scale = source.to(target, equivalencies=_ANGLES)
             except u.UnitConversionError as exc:
-                scale = exc
+                scale = str(exc)
             except (u.UnitScaleError, OverflowError, ZeroDivisionError):
-                scale = u.UnitConversionError("a unit's size is outside what a float can hold")
+                scale = "a unit's size is outside what a float can hold"
         except (u.UnitScaleError, OverflowError, ZeroDivisionError):
             # units so large or small that their SI scale leaves the float range (km^100)
-            scale = u.UnitConversionError("a unit's size is outside what a float can hold")
+            scale = "a unit's size is outside what a float can hold"
         hit = _remember(_SCALES, key, (source, target, scale))
     scale = hit[2]
-    if isinstance(scale, Exception):
-        raise u.UnitConversionError(str(scale))
+    if isinstance(scale, str):
+        raise u.UnitConversionError(scale)
     return scale
 
 
