@@ -291,10 +291,6 @@ def test_a_finding_class_is_the_exception_and_its_frame_or_the_symptom():
 
 # -- the campaign CI runs
 
-@pytest.mark.xfail(strict=False, reason="issue 13: today's engine still has the crash classes "
-                                        "listed in the fuzz findings (lexer hang, GUM rounding, "
-                                        "the three-cell cycle, records to a power, …); remove "
-                                        "this mark when they are fixed")
 def test_two_thousand_inputs_find_no_crash_hang_or_internal_error(tmp_path):
     # each input runs the core paths (text, JSON, annotate round trip, the prompt) and one of
     # the others in rotation, so that 2,000 inputs stay within about two minutes on two CPUs
