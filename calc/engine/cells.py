@@ -118,7 +118,7 @@ class Cells:
                 keep: tuple[u.UnitBase, Span] | None = None) -> CellProgram:
         if ppn_parameter(definition.name) is not None:
             # a PPN parameter is a plain number
-            keep = (u.dimensionless_unscaled, definition.expr.span)
+            keep = (u.dimensionless_unscaled, definition.expr_span)
         return compile_cell(definition, self.scope, source, display_unit=keep,
                             inputs=self.inputs)
 
@@ -260,8 +260,11 @@ class Cells:
         name = definition.name
         cell = self.cells[name]
         cell.definition, cell.source = definition, source
-        self.fixed_errors[name] = definition.syntax_error
-        program = CellProgram(definition, source, error=definition.syntax_error)
+        error = definition.syntax_error
+        if error is None:  # pragma: no cover - only broken definitions come here
+            raise ValueError("restore takes a definition that does not parse")
+        self.fixed_errors[name] = error
+        program = CellProgram(definition, source, error=error)
         self.programs[name] = program
         forced = {name}
         if self.graph.set_uses(name, program.deps):

@@ -29,7 +29,7 @@ from ..physics.units import describe, quantity, value_in
 from .compile import InputTable, compile_cell
 from .run import CellProgram, Env, failed_input, run_cell
 from .uncertain import Uncertain
-from .values import CONTAINERS, Shown, shown
+from .values import CONTAINERS, Shown, ShownValue, shown
 
 CheckKind = Literal["exact", "relative", "absolute", "sigma", "order"]
 
@@ -43,8 +43,8 @@ class CheckResult:
     passed: bool
     kind: CheckKind
     op: str
-    left: Shown | None = None
-    right: Shown | None = None
+    left: ShownValue | None = None
+    right: ShownValue | None = None
     #: the largest difference of the two sides, in the left side's unit
     gap: float = 0.0
     #: the largest relative difference (relative checks)
@@ -52,7 +52,7 @@ class CheckResult:
     #: the tolerance: a fraction (relative) or a number of σ (sigma)
     amount: float = 0.0
     #: the tolerance of an absolute check
-    tolerance: Shown | None = None
+    tolerance: ShownValue | None = None
     #: σ of the difference (sigma checks), in the left side's unit; None: neither side has one
     sigma: float | None = None
     #: the largest difference in units of that σ (sigma checks)
@@ -61,7 +61,7 @@ class CheckResult:
 
     @property
     def unit(self) -> u.UnitBase | None:
-        return self.left.unit if self.left is not None else None
+        return self.left.unit if isinstance(self.left, Shown) else None
 
 
 @dataclass

@@ -104,20 +104,25 @@ def _lift(fn, *codes: Code) -> Code:
     """Apply ``fn`` to compiled operands: folded now when all are constants."""
     if len(codes) == 2:
         a, b = codes
-        if type(a) is Const and type(b) is Const:
-            return Const(fn(a.value, b.value))
-        if type(a) is Const:
+        if isinstance(a, Const):
             av = a.value
-            return lambda env: fn(av, b(env))
-        if type(b) is Const:
+            if isinstance(b, Const):
+                return Const(fn(av, b.value))
+            run_b = b
+            return lambda env: fn(av, run_b(env))
+        run_a = a
+        if isinstance(b, Const):
             bv = b.value
-            return lambda env: fn(a(env), bv)
-        return lambda env: fn(a(env), b(env))
-    if all(type(c) is Const for c in codes):
-        return Const(fn(*(c.value for c in codes)))
+            return lambda env: fn(run_a(env), bv)
+        run_b = b
+        return lambda env: fn(run_a(env), run_b(env))
+    if all(isinstance(c, Const) for c in codes):
+        return Const(fn(*(c.value for c in codes)))  # type: ignore[union-attr]
     if len(codes) == 1:
-        (a,) = codes
-        return lambda env: fn(a(env))
+        (only,) = codes
+        if isinstance(only, Const):  # pragma: no cover - folded above
+            return only
+        return lambda env: fn(only(env))
     runners = [(lambda env, v=c.value: v) if isinstance(c, Const) else c for c in codes]
     return lambda env: fn(*(r(env) for r in runners))
 
@@ -165,7 +170,8 @@ def _input_code(inputs: tuple[Input, ...], nominal_value: u.Quantity,
 def _uncertain_array(values, spans) -> Uncertain:
     """An array literal whose items carry uncertainties: one array of contributions per input."""
     unit = values[0].unit
-    nominal_values, parts = [], {}
+    nominal_values: list[float] = []
+    parts: dict[Input, np.ndarray] = {}
     for index, (value, span) in enumerate(zip(values, spans)):
         if np.ndim(value.value) != 0:
             raise DomainError("arrays hold single values, not arrays", span)
@@ -539,12 +545,13 @@ class _Compiler:
                 return self.chainable(inner, depth + 1, names_lead=True)
             # a bracketed value such as `(1 + x)` is a factor; it does not end the chain
             return self.expr(inner, depth + 1), True
-        if isinstance(item, (NamePower, Power)) and (
-                isinstance(item, NamePower) or isinstance(item.base, Name)):
-            name = item.name if isinstance(item, NamePower) else item.base
+        powered = item.name if isinstance(item, NamePower) else \
+            item.base if isinstance(item, Power) else None
+        if isinstance(powered, Name) and isinstance(item, (NamePower, Power)):
+            name = powered
             self.looked_up.add(name.id)
             resolved = self.scope.in_chain(name, spellings)
-            if resolved.kind == "unit":
+            if resolved.kind == "unit" and resolved.unit is not None:
                 return Const(resolved.unit ** self.exponent_number(item.exponent, depth)), True
             base = self.resolved(resolved, name.span)
             exponent = self.expr(item.exponent, depth + 1)

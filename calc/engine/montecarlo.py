@@ -10,6 +10,8 @@ importing sheet is drawn once; each runs under its own pinned constants.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 
 from ..errors import InternalError, SheetError, UsageError
@@ -17,16 +19,19 @@ from .context import Progress, Sampling, entered, memory_budget
 from .run import Env, failed_input, run_cell
 from .values import ShownValue, is_uncertain, leaves, shown
 
+if TYPE_CHECKING:
+    from .sheet import Sheet
+
 #: Largest number of samples × values a run may hold at once (8 bytes each: 2 GB).
 MAX_SAMPLE_VALUES = 250_000_000
 
 
-def imports_first(sheet) -> list:
+def imports_first(sheet: Sheet) -> list[Sheet]:
     """The sheet and every sheet it imports, each once, every import before its importer
     (an iterative depth-first walk: import chains may be deep)."""
-    order: list = []
+    order: list[Sheet] = []
     seen: set[int] = set()
-    stack: list[tuple[object, bool]] = [(sheet, False)]
+    stack: list[tuple[Sheet, bool]] = [(sheet, False)]
     while stack:
         current, expanded = stack.pop()
         if expanded:

@@ -23,6 +23,7 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import (
+    InternalError,
     DomainError,
     InputFailedError,
     NameResolutionError,
@@ -471,7 +472,7 @@ def normalise(value, simplify: bool = True):
 def finish(program: CellProgram, value):
     """Conversion into the cell's `in` unit, or collapse of scaled dimensionless units."""
     if isinstance(value, u.UnitBase):  # pragma: no cover - the grammar cannot produce it
-        raise UnitError("a unit needs a number before it", program.definition.expr.span)
+        raise UnitError("a unit needs a number before it", program.definition.expr_span)
     if isinstance(value, CONTAINERS):
         if program.unit is not None and program.definition.unit is not None:
             raise UnitError("a record has no unit to show it in; convert its fields instead",
@@ -480,14 +481,14 @@ def finish(program: CellProgram, value):
             return value.labelled(program.name)
         return value
     if program.unit is not None:
-        return convert(value, program.unit, program.unit_span)
+        return convert(value, program.unit, program.unit_span or program.definition.span)
     return normalise(value, simplify=not program.literal)
 
 
 def unit_range_error(definition: CellDef) -> UnitError:
     # astropy decomposes units into SI with a float scale: Msun^11 overflows it
     return UnitError("a unit's size in SI is outside the range a float can hold",
-                     definition.expr.span,
+                     definition.expr_span,
                      hint="rescale the inputs or use fewer powers of large units")
 
 
@@ -505,10 +506,13 @@ def run_cell(program: CellProgram, env: Env):
             result = finish_scalar(program, value, unit)
             if result is not None:
                 return result
+    run = program.run
+    if run is None:  # pragma: no cover - a program is a constant or has code to run
+        raise InternalError(f"cell `{program.name}` has no code to run")
     try:
-        value = finish(program, program.run(env))
+        value = finish(program, run(env))
         if not all_finite(value):
-            value = checked(lambda: finish(program, program.run(env)))
+            value = checked(lambda: finish(program, run(env)))
         return value
     except SheetError as err:
         raise err.located(program.definition.span, program.source) from None

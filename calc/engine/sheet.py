@@ -213,9 +213,9 @@ class Sheet:
             new = self._cells.evaluate(definition, source)
         except SheetError:
             return  # the cell will show the error of its new expression
-        if is_record(new):
+        if is_record(new) or is_record(cell.raw):
             return
-        old_unit, new_unit = cell.raw.unit, new.unit
+        old_unit, new_unit = cell.raw.unit, new.unit  # type: ignore[attr-defined]
         try:
             conversion_scale(new_unit, old_unit)
         except u.UnitConversionError:
@@ -249,8 +249,11 @@ class Sheet:
                 changed = self._cells.restore(definition, self.source)
                 self._cells.run_checks()
                 return changed
+        expr = definition.expr
+        if expr is None:  # pragma: no cover - broken definitions were restored above
+            raise KeyError(name)
         with numeric_context(), entered(self.context):
-            changed = self._cells.assign(name, definition.expr, definition.unit, self.source,
+            changed = self._cells.assign(name, expr, definition.unit, self.source,
                                          definition.span)
             self._cells.run_checks()
             return changed

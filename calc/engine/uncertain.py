@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from typing import Any
 
 import astropy.units as u
 import numpy as np
@@ -53,7 +54,8 @@ class Input:
         return f"<Input {self.name}: {self.nominal} ± {self.sigma}>"
 
 
-Parts = dict[Input, object]
+#: contributions (or their error bounds) by input: a float, or an array of the value's shape
+Parts = dict[Input, Any]
 
 
 class Uncertain:
@@ -305,7 +307,7 @@ def through(function: Callable, values: tuple, *, inputs_of: Callable, shifted: 
     for v in values:
         for key in inputs_of(v):
             keys[key] = None
-    parts_by_key: dict[Input, object] = {}
+    parts_by_key: dict[Input, Any] = {}
     for key in keys:
         relative = max(relative_size(v, key) for v in values)
         t = STEP / relative if relative and math.isfinite(relative) else STEP

@@ -27,7 +27,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
-from typing import Union
+from typing import Any, Union
 
 import astropy.units as u
 import numpy as np
@@ -132,11 +132,11 @@ def is_sampled(value) -> bool:
     return False
 
 
-def inputs_of(value) -> dict[Input, object]:
+def inputs_of(value) -> dict[Input, Any]:
     """Every input a value depends on (records: any field's)."""
     if isinstance(value, Uncertain):
         return value.parts
-    out: dict[Input, object] = {}
+    out: dict[Input, Any] = {}
     if isinstance(value, CONTAINERS):
         for leaf in leaves(value):
             if isinstance(leaf, Uncertain):
@@ -309,7 +309,8 @@ def per_sample(call: Callable, values: tuple):
     if count > MAX_PER_SAMPLE:
         raise DomainError(f"this function runs once per sample; {count:,} samples would take "
                           "too long", hint=f"use --mc {MAX_PER_SAMPLE:,} or fewer")
-    progress = context().sampling.progress if context().sampling is not None else None
+    sampling = context().sampling
+    progress = sampling.progress if sampling is not None else None
     results = []
     for k in range(count):
         results.append(call(*(map_leaves(lambda leaf, k=k: _take(leaf, k), v) for v in values)))
@@ -385,8 +386,8 @@ class Shown:
     """A leaf as outputs print it: a value (a number or an array), its σ (or None), its unit;
     under Monte Carlo the sample mean and standard deviation, and the 16/50/84 % points."""
 
-    value: object
-    sigma: object | None
+    value: Any
+    sigma: Any | None
     unit: u.UnitBase
     samples: np.ndarray | None = None
     _points: np.ndarray | None = field(default=None, repr=False)

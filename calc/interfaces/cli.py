@@ -14,6 +14,7 @@ import gc
 import os
 import sys
 import traceback
+from typing import Any
 
 from ..errors import InternalError, SheetError, UsageError
 
@@ -274,9 +275,9 @@ class _Progress:
 
         self._clock = time.monotonic
         self._start = self._clock()
-        self._bar = None
-        self._counter = None
-        self._total = None
+        self._bar: Any = None       # a prompt_toolkit ProgressBar once shown
+        self._counter: Any = None   # its counter
+        self._total: int | None = None
 
     def __call__(self, done: int, total: int) -> None:
         if self._bar is None:

@@ -57,7 +57,8 @@ class SheetCompleter(Completer):
         if stripped.startswith(":") and " " not in stripped:
             prefix = stripped[1:]
             return [(f":{c}", "command") for c in _COMMANDS if c.startswith(prefix)]
-        word = _WORD.search(line).group()
+        found = _WORD.search(line)
+        word = found.group() if found is not None else ""
         sheet = self.session.sheet
         if stripped.startswith((":deps", ":users", ":revert")):
             return [(n, "cell") for n in sheet.names() if n.startswith(word)]
@@ -80,21 +81,21 @@ class SheetCompleter(Completer):
                     if field.startswith(rest)]
         if not word:
             return []
-        found: list[tuple[str, str]] = []
-        found += [(n, "cell") for n in sheet.names() if n.startswith(word)]
-        found += [(n, "imported sheet") for n in sheet.namespaces if n.startswith(word)]
-        found += [(f.name, f"{f.name}{f.display_signature()} — {f.summary}")
+        offered: list[tuple[str, str]] = []
+        offered += [(n, "cell") for n in sheet.names() if n.startswith(word)]
+        offered += [(n, "imported sheet") for n in sheet.namespaces if n.startswith(word)]
+        offered += [(f.name, f"{f.name}{f.display_signature()} — {f.summary}")
                   for f in functions.all_functions() if f.name.startswith(word)]
         table = constant_table(sheet.selection)
-        found += [(n, f"constant: {e.description}") for n, e in sorted(table.items())
+        offered += [(n, f"constant: {e.description}") for n, e in sorted(table.items())
                   if n.startswith(word) and n not in sheet.names()]
         every = set(sheet.unit_names())
         units = sorted({n for n in every if n.startswith(word)},
                        key=lambda n: _unit_rank(n, every))
-        found += [(n, "unit") for n in units[:MAX_UNITS]]
+        offered += [(n, "unit") for n in units[:MAX_UNITS]]
         seen: set[str] = set()
         unique = []
-        for text, meta in found:
+        for text, meta in offered:
             if text not in seen:
                 seen.add(text)
                 unique.append((text, meta))
@@ -102,7 +103,8 @@ class SheetCompleter(Completer):
 
     def get_completions(self, document, complete_event):
         line = document.text_before_cursor
-        word = _WORD.search(line).group()
+        found = _WORD.search(line)
+        word = found.group() if found is not None else ""
         if line.lstrip().startswith(":") and " " not in line.lstrip():
             word = line.lstrip()
         for text, meta in self.candidates(line):

@@ -71,8 +71,7 @@ class Session:
         except SheetError as err:
             return err.render()
         except Exception as exc:  # a bug of ours: say so, keep the session
-            err = InternalError.wrapping(exc, "answering the line")
-            text = err.render()
+            text = InternalError.wrapping(exc, "answering the line").render()
             if self.debug:
                 text += "\n" + "".join(traceback.format_exception(exc))
             return text

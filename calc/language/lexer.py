@@ -50,7 +50,8 @@ def _token(kind: str, value: str, start: int, line: int, column: int, end_line: 
 
 
 def _span(tok: Token) -> Span:
-    return Span(tok.line, tok.column, tok.end_line, tok.end_column)
+    # lark types a token's place as optional; a token this lexer made always has one
+    return Span(tok.line or 0, tok.column or 0, tok.end_line or 0, tok.end_column or 0)
 
 # Terminals matched by their regular expression from the grammar, longest-first where
 # one pattern is a prefix of another (PERCENT before NUMBER, DOTTED_NAME before NAME).

@@ -196,7 +196,8 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer,
     from lark.exceptions import UnexpectedCharacters, UnexpectedEOF
 
     if isinstance(err, UnexpectedCharacters):
-        ch = text[err.pos_in_stream] if err.pos_in_stream < len(text) else ""
+        position = err.pos_in_stream or 0
+        ch = text[position] if position < len(text) else ""
         span = Span(err.line, err.column, err.line, err.column + 1)
         return SheetSyntaxError(f"unexpected character `{ch}`", span, hint=_character_hint(ch))
     tok = getattr(err, "token", None)
@@ -327,7 +328,8 @@ def logical_lines(text: str, start: int = 1) -> list[tuple[int, int]]:
 _CELL_START = re.compile(r"\s*([^\W\d]\w*)\s*=(?!=)")
 
 
-def _broken_cell(line: str, first: int, last: int, lines: list[str], err: SheetError):
+def _broken_cell(line: str, first: int, last: int, lines: list[str], err: SheetError
+                 ) -> CellDef | None:
     """A line ``name = …`` that does not parse still defines the cell ``name``, failed,
     so the cells that use it say which input failed instead of "unknown name"."""
     match = _CELL_START.match(line)

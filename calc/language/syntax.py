@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any, Union
 
-from ..errors import SheetSyntaxError, Span
+from ..errors import SheetError, SheetSyntaxError, Span
 
 if TYPE_CHECKING:
     from lark import Token
@@ -300,8 +300,9 @@ class CellDef(_Node):
     comment: str | None
     marker: str | None
     span: Span
-    #: set (and ``expr`` None) for a line that names a cell but does not parse
-    syntax_error: SheetSyntaxError | None
+    #: set (and ``expr`` None) for a line that names a cell but does not parse: the syntax
+    #: error, or the refusal of the input (brackets nested too deep, a statement too long)
+    syntax_error: SheetError | None
 
     def __init__(
         self,
@@ -312,7 +313,7 @@ class CellDef(_Node):
         comment: str | None,
         marker: str | None,
         span: Span,
-        syntax_error: SheetSyntaxError | None = None,
+        syntax_error: SheetError | None = None,
     ) -> None:
         self.name = name
         self.name_span = name_span
@@ -322,6 +323,11 @@ class CellDef(_Node):
         self.marker = marker
         self.span = span
         self.syntax_error = syntax_error
+
+    @property
+    def expr_span(self) -> Span:
+        """Where the expression stands (the whole line for a line that does not parse)."""
+        return self.expr.span if self.expr is not None else self.span
 
 
 class ConstantsDef(_Node):
@@ -474,7 +480,8 @@ RESERVED_WORDS = frozenset({"constants", "use", "check", "ppn", "plot", "in", "c
 
 
 def token_span(tok: Token) -> Span:
-    return Span(tok.line, tok.column, tok.end_line, tok.end_column)
+    # lark types a token's place as optional; the sheet lexer always fills it in
+    return Span(tok.line, tok.column, tok.end_line, tok.end_column)  # type: ignore[arg-type]
 
 
 #: How a result marker starts (`annotate` writes them); `#=` is the form of earlier versions,

@@ -174,7 +174,7 @@ def sheet_record(sheet: Sheet, monte_carlo: dict | None = None,
     from .format import check_detail
 
     sampled = monte_carlo or {}
-    record = {
+    record: dict[str, object] = {
         "sheet": sheet.source.label,
         "constants": sheet.selection.names,
         "cells": [cell_record(c, sampled.get(c.name)) for c in sheet.cells],
@@ -339,7 +339,8 @@ def _letter_word(ch: str) -> str:
     name (`ω` → `omega`), a diacritic after its letter (`Ṗ` → `Pdot`)."""
     import unicodedata
 
-    base, *marks = unicodedata.normalize("NFD", ch)
+    decomposed = unicodedata.normalize("NFD", ch)
+    base, marks = decomposed[0], decomposed[1:]
     if base.isascii():
         word = base
     else:

@@ -145,7 +145,7 @@ def format_with_sigma(value, sigma) -> str:
 def format_percentiles(s: Shown) -> str | None:
     """`16 / 50 / 84 %` points of a sampled value, each rounded as it would be beside σ."""
     points = s.percentiles()
-    if points is None:
+    if points is None or s.sigma is None:
         return None
     if np.ndim(s.value) == 0:
         return " / ".join(format_point(q, s.sigma) for q in points)

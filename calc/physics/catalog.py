@@ -36,7 +36,7 @@ def listing() -> str:
     specs = sorted(functions.all_functions(),
                    key=lambda f: (_ORDER.index(f.topic) if f.topic in _ORDER else 99, f.name))
     width = max(len(f.name + f.display_signature()) for f in specs)
-    lines: list[str] = []
+    lines: list[str | None] = []
     topic = None
     for spec in specs:
         if spec.topic != topic:

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import difflib
 import math
+from collections.abc import Set as AbstractSet
 from functools import lru_cache
 
 import astropy.units as u
@@ -394,7 +395,7 @@ def value_in(q: u.Quantity, unit: u.UnitBase):
     return q.value if scale == 1.0 else q.value * scale
 
 
-def long_name(unit: u.UnitBase, avoid: set[str] = frozenset()) -> str:
+def long_name(unit: u.UnitBase, avoid: AbstractSet[str] = frozenset()) -> str:
     """The longest of a named unit's names that is not in ``avoid`` (``annum`` for ``a``)."""
     names = [n for n in getattr(unit, "names", [unit_string(unit)]) if n not in avoid]
     return max(names, key=len) if names else unit_string(unit)
