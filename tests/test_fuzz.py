@@ -12,8 +12,6 @@ import signal
 import sys
 from pathlib import Path
 
-import pytest
-
 ROOT = Path(__file__).resolve().parent.parent
 if str(ROOT) not in sys.path:  # `fuzz` is a top-level folder of the repository, not installed
     sys.path.insert(0, str(ROOT))

@@ -23,9 +23,9 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import (
-    InternalError,
     DomainError,
     InputFailedError,
+    InternalError,
     NameResolutionError,
     SheetError,
     Source,
