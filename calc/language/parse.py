@@ -163,7 +163,8 @@ def _tables_from_json(payload: bytes | None) -> Lark | None:
             return None
         data["parser"]["lexer_conf"]["lexer_type"] = SheetLexer
         data["options"]["lexer"] = SheetLexer
-        return Lark._load_from_dict(data, memo, transformer=NodeBuilder())
+        # lark offers no public loader that skips pickle; its own loader is private
+        return Lark._load_from_dict(data, memo, transformer=NodeBuilder())  # noqa: SLF001
     except Exception:  # noqa: BLE001 - any failure means: analyse the grammar again
         return None
 
