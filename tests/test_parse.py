@@ -146,9 +146,9 @@ def test_expression_input_for_set():
     ("x = 1 km in\n",
      "t.sheet:1:12: unexpected end of line: a unit is missing after `in`\n  x = 1 km in\n             ^\n"
      "  hint: write for example `in km / s`"),
-    ("plot y vs x\n",
-     "t.sheet:1:1: `plot` statements are not part of this version of relsheet\n  plot y vs x\n  ^~~~\n"
-     "  hint: `plot` is reserved for a statement of a later version"),
+    ("plot y vs\n",
+     "t.sheet:1:10: unexpected end of line in a `plot` statement\n  plot y vs\n           ^\n"
+     "  hint: write it as `plot y vs x` (`plot y1, y2 vs x`, `plot z vs x, y`, then `log x`, `log y`)"),
     ("in = 3\n",
      "t.sheet:1:1: `in` is a reserved word and cannot name a cell\n  in = 3\n  ^~\n"
      "  hint: choose another name, such as `in_value`"),

@@ -19,7 +19,20 @@ from ..errors import DuplicateCellError, InputError, NameResolutionError, SheetE
 from ..files import label_in, read_sheet, resolve_import
 from ..language.parse import parse_sheet
 from ..language.scope import PPN_PARAMETERS, ppn_cell
-from ..language.syntax import CellDef, CheckDef, ConstantsDef, Note, PPNDef, UseDef
+from ..language.syntax import (
+    CellDef,
+    CheckDef,
+    ConstantsDef,
+    CorrelationDef,
+    EphemerisDef,
+    FunctionDef,
+    Note,
+    PlotDef,
+    PPNDef,
+    SolveDef,
+    TableDef,
+    UseDef,
+)
 from ..physics.constants import UNCERTAIN_FLAG, ConstantSelection, default_selection, parse_selection
 from ..physics.units import close_matches, did_you_mean
 from .cells import Cell
@@ -47,7 +60,7 @@ class Imports:
 class Built:
     """A sheet's statements, sorted by what they are."""
 
-    items: list[Note | Cell] = field(default_factory=list)
+    items: list = field(default_factory=list)   # notes, cells, tables and plots in file order
     cells: list[Cell] = field(default_factory=list)
     errors: list[SheetError] = field(default_factory=list)
     fixed_errors: dict[str, SheetError] = field(default_factory=dict)
@@ -57,6 +70,12 @@ class Built:
     #: namespaces whose `use` line failed (no such file, a cycle, …), by the line's place
     failed_namespaces: dict[str, Span] = field(default_factory=dict)
     check_definitions: list[CheckDef] = field(default_factory=list)
+    tables: list[TableDef] = field(default_factory=list)
+    plots: list[PlotDef] = field(default_factory=list)
+    functions: dict[str, FunctionDef] = field(default_factory=dict)
+    solves: list[SolveDef] = field(default_factory=list)
+    correlations: list[CorrelationDef] = field(default_factory=list)
+    ephemeris: EphemerisDef | None = None
 
 
 def build(source: Source, constants: list[str] | None,
@@ -89,6 +108,31 @@ def build(source: Source, constants: list[str] | None,
             out.items.append(statement)
         elif isinstance(statement, CheckDef):
             out.check_definitions.append(statement)
+        elif isinstance(statement, TableDef):
+            out.tables.append(statement)
+            out.items.append(statement)
+        elif isinstance(statement, PlotDef):
+            out.plots.append(statement)
+            out.items.append(statement)
+        elif isinstance(statement, FunctionDef):
+            if statement.name in out.functions:
+                out.errors.append(DuplicateCellError(
+                    f"function `{statement.name}` is defined twice (lines "
+                    f"{out.functions[statement.name].span.line} and {statement.span.line})",
+                    statement.name_span, hint="rename one of them or delete one", source=source))
+                continue
+            out.functions[statement.name] = statement
+        elif isinstance(statement, SolveDef):
+            out.solves.append(statement)
+        elif isinstance(statement, CorrelationDef):
+            out.correlations.append(statement)
+        elif isinstance(statement, EphemerisDef):
+            if out.ephemeris is not None:
+                out.errors.append(DuplicateCellError(
+                    f"two `ephemeris` lines (lines {out.ephemeris.span.line} and "
+                    f"{statement.span.line})", statement.span, hint="keep one", source=source))
+                continue
+            out.ephemeris = statement
         elif isinstance(statement, UseDef):
             if statement.namespace in out.namespaces:
                 out.errors.append(DuplicateCellError(
@@ -184,3 +228,35 @@ def import_sheet(use: UseDef, source: Source, chain: tuple[Path, ...], imports: 
             f"{use.path} has {len(problems)} error{'s' if len(problems) > 1 else ''}; the "
             f"first: {first.location}: {first.message}", use.path_span, source=source))
     return imported
+
+
+def function_errors(built: Built, source: Source) -> list[SheetError]:
+    """What is wrong with the sheet's functions as written: a parameter named like a cell
+    (inside the body it would hide the cell), a parameter given twice, a function named like
+    a cell or a library function."""
+    from ..physics import functions as library
+
+    errors: list[SheetError] = []
+    cell_names = {c.name for c in built.cells}
+    for function in built.functions.values():
+        if function.name in cell_names:
+            errors.append(DuplicateCellError(
+                f"`{function.name}` names both a cell and a function", function.name_span,
+                hint="rename one of them", source=source))
+        elif library.lookup(function.name) is not None or function.name == "axis":
+            errors.append(DuplicateCellError(
+                f"`{function.name}` is a library function; a sheet's function needs a name of "
+                "its own", function.name_span, hint=f"call it e.g. `my_{function.name}`",
+                source=source))
+        seen: set[str] = set()
+        for name, span in function.params:
+            if name in seen:
+                errors.append(InputError(f"{function.name}: parameter `{name}` is listed twice",
+                                         span, source=source))
+            elif name in cell_names:
+                errors.append(InputError(
+                    f"{function.name}: parameter `{name}` has the name of a cell", span,
+                    hint=f"inside the function it would hide the cell `{name}`; rename the "
+                         "parameter", source=source))
+            seen.add(name)
+    return errors

@@ -34,13 +34,19 @@ from ..errors import (
 )
 from ..language.scope import PPN_PARAMETERS, UNIT_SLOT, Scope, ppn_cell
 from ..language.syntax import (
+    TIME_SCALES,
     ArrayLiteral,
     BinaryOp,
     Call,
     CellDef,
     Chain,
+    Compare,
+    DateLiteral,
+    DayNumber,
     Dotted,
+    FunctionDef,
     Group,
+    Index,
     Name,
     NamePower,
     Number,
@@ -48,6 +54,7 @@ from ..language.syntax import (
     PercentUnit,
     PlusMinus,
     Power,
+    Slice,
     UnaryOp,
     UnitProduct,
 )
@@ -62,6 +69,7 @@ from ..physics.units import (
     unit_product,
     value_in,
 )
+from .arrays import axis_op, compare_op, index_op
 from .context import context
 from .run import (
     ADD,
@@ -287,6 +295,12 @@ class _Compiler:
         self.looked_up: set[str] = set()
         #: the scalar kernel (run.py) of each compiled code that has one, by the code's id
         self.kernels: dict[int, Kernel] = {}
+        #: the parameters of the sheet's functions being expanded, innermost last
+        self.bindings: list[dict[str, Code]] = []
+        #: the sheet's functions being expanded (a call of one of these again is recursion)
+        self.expanding: list[str] = []
+        #: the place of the cell in its file (orders the axes a cell opens)
+        self.rank = 0.0
 
     # -- helpers
     def text(self, start: Span, end: Span | None = None) -> str:
@@ -434,6 +448,8 @@ class _Compiler:
         if kind is Number or kind is Percent:
             return Const(quantity(float(node.value)))
         if kind is Name:
+            if self.bindings and node.id in self.bindings[-1]:
+                return self.bindings[-1][node.id]
             self.looked_up.add(node.id)
             return self.resolved(self.scope.plain(node), node.span)
         if kind is BinaryOp:
@@ -491,7 +507,36 @@ class _Compiler:
             exponent = self.expr(node.exponent, depth + 1)
             return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
                                     POW, base, exponent)
+        if kind is Compare:
+            left = self.expr(node.left, depth + 1)
+            right = self.expr(node.right, depth + 1)
+            return _lift(compare_op(node.op, node.span, node.right.span), left, right)
+        if kind is Index:
+            return self.index(node, depth)
+        if kind is DateLiteral or kind is DayNumber:
+            from .dates import date_literal
+
+            return Const(date_literal(node))
+        if kind is Slice:
+            raise DomainError("a slice `a:b` stands only inside an index, as in `x[2:5]`",
+                              node.span)
         raise NameResolutionError("this is not a value", node.span)
+
+    def index(self, node: Index, depth: int) -> Code:
+        """`x[i]`, `x[2:5]`, `x[x > 3 km]`, `grid[0, 2]`."""
+        target = self.expr(node.target, depth + 1)
+        kinds: list[str] = []
+        codes: list[Code] = []
+        for item in node.items:
+            if isinstance(item, Slice):
+                kinds.append("slice")
+                codes += [Const(None) if bound is None else self.expr(bound, depth + 1)
+                          for bound in (item.start, item.stop)]
+            else:
+                kinds.append("item")
+                codes.append(self.expr(item, depth + 1))
+        spans = tuple(item.span for item in node.items)
+        return _lift(index_op(tuple(kinds), spans, node.span), target, *codes)
 
     def chain(self, node: Chain, depth: int) -> tuple[Code, bool]:
         """An implicit product; the chain stays open while its items are units."""
@@ -600,6 +645,11 @@ class _Compiler:
         return self.expr(node, depth), False
 
     def call(self, node: Call, depth: int) -> Code:
+        own = self.scope.functions.get(node.function)
+        if own is not None:
+            return self.own_function(own, node, depth)
+        if node.function == "axis":
+            return self.axis(node, depth)
         spec = functions.lookup(node.function)
         self.looked_up.add(node.function)
         if spec is None:
@@ -615,6 +665,9 @@ class _Compiler:
             raise NameResolutionError(f"unknown function `{node.function}`", node.function_span,
                                       hint=hint)
         keywords = {k.name: k for k in node.keywords}
+        along = None
+        if "along" in keywords and "along" not in spec.signature.parameters:
+            along = self.along(keywords.pop("along"), spec.effect)
         try:
             slots, omitted = spec.plan(len(node.args), tuple(keywords))
         except ArgumentError as err:
@@ -638,6 +691,9 @@ class _Compiler:
         takes_records = spec.record_parameters
 
         samplewise = spec.samplewise
+        effect = spec.effect
+        if effect == "reduce" and spec.variadic and npos > 1:
+            effect = "elementwise"   # max(a, b): element by element; max(a): the largest
 
         def apply(*values):
             for value, pname in zip(values, slots):
@@ -645,7 +701,10 @@ class _Compiler:
                     what = "an array of records" if isinstance(value, RecordList) else "a record"
                     raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not {what}",
                                         pname, span=arg_spans.get(pname, span))
-            return apply_function(call, values, samplewise, fname)
+            try:
+                return apply_function(call, values, samplewise, fname, effect, along)
+            except SheetError as err:
+                raise err.located(span) from None
 
         def call(*values):
             try:
@@ -668,6 +727,75 @@ class _Compiler:
             return _finite(result, values, span, f"the result of {fname}")
 
         return _lift(apply, *arg_codes, *kw_codes)
+
+    def along(self, keyword, effect: str) -> str:
+        """The axis a reduction runs along: `along = elong` names an axis, not a value."""
+        value = keyword.value
+        if effect not in ("reduce", "keep", "shorten"):
+            raise ArgumentError("`along` goes with functions that run along an axis (sum, mean, "
+                                "min, max, argmin, argmax, integral, cumsum, diff, gradient, "
+                                "sort, count, any, all, len)", "along", span=keyword.span)
+        if not isinstance(value, Name):
+            raise ArgumentError("`along` takes the name of an axis, as in `along = days`",
+                                "along", span=value.span)
+        if value.id not in self.scope.cell_names:
+            raise NameResolutionError(f"no axis `{value.id}`: `along` names the cell that made "
+                                      "an axis with axis(…)", value.span,
+                                      hint=did_you_mean(close_matches(value.id,
+                                                                      list(self.scope.cell_names))))
+        return value.id
+
+    def axis(self, node: Call, depth: int) -> Code:
+        """`axis(values)`: a new dimension named after the cell."""
+        self.looked_up.add("axis")
+        if node.keywords or len(node.args) != 1:
+            raise ArgumentError("axis(values) takes one array of values", "values",
+                                span=node.span)
+        if self.bindings or not self.cell_name or self.cell_name == "_":
+            raise DomainError("an axis is named after its cell: write `name = axis(…)`",
+                              node.span)
+        values = self.expr(node.args[0], depth + 1)
+        return _lift(axis_op(self.cell_name, self.rank, node.span), values)
+
+    def own_function(self, function: FunctionDef, node: Call, depth: int) -> Code:
+        """A call of one of the sheet's functions: its body, with the arguments in place of
+        its parameters (so units are checked, and values of every kind pass, as if the body
+        were written at the call)."""
+        name = function.name
+        self.looked_up.add(name)
+        if name in self.expanding:
+            chain = " → ".join([*self.expanding[self.expanding.index(name):], name])
+            raise DomainError(f"`{name}` calls itself ({chain}); a sheet's functions cannot "
+                              "recurse", node.function_span)
+        params = [p for p, _ in function.params]
+        signature = f"{name}({', '.join(params)})"
+        if len(node.args) > len(params):
+            raise ArgumentError(f"{signature} takes {len(params)} argument"
+                                f"{'s' if len(params) != 1 else ''}, got {len(node.args)}",
+                                "", span=node.span)
+        bound: dict[str, Code] = {}
+        for param, arg in zip(params, node.args):
+            bound[param] = self.expr(arg, depth + 1)
+        for keyword in node.keywords:
+            if keyword.name not in params:
+                raise ArgumentError(f"{signature}: no argument is called `{keyword.name}`", "",
+                                    span=keyword.span,
+                                    hint=did_you_mean(close_matches(keyword.name, params)))
+            if keyword.name in bound:
+                raise ArgumentError(f"{signature}: `{keyword.name}` is given twice", "",
+                                    span=keyword.span)
+            bound[keyword.name] = self.expr(keyword.value, depth + 1)
+        missing = [p for p in params if p not in bound]
+        if missing:
+            raise ArgumentError(f"{signature}: missing {', '.join(f'`{p}`' for p in missing)}",
+                                missing[0], span=node.span)
+        self.bindings.append(bound)
+        self.expanding.append(name)
+        try:
+            return self.expr(function.body, depth + 1)
+        finally:
+            self.bindings.pop()
+            self.expanding.pop()
 
     def array(self, node: ArrayLiteral, depth: int) -> Code:
         if not node.items:
@@ -735,6 +863,7 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
     ``display_unit`` (unit, span) applies when the definition has no ``in`` of its own.
     """
     compiler = _Compiler(scope, source, definition.name, inputs)
+    compiler.rank = definition.span.line + definition.span.column / 1e4
     program = CellProgram(definition, source)
     if definition.syntax_error is not None:
         program.error = definition.syntax_error
@@ -755,7 +884,11 @@ def _compile_into(program: CellProgram, compiler: _Compiler, definition: CellDef
                   display_unit) -> None:
     try:
         code = compiler.expr(definition.expr)
-        if definition.unit is not None:
+        if isinstance(definition.unit, Name) and definition.unit.id in TIME_SCALES \
+                and definition.unit.id not in compiler.scope.cell_names:
+            program.time_scale = definition.unit.id
+            program.unit_span = definition.unit.span
+        elif definition.unit is not None:
             program.unit = compiler.unit(definition.unit)
             program.unit_span = definition.unit.span
         elif display_unit is not None:

@@ -33,7 +33,7 @@ from ..errors import (
     UnitError,
 )
 from ..language.syntax import CellDef
-from ..physics.records import Record, RecordList
+from ..physics.records import Record, RecordList, is_date
 from ..physics.units import (
     angle_equivalencies,
     conversion_scale,
@@ -50,6 +50,9 @@ from ..physics.units import (
 )
 from . import uncertain
 from .context import context
+from .grid import Grid
+from .grid import align as grid_align
+from .grid import wrap as grid_wrap
 from .samples import Samples
 from .uncertain import Uncertain
 from .values import CONTAINERS, all_finite
@@ -85,6 +88,8 @@ class CellProgram:
     constant: Any = None
     unit: u.UnitBase | None = None
     unit_span: Span | None = None
+    #: `t in TDB`: the time scale the cell's dates are shown in
+    time_scale: str | None = None
     #: the cells it uses, each with the place of its first use
     deps: dict[str, Span] = field(default_factory=dict)
     #: every name it looked up (cells, constants, units, unknown names): a new cell of one of
@@ -114,7 +119,8 @@ def failed_input(program: CellProgram, failed: list[str], source: Source | None 
 
 def _finite(result, inputs, span: Span, what: str = "the result"):
     """Refuse nan, and an infinity that no infinite input explains (overflow, x/0)."""
-    if not context().checking or isinstance(result, u.UnitBase) or isinstance(result, CONTAINERS):
+    if not context().checking or isinstance(result, u.UnitBase) or isinstance(result, CONTAINERS) \
+            or is_date(result):
         return result
     value = result.value
     if np.ndim(value) == 0:
@@ -165,6 +171,13 @@ def add_op(span: Span, subtract: bool):
     def apply(x, y):
         if isinstance(x, u.UnitBase) or isinstance(y, u.UnitBase):
             raise fail(x, y)
+        if not (_plain(x) and _plain(y)):
+            if type(x) is Grid or type(y) is Grid:
+                return _on_grid(apply, x, y, span)
+            if is_date(x) or is_date(y):
+                from . import dates
+
+                return dates.add(x, y, subtract, span)
         try:
             if _plain(x) and _plain(y):
                 # x's unit wins, as in astropy; y is scaled into it
@@ -190,8 +203,30 @@ def add_op(span: Span, subtract: bool):
     return apply
 
 
+def _on_grid(operation: Callable, x, y, span: Span):
+    """An operation of two values of which one or both are on axes: on their aligned data."""
+    try:
+        (a, b), axes = grid_align(x, y)
+    except SheetError as err:
+        raise err.located(span) from None
+    return grid_wrap(operation(a, b), axes)
+
+
 def mul_op(span: Span, divide: bool):
     def apply(x, y):
+        if not _plain(x):
+            if type(x) is Grid or type(y) is Grid:
+                return _on_grid(apply, x, y, span)
+            if is_date(x) or is_date(y):
+                from . import dates
+
+                raise dates.refuse_product(x, y, span)
+        elif type(y) is Grid:
+            return _on_grid(apply, x, y, span)
+        elif is_date(y):
+            from . import dates
+
+            raise dates.refuse_product(x, y, span)
         try:
             if _plain(x):
                 if _plain(y):
@@ -224,13 +259,32 @@ def mul_op(span: Span, divide: bool):
 
 def neg_op(span: Span):
     def apply(x):
-        return quantity(-x.value, x.unit) if _plain(x) else -x
+        if _plain(x):
+            return quantity(-x.value, x.unit)
+        if is_date(x):
+            from . import dates
+
+            raise dates.refuse_product(x, x, span)
+        try:
+            return -x
+        except SheetError as err:
+            raise err.located(span) from None
 
     return apply
 
 
 def power_op(span: Span, exponent_span: Span):
     def apply(base, exponent):
+        if type(base) is Grid or type(exponent) is Grid:
+            try:
+                (b, e), axes = grid_align(base, exponent)
+            except SheetError as err:
+                raise err.located(span) from None
+            return grid_wrap(apply(b, e), axes)
+        if is_date(base) or is_date(exponent):
+            from . import dates
+
+            raise dates.refuse_product(base, exponent, span)
         if isinstance(base, CONTAINERS) or isinstance(exponent, CONTAINERS):
             record = base if isinstance(base, CONTAINERS) else exponent
             raise DomainError(f"{describe_value(record)} is not a number and has no power",
@@ -442,7 +496,9 @@ def convert(value, unit: u.UnitBase, span: Span):
 
 
 def rescaled(value, scale: float, unit: u.UnitBase):
-    """A leaf multiplied by ``scale`` and labelled ``unit``."""
+    """A leaf multiplied by ``scale`` and labelled ``unit`` (a value on axes keeps them)."""
+    if type(value) is Grid:
+        return Grid(rescaled(value.data, scale, unit), value.axes)
     if isinstance(value, Uncertain):
         return value.scaled(scale, unit)
     if isinstance(value, Samples):
@@ -473,6 +529,18 @@ def finish(program: CellProgram, value):
     """Conversion into the cell's `in` unit, or collapse of scaled dimensionless units."""
     if isinstance(value, u.UnitBase):  # pragma: no cover - the grammar cannot produce it
         raise UnitError("a unit needs a number before it", program.definition.expr_span)
+    if program.time_scale is not None:
+        from .dates import in_scale
+
+        span = program.unit_span or program.definition.span
+        if type(value) is Grid:
+            return Grid(in_scale(value.data, program.time_scale, span), value.axes)
+        return in_scale(value, program.time_scale, span)
+    if is_date(value) or (type(value) is Grid and is_date(value.data)):
+        if program.unit is not None and program.definition.unit is not None:
+            raise UnitError("a date has no unit; `in` takes a time scale for dates "
+                            "(`t in TDB`)", program.unit_span)
+        return value
     if isinstance(value, CONTAINERS):
         if program.unit is not None and program.definition.unit is not None:
             raise UnitError("a record has no unit to show it in; convert its fields instead",

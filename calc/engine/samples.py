@@ -58,6 +58,13 @@ class Samples:
             return self.data
         return self.data.reshape((self.count, *([1] * missing), *self.shape))
 
+    def reshaped(self, shape: tuple[int, ...]) -> Samples:
+        """The samples with each sample's value in another shape."""
+        return Samples(self.data.reshape((self.count, *shape)))
+
+    def transposed(self, order: tuple[int, ...]) -> Samples:
+        return Samples(self.data.transpose((0, *(i + 1 for i in order))))
+
     def to(self, unit: u.UnitBase) -> Samples:
         return Samples(self.data.to(unit))
 

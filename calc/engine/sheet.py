@@ -38,11 +38,12 @@ from ..errors import (
 from ..files import read_sheet
 from ..language.parse import parse_expression
 from ..language.scope import Scope
-from ..language.syntax import CellDef, CheckDef, Expr, Note, UseDef
+from ..language.syntax import CellDef, CheckDef, Expr, PlotDef, TableDef, UseDef
+from ..outputs.figures import PlotSpec, TableSpec
 from ..physics.constants import ConstantSelection
 from ..physics.units import conversion_scale, physical_type, unit_table, unit_text
 from . import budget, montecarlo
-from .build import Built, Imports, build, import_sheet
+from .build import Built, Imports, build, function_errors, import_sheet
 from .cells import Cell, Cells
 from .checks import CheckResult
 from .compile import InputTable
@@ -127,7 +128,8 @@ class Sheet:
 
     def _build(self, constants: list[str] | None) -> None:
         built = build(self.source, constants, self._import)
-        self.items: list[Note | Cell] = built.items
+        #: notes, cells, tables and plots in file order
+        self.items: list = built.items
         self.errors: list[SheetError] = built.errors
         #: imported sheets by namespace (`use "x.sheet" as ns`)
         self.namespaces: dict[str, Sheet] = built.namespaces
@@ -137,6 +139,10 @@ class Sheet:
         self.context.selection = built.selection
         scope = Scope([c.name for c in built.cells], self.selection,
                       namespaces=self.namespaces, failed_namespaces=built.failed_namespaces)
+        #: the sheet's own functions (`ratio(x, y) = …`) by name
+        self.functions = built.functions
+        scope.functions = built.functions
+        self.errors += function_errors(built, self.source)
         self._cells = Cells(scope, InputTable(self.uncertain_constants, self.prefix,
                                               self.imports.inputs))
         for cell in built.cells:
@@ -425,6 +431,7 @@ class Sheet:
         for result in self.checks:
             if result.error is not None and not isinstance(result.error, InputFailedError):
                 found.append(result.error)
+        found += [e for e in self.figure_errors() if not isinstance(e, InputFailedError)]
         return sorted(found, key=self._position_of)
 
     def _position_of(self, err: SheetError) -> tuple[int, int]:
@@ -440,8 +447,36 @@ class Sheet:
             found += [e for e in imported.internal_errors() if e not in found]
         return found
 
+    # -- tables and plots
+    def _figures(self):
+        from . import figures
+
+        key = self._cells.evaluations
+        cached = getattr(self, "_figures_cache", None)
+        if cached is None or cached[0] != key:
+            with numeric_context(), entered(self.context):
+                cached = (key, figures.evaluate(self.items, figures.lookup_in(self), self.source))
+            self._figures_cache = cached
+        return cached[1]
+
+    def tables(self) -> list[TableSpec]:
+        """The sheet's `table` statements, evaluated (those that fail are in
+        :meth:`figure_errors`)."""
+        return self._figures()[0]
+
+    def plots(self) -> list[PlotSpec]:
+        """The sheet's `plot` statements, evaluated (those that fail are in
+        :meth:`figure_errors`)."""
+        return self._figures()[1]
+
+    def figure_errors(self) -> list[SheetError]:
+        """Why a table or plot of the sheet cannot be made, one error per statement."""
+        if not any(isinstance(i, (TableDef, PlotDef)) for i in self.items):
+            return []
+        return self._figures()[2]
+
     @property
     def ok(self) -> bool:
         """No errors anywhere (a failing check is not an error; see :attr:`checks`)."""
         return not self.errors and all(c.error is None for c in self.cells) \
-            and all(r.error is None for r in self.checks)
+            and all(r.error is None for r in self.checks) and not self.figure_errors()

@@ -126,6 +126,25 @@ class Uncertain:
     def sigma(self) -> u.Quantity:
         return quantity(self.sigma_value(), self.nominal.unit)
 
+    def reshaped(self, shape: tuple[int, ...]) -> Uncertain:
+        """The same value with its elements in another shape (contributions too)."""
+        return self._mapped(lambda a: a.reshape(shape))
+
+    def transposed(self, order: tuple[int, ...]) -> Uncertain:
+        return self._mapped(lambda a: a.transpose(order))
+
+    def indexed(self, key: tuple) -> Uncertain:
+        """The elements ``key`` picks (numpy indexing), with their contributions."""
+        return self._mapped(lambda a: a[key])
+
+    def _mapped(self, change: Callable) -> Uncertain:
+        def each(part):
+            return change(part) if np.ndim(part) else part
+
+        noise = None if self.noise is None else {k: each(n) for k, n in self.noise.items()}
+        return Uncertain(change(self.nominal), {k: each(np.asarray(p)) if np.ndim(p) else p
+                                                for k, p in self.parts.items()}, noise)
+
     def to(self, unit: u.UnitBase) -> Uncertain:
         return self.scaled(conversion_scale(self.nominal.unit, unit), unit)
 

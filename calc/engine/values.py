@@ -37,14 +37,21 @@ from ..physics.records import Record, RecordList, is_date
 from ..physics.units import quantity
 from . import uncertain
 from .context import context
+from .grid import Grid, anonymous_axis, expand, move_last, put_back, reshaped, transposed, value_shape
+from .grid import align as grid_align
+from .grid import union as grid_union
+from .grid import wrap as grid_wrap
 from .samples import Samples, percentiles, value_ndim
+from .truth import Truth
 from .uncertain import Input, Uncertain
 
 _item = np.ndarray.item  # the float of a 0-d array
 
-Leaf = Union[u.Quantity, Uncertain, Samples]
-Value = Union[u.Quantity, Uncertain, Samples, Record, RecordList]
+Leaf = Union[u.Quantity, Uncertain, Samples, Truth]
+Value = Union[u.Quantity, Uncertain, Samples, Truth, Grid, Record, RecordList]
 CONTAINERS = (Record, RecordList)
+#: values that hold other values: records, lists of records, values on axes
+STRUCTURES = (Record, RecordList, Grid)
 
 
 # ---- walking values -------------------------------------------------------------------
@@ -56,24 +63,29 @@ def is_record(value) -> bool:
 
 
 def leaves(value) -> Iterator:
-    """The leaves of a value: itself, or every field of a record (of every record of a list)."""
+    """The leaves of a value: itself, the data of a value on axes, or every field of a record
+    (of every record of a list)."""
     if isinstance(value, Record):
         for item in value.fields.values():
             yield from leaves(item)
     elif isinstance(value, RecordList):
         for record in value.items:
             yield from leaves(record)
+    elif isinstance(value, Grid):
+        yield value.data
     else:
         yield value
 
 
 def map_leaves(function: Callable, value):
-    """The same value with every leaf replaced by ``function(leaf)``."""
+    """The same value with every leaf replaced by ``function(leaf)`` (axes kept)."""
     if isinstance(value, Record):
         return Record(value.kind, {k: map_leaves(function, q) for k, q in value.fields.items()},
                       value.label)
     if isinstance(value, RecordList):
         return RecordList(tuple(map_leaves(function, r) for r in value.items))
+    if isinstance(value, Grid):
+        return Grid(function(value.data), value.axes)
     return function(value)
 
 
@@ -84,7 +96,22 @@ def zip_leaves(function: Callable, first, second):
         return {k: zip_leaves(function, first.fields[k], second.fields[k]) for k in first.fields}
     if isinstance(first, RecordList):
         return [zip_leaves(function, a, b) for a, b in zip(first.items, second.items)]
+    if isinstance(first, Grid):
+        return zip_leaves(function, first.data, second.data if isinstance(second, Grid)
+                          else second)
     return function(first, second)
+
+
+def axes_of(value) -> tuple:
+    """The axes a value is on (none for a single value or a plain array)."""
+    if isinstance(value, Grid):
+        return value.axes
+    if isinstance(value, Record):
+        found: tuple = ()
+        for item in value.fields.values():
+            found = grid_union(found, axes_of(item))
+        return found
+    return ()
 
 
 def describe(value) -> str:
@@ -93,6 +120,10 @@ def describe(value) -> str:
         return value.describe()
     if isinstance(value, RecordList):
         return "an array of records"
+    if isinstance(value, Grid):
+        return describe(value.data) + " on " + ", ".join(f"`{a.label}`" for a in value.axes)
+    if isinstance(value, Truth):
+        return "a truth"
     return "a quantity"
 
 
@@ -105,7 +136,7 @@ def nominal(value):
         return value
     if isinstance(value, Uncertain):
         return value.nominal
-    if isinstance(value, CONTAINERS) and is_uncertain(value):
+    if isinstance(value, STRUCTURES) and is_uncertain(value):
         return map_leaves(_nominal_leaf, value)
     return value
 
@@ -118,7 +149,7 @@ def is_uncertain(value) -> bool:
     """Whether a value carries first-order contributions (any field of a record)."""
     if isinstance(value, Uncertain):
         return True
-    if isinstance(value, CONTAINERS):
+    if isinstance(value, STRUCTURES):
         return any(isinstance(leaf, Uncertain) for leaf in leaves(value))
     return False
 
@@ -127,7 +158,7 @@ def is_sampled(value) -> bool:
     """Whether a value holds Monte Carlo samples (any field of a record)."""
     if isinstance(value, Samples):
         return True
-    if isinstance(value, CONTAINERS):
+    if isinstance(value, STRUCTURES):
         return any(isinstance(leaf, Samples) for leaf in leaves(value))
     return False
 
@@ -137,7 +168,7 @@ def inputs_of(value) -> dict[Input, Any]:
     if isinstance(value, Uncertain):
         return value.parts
     out: dict[Input, Any] = {}
-    if isinstance(value, CONTAINERS):
+    if isinstance(value, STRUCTURES):
         for leaf in leaves(value):
             if isinstance(leaf, Uncertain):
                 out.update(leaf.parts)
@@ -146,6 +177,8 @@ def inputs_of(value) -> dict[Input, Any]:
 
 def sigma(value) -> u.Quantity | None:
     """The first-order standard uncertainty of a leaf, in its unit; None without one."""
+    if isinstance(value, Grid):
+        value = value.data
     return value.sigma if isinstance(value, Uncertain) else None
 
 
@@ -191,7 +224,7 @@ def _assemble(result, parts_by_key: dict):
         return RecordList(tuple(_assemble(r, {k: (d[i], trunc, t)
                                               for k, (d, trunc, t) in parts_by_key.items()})
                                 for i, r in enumerate(result.items)))
-    if is_date(result):
+    if is_date(result) or isinstance(result, Truth):
         return result
     magnitude = np.abs(np.asarray(result.value, dtype=float))
     parts = {k: d for k, (d, _, _) in parts_by_key.items()}
@@ -239,12 +272,113 @@ EXACT_RULES: dict[str, Callable] = {
 }
 
 
+#: How a function treats the axes of its first argument: element by element (the result is on
+#: the union of the arguments' axes), reducing the last (or the named) axis, keeping its length
+#: (cumsum, sort, gradient), shortening it (diff), or making an array of no axis (span,
+#: crossing).
+AXIS_EFFECTS = ("elementwise", "reduce", "keep", "shorten", "plain", "first")
+
+
 def apply_function(call: Callable, values: tuple, samplewise: bool = False,
-                   name: str | None = None):
+                   name: str | None = None, effect: str = "elementwise",
+                   along: str | None = None):
     """Call a library function (a pure function of Quantities and records) on values of any
-    kind: uncertain values go through numerical differentiation (or an exact rule, for the
-    functions in :data:`EXACT_RULES`), samples through one vectorised call (or one call per
-    sample for functions that take single values only)."""
+    kind: values on axes are aligned over their grid (and the result put back on it, as
+    ``effect`` says), uncertain values go through numerical differentiation (or an exact rule,
+    for the functions in :data:`EXACT_RULES`), samples through one vectorised call (or one call
+    per sample for functions that take single values only)."""
+    if along is not None or any(isinstance(v, Grid) or (isinstance(v, Record) and axes_of(v))
+                                for v in values):
+        return _over_axes(call, values, samplewise, name, effect, along)
+    return _apply_leaves(call, values, samplewise, name)
+
+
+def _over_axes(call: Callable, values: tuple, samplewise: bool, name: str | None,
+               effect: str, along: str | None):
+    """A function applied to values on axes: aligned, called on the data, put back on axes."""
+    if effect in ("reduce", "keep", "shorten") and values:
+        first = values[0]
+        if not isinstance(first, Grid):
+            if along is not None:
+                raise DomainError(f"`along = {along}`: the value is on no axis")
+            return _apply_leaves(call, values, samplewise, name)
+        data, rest, axis = move_last(first, along)
+        others, axes = _aligned_rest(values[1:], (*rest, axis))
+        result = _apply_leaves(call, (data, *others), samplewise, name)
+        if effect == "reduce":
+            return map_leaves(lambda leaf: grid_wrap(leaf, rest), result) if rest else result
+        if effect == "shorten":
+            size = value_shape(next(iter(leaves(result))))[-1:]
+            new_axis = anonymous_axis(size[0] if size else 0)
+            return map_leaves(lambda leaf: put_back(leaf, rest, new_axis), result)
+        return map_leaves(lambda leaf: put_back(leaf, rest, axis), result)
+    if along is not None:
+        raise DomainError(f"`along` goes with reductions (sum, mean, max, integral, …), not "
+                          f"with `{name}`")
+    if effect == "first":
+        # interp(x_new, x, y): the curve (x, y) lies along one axis; the result is where x_new is
+        first_axes = axes_of(values[0])
+        curve = tuple(_curve(v, name) for v in values[1:])
+        result = _apply_leaves(call, (_unwrapped(values[0], first_axes), *curve), samplewise,
+                               name)
+        return map_leaves(lambda leaf: grid_wrap(leaf, first_axes), result)
+    grid_axes = grid_union(*(axes_of(v) for v in values))
+    aligned_values = tuple(_unwrapped(v, grid_axes) for v in values)
+    result = _apply_leaves(call, aligned_values, samplewise, name)
+    if effect == "plain" or not grid_axes:
+        return result
+    ndim = len(grid_axes)
+    return map_leaves(lambda leaf: grid_wrap(leaf, grid_axes)
+                      if len(value_shape(leaf)) == ndim else leaf, result)
+
+
+def _curve(value, name: str | None):
+    """An argument that must be a curve along one axis: its data (1-D)."""
+    if isinstance(value, Grid):
+        if len(value.axes) != 1:
+            raise DomainError(f"{name}: the curve must run along one axis, this one is on "
+                              f"{', '.join(f'`{a.label}`' for a in value.axes)}",
+                              hint="pick one line of the grid with an index first")
+        return value.data
+    return value
+
+
+def _unwrapped(value, axes: tuple):
+    """A value as data broadcasting over ``axes``: a value on axes expanded to all of them, a
+    plain array placed on the axis of its length, records field by field."""
+    if isinstance(value, Grid):
+        return expand(value.data, value.axes, axes)
+    if isinstance(value, Record):
+        return Record(value.kind, {k: _unwrapped(q, axes) for k, q in value.fields.items()},
+                      value.label)
+    if isinstance(value, RecordList):
+        return RecordList(tuple(_unwrapped(r, axes) for r in value.items))
+    if axes and value_shape(value):
+        (data,), _ = grid_align(value, Grid(None, axes))
+        return data
+    return value
+
+
+def _aligned_rest(values: tuple, axes: tuple) -> tuple[list, tuple]:
+    """Further arguments of a reduction, aligned to the first's axes (the reduced axis last)."""
+    out = []
+    for v in values:
+        if isinstance(v, Grid):
+            missing = [a for a in v.axes if a not in axes]
+            if missing:
+                raise DomainError(f"an argument is on the axis `{missing[0].label}`, which the "
+                                  "reduced value is not on")
+            shape = tuple(a.length if a in v.axes else 1 for a in axes)
+            order = [v.axes.index(a) for a in axes if a in v.axes]
+            data = v.data if order == sorted(order) else transposed(v.data, tuple(order))
+            out.append(reshaped(data, shape))
+        else:
+            out.append(v)
+    return out, axes
+
+
+def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | None):
+    """A function on values whose axes are settled: uncertain, sampled or plain."""
     uncertain_args = False
     sampled_args = False
     for v in values:
@@ -255,6 +389,8 @@ def apply_function(call: Callable, values: tuple, samplewise: bool = False,
             uncertain_args = True
         elif kind is Samples or (kind in CONTAINERS and is_sampled(v)):
             sampled_args = True
+        elif kind is Truth:
+            continue
     if uncertain_args:
         rule = EXACT_RULES.get(name) if name is not None else None
         if rule is not None and len(values) == 1 and isinstance(values[0], Uncertain) \
@@ -363,6 +499,15 @@ def same(a, b) -> bool:
             and same(a.nominal, b.nominal) and same(a.sigma, b.sigma)
     if isinstance(a, Samples) or isinstance(b, Samples):
         return isinstance(a, Samples) and isinstance(b, Samples) and same(a.data, b.data)
+    if isinstance(a, Grid) or isinstance(b, Grid):
+        return isinstance(a, Grid) and isinstance(b, Grid) and a.axes == b.axes \
+            and same(a.data, b.data)
+    if isinstance(a, Truth) or isinstance(b, Truth):
+        return isinstance(a, Truth) and isinstance(b, Truth) \
+            and bool(np.array_equal(a.flags, b.flags))
+    if is_date(a) or is_date(b):
+        return is_date(a) and is_date(b) and a.scale == b.scale and a.shape == b.shape \
+            and bool(np.all(a == b))
     return a.unit == b.unit and np.shape(a.value) == np.shape(b.value) and \
         bool(np.array_equal(a.value, b.value))
 
@@ -370,7 +515,9 @@ def same(a, b) -> bool:
 def all_finite(value) -> bool:
     """No nan or infinity in a quantity (records were checked field by field when made)."""
     kind = type(value)
-    if kind in CONTAINERS:
+    if kind is Grid:
+        return all_finite(value.data)
+    if kind in CONTAINERS or kind is Truth or is_date(value):
         return True
     if kind is Uncertain:
         value = value.nominal
@@ -390,6 +537,10 @@ class Shown:
     sigma: Any | None
     unit: u.UnitBase
     samples: np.ndarray | None = None
+    #: the axes the value is on, in order (their names, or None for a dimension of no axis)
+    axes: tuple = ()
+    #: "quantity", "truth" (true/false values) or "date" (ISO strings with a time scale)
+    kind: str = "quantity"
     _points: np.ndarray | None = field(default=None, repr=False)
 
     @property
@@ -450,6 +601,20 @@ def rounding_free(value, sigma):
 
 def shown(value) -> ShownValue:
     """The printable form of a value of any kind."""
+    if isinstance(value, Grid):
+        inner = shown(value.data)
+        names = tuple(a.name for a in value.axes)
+        if isinstance(inner, Shown):
+            inner.axes = names
+        return inner
+    if isinstance(value, Truth):
+        return Shown(value.flags, None, u.dimensionless_unscaled, kind="truth")
+    if is_date(value):
+        from .dates import iso
+
+        text = iso(value)
+        return Shown(np.array(text, dtype=object).reshape(value.shape) if value.shape
+                     else text, None, u.dimensionless_unscaled, kind="date")
     if isinstance(value, Record):
         return ShownRecord(value.kind, value.label, {k: shown(q) for k, q in value.fields.items()})
     if isinstance(value, RecordList):

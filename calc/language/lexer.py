@@ -55,7 +55,8 @@ def _span(tok: Token) -> Span:
 
 # Terminals matched by their regular expression from the grammar, longest-first where
 # one pattern is a prefix of another (PERCENT before NUMBER, DOTTED_NAME before NAME).
-_PATTERN_TERMINALS = ("_NL", "HASH_TEXT", "STRING", "PERCENT", "NUMBER", "DOTTED_NAME", "NAME")
+_PATTERN_TERMINALS = ("_NL", "HASH_TEXT", "STRING", "DATE", "PERCENT", "NUMBER", "DOTTED_NAME",
+                      "NAME")
 
 # Operators that the grammar spells as alternatives under one terminal.
 _MULTI = {"^": "_POW", "**": "_POW", "*": "_TIMES", "\u00d7": "_TIMES", "\u00b7": "_TIMES",

@@ -52,7 +52,7 @@ def grammar_path() -> Path:
                      hint="reinstall relsheet")
 
 
-_START = ["sheet", "expression_input", "prompt_input"]
+_START = ["sheet", "expression_input", "prompt_input", "function_input"]
 
 #: Entries of the analysed grammar the cache keeps (other installed versions may want theirs).
 _KEEP_TABLES = 4
@@ -227,13 +227,10 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer,
         return SheetSyntaxError(f"`{word}` is a reserved word and cannot name a cell",
                                 Span(tok.line, column, tok.line, column + len(word)),
                                 hint=f"choose another name, such as `{word}_value`")
-    if first_word in RESERVED_WORDS - {"in", "const", "constants", "ppn", "check", "within", "use",
-                                       "as", "with"}:
-        column = len(lines[here - 1]) - len(lines[here - 1].lstrip()) + 1
-        return SheetSyntaxError(
-            f"`{first_word}` statements are not part of this version of relsheet",
-            Span(tok.line, column, tok.line, column + len(first_word)),
-            hint=f"`{first_word}` is reserved for a statement of a later version")
+    if first_word in _STATEMENT_FORMS and tok.type in ("_NL", "$END", "NAME", "NUMBER", "COLON",
+                                                      "EQEQ", "FOR", "VS", "STRING", "IN"):
+        return SheetSyntaxError(f"unexpected {_describe_token(tok)} in a `{first_word}` statement",
+                                span, hint=f"write it as {_STATEMENT_FORMS[first_word]}")
     if first_word == "check" and tok.value == "=":
         return SheetSyntaxError("a check compares with `==`, not `=`", span,
                                 hint="write for example `check M == 1 Msun within 1%`")
@@ -257,6 +254,15 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer,
         return SheetSyntaxError(f"`{tok.value}` closes no open bracket", span)
     return SheetSyntaxError(f"unexpected {_describe_token(tok)}", span,
                             hint=_expected_words(expected))
+
+
+#: How each statement is written, for the hint of a syntax error in one.
+_STATEMENT_FORMS = {
+    "table": "`table NAME: cell, cell, …`",
+    "plot": "`plot y vs x` (`plot y1, y2 vs x`, `plot z vs x, y`, then `log x`, `log y`)",
+    "solve": "`solve f(x) == y for x` (equations joined by `,`, `for x in [lo, hi]`)",
+    "correlation": "`correlation a, b = 0.3`",
+}
 
 
 def _character_hint(ch: str) -> str | None:
@@ -448,3 +454,15 @@ def parse_expression(text: str, source: Source) -> ExpressionLine:
 def parse_prompt_line(text: str, source: Source):
     """Parse a line typed at the prompt: a :class:`CellDef` or an :class:`ExpressionLine`."""
     return _parse(text, "prompt_input", source)
+
+
+#: A line typed at the prompt that defines a function: `name(params) = …`.
+_FUNCTION_LINE = re.compile(r"\s*[^\W\d]\w*\s*\(\s*([^\W\d]\w*\s*(,\s*[^\W\d]\w*\s*)*)?\)\s*=(?!=)")
+
+
+def parse_function_line(text: str, source: Source):
+    """Parse a line typed at the prompt that defines a function (``f(x) = …``); None when the
+    line is not one (the prompt then reads it with :func:`parse_prompt_line`)."""
+    if not _FUNCTION_LINE.match(text):
+        return None
+    return _parse(text, "function_input", source)

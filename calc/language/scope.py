@@ -77,6 +77,8 @@ class Scope:
         self.selection = selection
         self.units: UnitTable = unit_table(selection)
         self.constants: dict[str, ConstantEntry] = constant_table(selection)
+        #: the sheet's own functions (`ratio(x, y) = …`) by name
+        self.functions: dict = {}
 
     # -- the three positions
     def in_chain(self, name: Name, spellings: Callable[[], tuple[str, str]]) -> Resolved:

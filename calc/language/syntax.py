@@ -280,9 +280,74 @@ class Power(_Node):
         self.span = span
 
 
+class _Plain(_Node):
+    """A node whose ``__init__`` takes its fields in the order of ``__slots__`` (for the node
+    types that are rare in a sheet: statements beyond cells, comparisons, indices, dates)."""
+
+    __slots__ = ()
+
+    def __init__(self, *values: Any) -> None:
+        if len(values) != len(self.__slots__):
+            raise TypeError(f"{type(self).__name__} takes {len(self.__slots__)} fields")
+        for slot, value in zip(self.__slots__, values):  # type: ignore[var-annotated]
+            setattr(self, slot, value)
+
+
+class Compare(_Plain):
+    """``left OP right`` as a value (``x > 3 km``): truths, element by element."""
+
+    __slots__ = ("op", "left", "right", "span")
+    op: str
+    left: Expr
+    right: Expr
+    span: Span
+
+
+class Slice(_Plain):
+    """``start:stop`` in an index (either may be missing)."""
+
+    __slots__ = ("start", "stop", "span")
+    start: Expr | None
+    stop: Expr | None
+    span: Span
+
+
+class Index(_Plain):
+    """``target[i]``, ``target[2:5]``, ``target[mask]``, ``target[i, j]``."""
+
+    __slots__ = ("target", "items", "span")
+    target: Expr
+    items: tuple
+    span: Span
+
+
+class DateLiteral(_Plain):
+    """``2031-04-12T06:30:00 TDB``: a calendar date and time with its time scale (``scale``
+    None when the sheet wrote none: refused when the cell is compiled)."""
+
+    __slots__ = ("text", "scale", "scale_span", "span")
+    text: str
+    scale: str | None
+    scale_span: Span | None
+    span: Span
+
+
+class DayNumber(_Plain):
+    """``MJD 62000.25 TT`` or ``JD 2462000.75 TDB``: a date as a day number on a scale."""
+
+    __slots__ = ("kind", "value", "text", "scale", "scale_span", "span")
+    kind: str
+    value: float
+    text: str
+    scale: str | None
+    scale_span: Span | None
+    span: Span
+
+
 Expr = Union[
     Number, Percent, Name, NamePower, Dotted, Call, Group, ArrayLiteral, Chain,
-    UnitProduct, PercentUnit, BinaryOp, UnaryOp, Power, PlusMinus,
+    UnitProduct, PercentUnit, BinaryOp, UnaryOp, Power, PlusMinus, Compare, Index, Slice,
+    DateLiteral, DayNumber,
 ]
 
 # ---- statements ---------------------------------------------------------------
@@ -470,11 +535,97 @@ class ExpressionLine(_Node):
         self.span = span
 
 
-Statement = Union[CellDef, UseDef, ConstantsDef, PPNDef, CheckDef, Note]
+class FunctionDef(_Plain):
+    """``ratio(x, y) = x / (x + y)``: a function of the sheet."""
+
+    __slots__ = ("name", "name_span", "params", "body", "comment", "marker", "span")
+    name: str
+    name_span: Span
+    params: tuple          # ((name, span), …)
+    body: Expr
+    comment: str | None
+    marker: str | None
+    span: Span
+
+
+class TableDef(_Plain):
+    """``table NAME: cell, cell, …``."""
+
+    __slots__ = ("name", "name_span", "cells", "span")
+    name: str
+    name_span: Span
+    cells: tuple           # Name or Dotted nodes
+    span: Span
+
+
+class PlotDef(_Plain):
+    """``plot y[, y…] vs x[, x2] [log x] [log y]``."""
+
+    __slots__ = ("ys", "xs", "log_x", "log_y", "span")
+    ys: tuple              # Name or Dotted nodes
+    xs: tuple
+    log_x: bool
+    log_y: bool
+    span: Span
+
+
+class Equation(_Plain):
+    """``left == right`` in a `solve` statement."""
+
+    __slots__ = ("left", "right", "span")
+    left: Expr
+    right: Expr
+    span: Span
+
+
+class Unknown(_Plain):
+    """A cell a `solve` statement solves for, with an optional bracket ``in [lo, hi]``."""
+
+    __slots__ = ("cell", "bracket", "span")
+    cell: Any              # Name or Dotted
+    bracket: Any           # ArrayLiteral or None
+    span: Span
+
+
+class SolveDef(_Plain):
+    """``solve EQ[, EQ…] for CELL[, CELL…]``."""
+
+    __slots__ = ("equations", "unknowns", "span")
+    equations: tuple
+    unknowns: tuple
+    span: Span
+
+
+class CorrelationDef(_Plain):
+    """``correlation a, b = r``."""
+
+    __slots__ = ("first", "second", "coefficient", "span")
+    first: Any             # Name or Dotted
+    second: Any
+    coefficient: Expr
+    span: Span
+
+
+class EphemerisDef(_Plain):
+    """``ephemeris "kernels/de440s.bsp"``: solar-system states from a JPL kernel."""
+
+    __slots__ = ("path", "path_span", "span")
+    path: str
+    path_span: Span
+    span: Span
+
+
+Statement = Union[CellDef, UseDef, ConstantsDef, PPNDef, CheckDef, Note, FunctionDef, TableDef,
+                  PlotDef, SolveDef, CorrelationDef, EphemerisDef]
 
 #: Words that start statements now or in later versions of the language.
 RESERVED_WORDS = frozenset({"constants", "use", "check", "ppn", "plot", "in", "const", "within",
-                            "as", "with"})
+                            "as", "with", "table", "vs", "solve", "for", "correlation"})
+
+#: The time scales a date literal may name (IAU: UTC, TAI, TT, TDB, TCG, TCB; IERS: UT1).
+TIME_SCALES = ("UTC", "TAI", "TT", "TDB", "TCG", "TCB", "UT1")
+#: Day numbers a date may be written as: the Modified and the plain Julian Date.
+DAY_NUMBERS = ("MJD", "JD")
 
 # ---- the builder ----------------------------------------------------------------
 
@@ -646,9 +797,128 @@ class NodeBuilder:
     def unit_product(self, children):
         return UnitProduct(tuple(children), children[0].span.to(children[-1].span))
 
+    def compare(self, children):
+        left, op, right = children
+        return Compare(op.value, left, right, left.span.to(right.span))
+
+    def slice(self, children):
+        start, colon, stop = children
+        first = start.span if start is not None else token_span(colon)
+        last = stop.span if stop is not None else token_span(colon)
+        return Slice(start, stop, first.to(last))
+
+    def index(self, children):
+        target, _lsqb, *items, rsqb = children
+        return Index(target, tuple(i for i in items if i is not None),
+                     target.span.to(token_span(rsqb)))
+
+    def date(self, children):
+        tok, scale = children
+        span = token_span(tok)
+        if scale is None:
+            return DateLiteral(tok.value, None, None, span)
+        return DateLiteral(tok.value, scale.value, token_span(scale), span.to(token_span(scale)))
+
+    def day_number(self, children):
+        kind, number, scale = children
+        if kind.value not in DAY_NUMBERS:
+            raise SheetSyntaxError(
+                f"unexpected {number.value!r}: two values need an operator between them".replace(
+                    repr(number.value), f"`{number.value}`"), token_span(number),
+                hint="write `*` to multiply; a date as a day number is `MJD 62000.25 TT` or "
+                     "`JD 2462000.75 TDB`")
+        span = token_span(kind).to(token_span(scale) if scale is not None else token_span(number))
+        return DayNumber(kind.value, parse_number(number), number.value,
+                         scale.value if scale is not None else None,
+                         token_span(scale) if scale is not None else None, span)
+
     # -- statements
     def conversion(self, children):
-        return children[0]
+        return children[-1]
+
+    def function(self, children):
+        tok, _lpar, *rest = children
+        params = []
+        body = comment = marker = None
+        for item in rest:
+            if item is None or _is_token(item, "RPAR"):
+                continue
+            if _is_token(item, "NAME"):
+                params.append((item.value, token_span(item)))
+            elif _is_token(item, "HASH_TEXT"):
+                comment, marker = split_trailer(item.value)
+            elif body is None and not isinstance(item, str):
+                body = item
+        if tok.value in RESERVED_WORDS:
+            raise SheetSyntaxError(f"`{tok.value}` is a reserved word and cannot name a function",
+                                   token_span(tok), hint=f"choose another name, such as "
+                                                         f"`{tok.value}_of`")
+        return FunctionDef(tok.value, token_span(tok), tuple(params), body, comment, marker,
+                           token_span(tok).to(body.span))
+
+    def table(self, children):
+        keyword, name, _colon, *rest = children
+        cells = tuple(c for c in rest if isinstance(c, (Name, Dotted)))
+        return TableDef(name.value, token_span(name), cells, token_span(keyword).to(cells[-1].span))
+
+    def plot_option(self, children):
+        word, axis = children
+        if word.value != "log" or axis.value not in ("x", "y"):
+            raise SheetSyntaxError(f"unexpected `{word.value} {axis.value}` in a plot",
+                                   token_span(word).to(token_span(axis)),
+                                   hint="a plot takes `log x` and `log y` after its cells")
+        return axis.value
+
+    def plot(self, children):
+        keyword, *rest = children
+        ys: list = []
+        xs: list = []
+        options: list[str] = []
+        target = ys
+        end = token_span(keyword)
+        for item in rest:
+            if _is_token(item, "VS"):
+                target = xs
+            elif isinstance(item, (Name, Dotted)):
+                target.append(item)
+                end = item.span
+            elif isinstance(item, str) and item in ("x", "y"):
+                options.append(item)
+        if len(xs) > 2:
+            raise SheetSyntaxError("a plot is against one axis (a line) or two (a map)",
+                                   xs[2].span, hint="write `plot z vs x, y`")
+        return PlotDef(tuple(ys), tuple(xs), "x" in options, "y" in options,
+                       token_span(keyword).to(end))
+
+    def equation(self, children):
+        left, _op, right = children
+        return Equation(left, right, left.span.to(right.span))
+
+    def unknown(self, children):
+        cell, *rest = children
+        bracket = next((c for c in rest if isinstance(c, ArrayLiteral)), None)
+        end = bracket.span if bracket is not None else cell.span
+        return Unknown(cell, bracket, cell.span.to(end))
+
+    def solve(self, children):
+        keyword, *rest = children
+        equations = tuple(c for c in rest if isinstance(c, Equation))
+        unknowns = tuple(c for c in rest if isinstance(c, Unknown))
+        return SolveDef(equations, unknowns, token_span(keyword).to(unknowns[-1].span))
+
+    def correlation(self, children):
+        keyword, first, second, coefficient, *_rest = children
+        return CorrelationDef(first, second, coefficient,
+                              token_span(keyword).to(coefficient.span))
+
+    def ephemeris(self, children):
+        word, path, *_rest = children
+        if word.value != "ephemeris":
+            raise SheetSyntaxError(f"unexpected file name after `{word.value}`",
+                                   token_span(path), hint="the statement that names a JPL kernel "
+                                                          "is `ephemeris \"FILE.bsp\"`")
+        return EphemerisDef(path.value[1:-1], token_span(path),
+                            token_span(word).to(token_span(path)))
 
     def cell(self, children):
         tok, expr, *rest = children
@@ -729,6 +999,9 @@ class NodeBuilder:
 
     def prompt_input(self, children):
         items = [c for c in children if c is not None and not isinstance(c, str)]
-        if isinstance(items[0], (CellDef, PPNDef, CheckDef)):
+        if isinstance(items[0], (CellDef, PPNDef, CheckDef, SolveDef, CorrelationDef)):
             return items[0]
         return self.expression_input(items)
+
+    def function_input(self, children):
+        return next(c for c in children if isinstance(c, FunctionDef))

@@ -75,16 +75,42 @@ def format_quantity(value, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
     s = as_shown(value)
     if not isinstance(s, Shown):
         return s.summary(), ""
+    if s.kind != "quantity":
+        return _listed(s) + _on_axes(s), ""
     if s.sigma is not None:
         number = format_with_sigma(s.value, s.sigma)
     else:
         number = format_magnitude(s.value, digits)
+    number += _on_axes(s)
     unit = unit_text(s.unit)
     if unit == "%":
         if s.sigma is not None and np.ndim(s.value) == 0:
             return f"({number}) × 1%", ""
         return (f"{number}%" if np.ndim(s.value) == 0 else f"{number} × 1%"), ""
     return number, unit
+
+
+def _listed(s: Shown) -> str:
+    """Dates (ISO with their scale) or truths (`true`, `false`), one or a preview of many."""
+    if s.kind == "truth":
+        words = ["true" if f else "false" for f in np.ravel(s.value)]
+        if np.ndim(s.value) == 0:
+            return words[0]
+    else:
+        if isinstance(s.value, str):
+            return s.value
+        words = [str(t) for t in np.ravel(s.value)]
+    if len(words) <= ARRAY_PREVIEW:
+        return "[" + ", ".join(words) + "]"
+    return f"[{', '.join(words[:3])}, …, {', '.join(words[-2:])}] ({len(words):,} values)"
+
+
+def _on_axes(s: Shown) -> str:
+    """` on days × elong` for a value on more than one axis (its shape in words)."""
+    if len(s.axes) < 2:
+        return ""
+    return " on " + " × ".join(f"{name or '·'} ({n})"
+                               for name, n in zip(s.axes, np.shape(s.value)))
 
 
 #: Below this σ relative to the value, a float holds no digit of the uncertainty: the value is

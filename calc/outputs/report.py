@@ -7,6 +7,7 @@ import astropy.units as u
 
 from ..engine.cells import Cell
 from ..engine.values import Shown
+from ..language.syntax import Note, TableDef
 from ..physics.units import physical_type, unit_string, unit_text
 from .format import (
     check_detail,
@@ -19,11 +20,11 @@ from .format import (
 
 
 def render_text(sheet, digits: int, monte_carlo: dict | None = None,
-                samples: int | None = None) -> str:
+                samples: int | None = None, rows_shown: int | None = None) -> str:
     """Headings, then aligned name / value / unit; errors inline; each check where it
     stands in the sheet. ``monte_carlo`` (from ``Sheet.monte_carlo``) replaces values by
     their sample statistics."""
-    rows: list[tuple[str, ...]] = []
+    rows: list[tuple] = []
     pending = sorted(sheet.checks, key=lambda r: r.line)
 
     def checks_before(line: int | None) -> None:
@@ -48,8 +49,12 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None,
                 rows.append(("cell", item.name, number, unit))
                 rows += [("field", *row) for row in record_rows(item.raw, digits)]
             rows += [("warning", text) for text in item.warnings]
-        elif item.heading:
+        elif isinstance(item, Note) and item.heading:
             rows.append(("heading", item.text))
+        elif isinstance(item, TableDef) and own:
+            spec = next((t for t in sheet.tables() if t.line == item.span.line), None)
+            if spec is not None:
+                rows.append(("table", spec))
     checks_before(None)
     name_width = max((len(r[1]) + (2 if r[0] == "field" else 0) for r in rows
                       if r[0] in ("cell", "field")), default=0)
@@ -70,6 +75,10 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None,
             lines.append(f"  {outcome:<6}  {text}")
             if detail:
                 lines.append(f"          {detail}")
+        elif row[0] == "table":
+            from .tables import table_text
+
+            lines += ["", *table_text(row[1], rows_shown).splitlines()]
         elif row[0] == "warning":
             label = "" if row[1].startswith("16 / 50 / 84 %") else "warning: "
             lines.append(f"  {'':<{name_width}}  {label}{row[1]}")

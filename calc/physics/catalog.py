@@ -20,6 +20,7 @@ TOPIC_TITLES = {
     "strongfield": "Strong field (Schwarzschild, exact)",
     "timing": "Time and clocks",
     "math": "Mathematics",
+    "arrays": "Arrays (along the last axis, or `along = axis`)",
 }
 
 CAUTION = (
@@ -80,7 +81,7 @@ def entry(name: str, caution: bool = True) -> str:
     body = spec.documentation()
     if body:
         lines += ["", body]
-    if caution and spec.topic != "math":
+    if caution and spec.topic not in ("math", "arrays"):
         lines += ["", CAUTION]
     return "\n".join(lines)
 

@@ -18,7 +18,7 @@ from ...errors import ArgumentError
 
 #: Topic modules, imported on the first look-up.
 TOPICS = ("spacetime", "orbits", "perturbations", "light", "gyroscopes", "binaries", "strongfield",
-          "elementary", "motion", "timing")
+          "elementary", "arrays", "motion", "timing")
 
 
 @dataclass(frozen=True)
@@ -32,6 +32,16 @@ class FunctionSpec:
     summary: str
     #: cannot take Monte Carlo sample arrays: runs once per sample
     samplewise: bool = False
+    #: what the function does to the axes of its first argument (calc.engine.values.AXIS_EFFECTS):
+    #: "elementwise", "reduce" (the last or the named axis), "keep" (its length), "shorten",
+    #: "plain" (the result is on no axis) or "first" (the result is on the first argument's axes)
+    effect: str = "elementwise"
+
+    @property
+    def variadic(self) -> bool:
+        """Whether it takes any number of values (``max(a, b, c)``)."""
+        return any(p.kind is inspect.Parameter.VAR_POSITIONAL
+                   for p in self.signature.parameters.values())
 
     def bind(self, args: tuple, kwargs: dict) -> inspect.BoundArguments:
         """Bind call arguments, with errors a sheet author understands."""
@@ -100,7 +110,7 @@ class FunctionSpec:
     @cached_property
     def record_parameters(self) -> frozenset[str]:
         """Parameters that take orbit records (their kind mentions a record)."""
-        if self.topic == "math":
+        if self.topic in ("math", "arrays"):
             return frozenset()
         return frozenset(name for name, kind in self._kinds.items()
                          if "record" in kind and name != "return")
@@ -137,7 +147,8 @@ _PLANS: dict[tuple, tuple] = {}
 _loaded = False
 
 
-def register(name: str, topic: str, samplewise: bool = False) -> Callable[[Callable], Callable]:
+def register(name: str, topic: str, samplewise: bool = False,
+             effect: str = "elementwise") -> Callable[[Callable], Callable]:
     """Decorator: make ``fn`` callable from sheets as ``name``.
 
     ``samplewise`` marks a function that takes single values only: under Monte Carlo it
@@ -148,7 +159,7 @@ def register(name: str, topic: str, samplewise: bool = False) -> Callable[[Calla
         doc = inspect.getdoc(fn) or ""
         summary = doc.splitlines()[0] if doc else name
         _REGISTRY[name] = FunctionSpec(name, topic, fn, inspect.signature(fn), summary,
-                                       samplewise)
+                                       samplewise, effect)
         return fn
 
     return decorate

@@ -13,6 +13,7 @@ import astropy.units as u
 import numpy as np
 
 from ...errors import ArgumentError
+from ..records import is_date
 from ..units import quantity, unit_power
 from . import args as check
 from . import register
@@ -144,33 +145,36 @@ def _extreme(values: tuple[u.Quantity, ...], reduce, pairwise, what: str) -> u.Q
     return quantity(result, values[0].unit)
 
 
-@register("min", TOPIC)
+@register("min", TOPIC, effect="reduce")
 def minimum(*values: u.Quantity) -> u.Quantity:
     """Smallest element of an array, or the element-wise smallest of several values."""
     return _extreme(values, np.min, np.minimum, "min")
 
 
-@register("max", TOPIC)
+@register("max", TOPIC, effect="reduce")
 def maximum(*values: u.Quantity) -> u.Quantity:
     """Largest element of an array, or the element-wise largest of several values."""
     return _extreme(values, np.max, np.maximum, "max")
 
 
-@register("sum", TOPIC)
+@register("sum", TOPIC, effect="reduce")
 def total(x: u.Quantity) -> u.Quantity:
     """Sum of the elements of an array."""
     return _reduced(np.sum, x)
 
 
-@register("mean", TOPIC)
+@register("mean", TOPIC, effect="reduce")
 def mean(x: u.Quantity) -> u.Quantity:
     """Arithmetic mean of the elements of an array."""
     return _reduced(np.mean, x)
 
 
-@register("span", TOPIC, samplewise=True)
+@register("span", TOPIC, samplewise=True, effect="plain")
 def span(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
-    """n evenly spaced values from start to stop, both included."""
+    """n evenly spaced values from start to stop, both included (dates too: n dates from
+    one date to another, in the first one's time scale)."""
+    if is_date(start) or is_date(stop):
+        return _date_span(start, stop, n)
     check.scalar(start, "start")
     check.scalar(stop, "stop")
     lo, hi = check.same_dimension([start, stop], ["start", "stop"])
@@ -178,7 +182,17 @@ def span(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
     return quantity(np.linspace(lo, hi, count), start.unit)
 
 
-@register("logspan", TOPIC, samplewise=True)
+def _date_span(start, stop, n: u.Quantity):
+    if not (is_date(start) and is_date(stop)):
+        raise ArgumentError("`start` and `stop` must both be dates, or both quantities", "stop")
+    if start.shape or stop.shape:
+        raise ArgumentError("`start` and `stop` must be single dates", "start")
+    count = check.count(n, "n", minimum=2)
+    length = (stop - start).to_value(u.s)
+    return start + np.linspace(0.0, length, count) * u.s
+
+
+@register("logspan", TOPIC, samplewise=True, effect="plain")
 def logspan(start: u.Quantity, stop: u.Quantity, n: u.Quantity) -> u.Quantity:
     """n values from start to stop in equal ratios (both positive, both included)."""
     check.scalar(start, "start")

@@ -205,3 +205,26 @@ def sagnac_delay(sender: State, receiver: State, omega: AngularRate | None = Non
     c = check.speed_of_light()
     delay = rate * (xs * yr - ys * xr) / c**2
     return quantity(delay * 1e9, u.ns)
+
+
+def _date(t, name: str = "t"):
+    from ..records import is_date as _is_date
+
+    if not _is_date(t):
+        raise ArgumentError(f"`{name}` must be a date, such as `2031-04-12T06:30 TDB`", name)
+    return t
+
+
+@register("mjd", TOPIC)
+def mjd(t: Date) -> u.Quantity:
+    """Modified Julian Date of a date in its own time scale (JD − 2400000.5; IAU 1973,
+    Resolution of Commission 4)."""
+    date = _date(t)
+    return u.Quantity(date.mjd, u.dimensionless_unscaled)
+
+
+@register("jd", TOPIC)
+def jd(t: Date) -> u.Quantity:
+    """Julian Date of a date in its own time scale."""
+    date = _date(t)
+    return u.Quantity(date.jd, u.dimensionless_unscaled)
