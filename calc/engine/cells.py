@@ -108,6 +108,14 @@ class Cells:
         self.evaluations = 0
         #: numbers the values computed so far hold (contributions of uncertain values too)
         self.held = 0
+        #: the sheet's `solve` lines, compiled
+        self.solves: list = []
+        #: unknowns of a solve: the solved value, or the solve's error
+        self.solved: dict[str, object] = {}
+        #: the sheet's `correlation` lines, the inputs they set coefficients on, their errors
+        self.correlations: list = []
+        self.correlated: list = []
+        self.correlation_errors: list[SheetError] = []
 
     # -- building
     def add(self, cell: Cell) -> None:
@@ -122,8 +130,10 @@ class Cells:
         return compile_cell(definition, self.scope, source, display_unit=keep,
                             inputs=self.inputs)
 
-    def compile_all(self, check_definitions: Iterable, source: Source) -> None:
-        """Compile every cell and check, order them, and evaluate everything once."""
+    def compile_all(self, check_definitions: Iterable, source: Source,
+                    solve_definitions: Iterable = ()) -> None:
+        """Compile every cell and check, order them, and evaluate everything once (then the
+        solves, and what their unknowns reach)."""
         for rank, (name, cell) in enumerate(self.cells.items()):
             program = self.compile(cell.definition, cell.source)
             self.programs[name] = program
@@ -131,6 +141,13 @@ class Cells:
         self.reorder()
         for name in self.order:
             self.compute(name)
+        from .solve import compile_solve, plan
+
+        self.correlate(source)
+        self.solves = [compile_solve(d, self, source) for d in solve_definitions]
+        for program in self.solves:
+            plan(program, self)
+        self.resolve()
         self.check_programs = [compile_check(d, self.scope, source, self.inputs)
                                for d in check_definitions]
         self.run_checks()
@@ -170,6 +187,15 @@ class Cells:
         if program.error is not None:
             cell.error = program.error
             return
+        if name in self.solved:
+            outcome = self.solved[name]
+            if isinstance(outcome, SheetError):
+                cell.error = outcome
+            else:
+                cell.error = None
+                cell.raw = outcome
+                self.values[name] = outcome
+            return
         failed = [d for d in program.deps if self.cells[d].error is not None
                   or d not in self.values]
         if failed:
@@ -202,6 +228,52 @@ class Cells:
         cell.error = None
         cell.raw = value
         self.values[name] = value
+
+    def correlate(self, source: Source) -> None:
+        """Set the coefficients of the `correlation` lines on the inputs they name (again
+        after a what-if, whose new input would not carry them)."""
+        if not self.correlations and not self.correlated:
+            return
+        from .correlate import apply
+
+        self.correlation_errors = apply(self.correlations, self, self.scope.namespaces, source,
+                                        self.correlated)
+
+    def resolve(self) -> list[Cell]:
+        """Run every solve from its unknowns' current values, and what they reach; returns the
+        cells that changed."""
+        from .solve import solve_nominal, with_uncertainty
+
+        forced: set[str] = set()
+        for program in self.solves:
+            unknowns = [n for n in getattr(program, "unknowns", ())]
+            if program.error is not None:
+                for name in unknowns:
+                    self.solved[name] = program.error
+                forced |= set(unknowns)
+                continue
+            failed = [n for n in {*program.deps, *unknowns}
+                      if self.cells[n].error is not None and n not in self.solved]
+            if failed:
+                error: SheetError = DomainError(f"the solve cannot run: `{failed[0]}` failed",
+                                                program.span, source=program.source)
+                for name in unknowns:
+                    self.solved[name] = error
+                forced |= set(unknowns)
+                continue
+            try:
+                solution = with_uncertainty(program, self, solve_nominal(program, self))
+            except SheetError as err:
+                outcome: list = [err.located(program.span, program.source).kept()] * len(unknowns)
+            except Exception as exc:  # a bug of ours
+                outcome = [InternalError.wrapping(exc, "solving", program.span,
+                                                  program.source)] * len(unknowns)
+            else:
+                outcome = solution
+            for name, value in zip(unknowns, outcome):
+                self.solved[name] = value
+            forced |= set(unknowns)
+        return self.propagate(forced) if forced else []
 
     def run_checks(self) -> None:
         failed = {n for n, c in self.cells.items() if c.error is not None}

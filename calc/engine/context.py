@@ -82,8 +82,25 @@ class Sampling:
         """The standard-normal draws of input ``key`` (the same array every time it is asked)."""
         draws = self.drawn.get(key)
         if draws is None:
+            if key.correlations:
+                self._draw_jointly(key)
+                return self.drawn[key]
             draws = self.drawn[key] = self.rng.standard_normal(self.samples)
         return draws
+
+    def _draw_jointly(self, key: Input) -> None:
+        """Standard-normal draws of every input correlated with ``key`` (directly or not),
+        with their correlation matrix: z = L n, L L^T = R (eigen-decomposition, so a
+        semi-definite matrix works too)."""
+        from .correlate import groups, matrix
+
+        (group,) = groups([key])
+        values, vectors = np.linalg.eigh(matrix(group))
+        root = vectors * np.sqrt(np.clip(values, 0.0, None))
+        independent = self.rng.standard_normal((len(group), self.samples))
+        joint = root @ independent
+        for member, row in zip(group, joint):
+            self.drawn[member] = row
 
 
 class EvaluationContext(Environment):

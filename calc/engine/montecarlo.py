@@ -109,4 +109,54 @@ def _evaluate(sheet, sampling: Sampling, progress: Progress | None
             out[name] = shown(value)
             if progress is not None:
                 progress(index + 1, len(cells.order))
+        if cells.solves:
+            _solve_samples(cells, env, out, sampling.samples)
     return env, out
+
+
+def _solve_samples(cells, env: Env, out: dict, count: int) -> None:
+    """Each `solve` per sample (vectorised), then the cells its unknowns reach, again."""
+    from .solve import solve_sampled
+
+    for program in cells.solves:
+        unknowns = program.unknowns
+        if program.error is not None or any(isinstance(cells.solved.get(n), SheetError)
+                                            for n in unknowns):
+            continue
+        try:
+            values = solve_sampled(program, cells, env, count)
+        except SheetError as err:
+            for name in unknowns:
+                out[name] = err.kept()
+                env.pop(name, None)
+            values = None
+        except Exception as exc:  # a bug of ours
+            error = InternalError.wrapping(exc, "solving samples", program.span, program.source)
+            for name in unknowns:
+                out[name] = error
+                env.pop(name, None)
+            values = None
+        if values is not None:
+            for name, value in zip(unknowns, values):
+                env[name] = value
+                out[name] = shown(value)
+        reached: set[str] = set()
+        for name in unknowns:
+            reached |= cells.graph.downstream(name)
+        for name in cells.order:
+            if name not in reached or name in unknowns or cells.cells[name].error is not None:
+                continue
+            program_of = cells.programs[name]
+            failed = [d for d in program_of.deps if d not in env]
+            if failed:
+                out[name] = failed_input(program_of, failed)
+                env.pop(name, None)
+                continue
+            try:
+                value = run_cell(program_of, env)
+            except SheetError as err:
+                out[name] = err.kept()
+                env.pop(name, None)
+                continue
+            env[name] = value
+            out[name] = shown(value)

@@ -74,6 +74,12 @@ def numeric_context() -> Iterator[None]:
             gc.enable()
 
 
+def _merged(first: list[Cell], second: list[Cell]) -> list[Cell]:
+    """Changed cells of two steps, each once."""
+    seen = {id(c) for c in first}
+    return first + [c for c in second if id(c) not in seen]
+
+
 class Sheet:
     """A parsed and evaluated sheet. Build with :meth:`load` or :meth:`from_text`."""
 
@@ -149,8 +155,9 @@ class Sheet:
             self._cells.add(cell)
         self._cells.fixed_errors.update(built.fixed_errors)
         scope.cell_names = self._cells.cells.keys()
+        self._cells.correlations = built.correlations
         with entered(self.context):
-            self._cells.compile_all(built.check_definitions, self.source)
+            self._cells.compile_all(built.check_definitions, self.source, built.solves)
 
     # -- what-ifs
     def set(self, name: str, text: str, label: str | None = None) -> list[Cell]:
@@ -172,6 +179,8 @@ class Sheet:
             line = parse_expression(text, source)
             self._same_dimension(name, line, source)
             changed = self._cells.assign(name, line.expr, line.unit, source)
+            self._cells.correlate(self.source)
+            changed = _merged(changed, self._cells.resolve())
             self._cells.run_checks()
             return changed
 
@@ -236,6 +245,8 @@ class Sheet:
         """Give cell ``name`` an expression already parsed (a `use … with` override)."""
         with numeric_context(), entered(self.context):
             changed = self._cells.assign(name, expr, None, source)
+            self._cells.correlate(self.source)
+            changed = _merged(changed, self._cells.resolve())
             self._cells.run_checks()
             return changed
 
@@ -261,6 +272,8 @@ class Sheet:
         with numeric_context(), entered(self.context):
             changed = self._cells.assign(name, expr, definition.unit, self.source,
                                          definition.span)
+            self._cells.correlate(self.source)
+            changed = _merged(changed, self._cells.resolve())
             self._cells.run_checks()
             return changed
 
@@ -335,6 +348,11 @@ class Sheet:
     def checks(self) -> list[CheckResult]:
         """Results of the sheet's `check` lines, in file order."""
         return self._cells.checks
+
+    def solved(self, name: str) -> bool:
+        """Whether cell ``name`` is an unknown of a `solve` line that holds its solution."""
+        outcome = self._cells.solved.get(name)
+        return outcome is not None and not isinstance(outcome, SheetError)
 
     @property
     def evaluations(self) -> int:
@@ -416,7 +434,7 @@ class Sheet:
     def all_errors(self) -> list[SheetError]:
         """Errors worth reporting on their own, in file order: the sheet's, and each failing
         cell's own (not those that only say an input failed)."""
-        found = list(self.errors)
+        found = list(self.errors) + list(self._cells.correlation_errors)
         reported_cycles: set[tuple[str, ...]] = set()
         for cell in self.cells:
             err = cell.error
@@ -478,5 +496,6 @@ class Sheet:
     @property
     def ok(self) -> bool:
         """No errors anywhere (a failing check is not an error; see :attr:`checks`)."""
-        return not self.errors and all(c.error is None for c in self.cells) \
+        return not self.errors and not self._cells.correlation_errors \
+            and all(c.error is None for c in self.cells) \
             and all(r.error is None for r in self.checks) and not self.figure_errors()
