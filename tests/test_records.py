@@ -35,7 +35,7 @@ def test_orbit_record_fields():
      "orbit: give `long_peri` or `arg_peri`, not both"),
     ("x = orbit(1 AU, 1.0)", "orbit: `e` must be at least 0 and below 1 for a bound orbit, got 1"),
     ("x = orbit(1 s, 0.1)", "orbit: `a` must be a length, got 1 s"),
-    ("x = orbit([1, 2] AU, 0.1)", "orbit: `a` must be a single value, not an array"),
+    ("x = orbit([1, 2] AU, [0.1, 0.2, 0.3])", "orbit: the orbit's elements are arrays of different lengths"),
 ])
 def test_orbit_errors(text, message):
     assert only_error(evaluate(text), "x").message == message

@@ -224,6 +224,10 @@ def _indexed(target, keys: list, span: Span):
                 new_axes.append(anonymous_axis(int(flags.sum())))
     new_axes += list(axes[len(keys):]) if axes else []
     picked = _take(data, tuple(numpy_key))
+    if len(new_axes) == 1 and new_axes[0].name is None:
+        # a slice or mask of a single axis is a plain array of its own length
+        # (`x[1:] - x[:-1]` pairs neighbours, as on any array)
+        return picked
     return grid_wrap(picked, tuple(new_axes)) if axes else picked
 
 

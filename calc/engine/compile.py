@@ -97,7 +97,14 @@ from .run import (
 )
 from .samples import Samples, draw
 from .uncertain import Input, Uncertain, linear_value, make_inputs
-from .values import CONTAINERS, all_finite, apply_function, is_uncertain
+from .values import (
+    CONTAINERS,
+    all_finite,
+    apply_function,
+    is_uncertain,
+    per_record_point,
+    record_points,
+)
 
 #: Deepest nesting of operations in one expression (keeps recursion far from Python's limit).
 MAX_EXPRESSION_DEPTH = 150
@@ -702,6 +709,12 @@ class _Compiler:
                     raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not {what}",
                                         pname, span=arg_spans.get(pname, span))
             try:
+                if takes_records:
+                    points = record_points(values)
+                    if points is not None:
+                        return per_record_point(
+                            lambda *each: apply_function(call, each, samplewise, fname, effect,
+                                                         along), values, *points)
                 return apply_function(call, values, samplewise, fname, effect, along)
             except SheetError as err:
                 raise err.located(span) from None

@@ -332,6 +332,87 @@ def _over_axes(call: Callable, values: tuple, samplewise: bool, name: str | None
                       if len(value_shape(leaf)) == ndim else leaf, result)
 
 
+def record_points(values: tuple) -> tuple[tuple[int, ...], tuple] | None:
+    """The points a record argument runs over (its fields are arrays: `orbit(a = span(…))`),
+    and their axes; None when every record argument is single."""
+    shape: tuple[int, ...] | None = None
+    axes: tuple = ()
+    for v in values:
+        if not isinstance(v, Record):
+            continue
+        for leaf in v.fields.values():
+            if isinstance(leaf, Grid):
+                axes = grid_union(axes, leaf.axes)
+                leaf = leaf.data
+            leaf_shape = tuple(getattr(leaf, "shape", ())) if not isinstance(leaf, Samples) \
+                else leaf.shape
+            if leaf_shape:
+                if shape is not None and shape != leaf_shape:
+                    raise DomainError("a record's fields run over points of different shapes")
+                shape = leaf_shape
+    return None if shape is None else (shape, axes)
+
+
+def per_record_point(apply: Callable, values: tuple, shape: tuple[int, ...], axes: tuple):
+    """A function that takes single records, run once per point of array records: the
+    results stacked (one budget per point), on the records' axes."""
+    results = []
+    for index in np.ndindex(*shape):
+        args = tuple(_point_of(v, index, shape) if isinstance(v, Record) else v for v in values)
+        results.append(apply(*args))
+    stacked = _stacked(results, shape)
+    return map_leaves(lambda leaf: grid_wrap(leaf, axes), stacked) if axes else stacked
+
+
+def _point_of(record: Record, index: tuple, shape: tuple):
+    fields: dict[str, Any] = {}
+    for name, leaf in record.fields.items():
+        if isinstance(leaf, Grid):
+            leaf = leaf.data
+        if isinstance(leaf, Samples):
+            fields[name] = Samples(leaf.data[(slice(None),) + index]) if leaf.shape == shape \
+                else leaf
+        elif isinstance(leaf, Uncertain):
+            fields[name] = leaf.indexed(index) if leaf.shape == shape else leaf
+        elif tuple(getattr(leaf, "shape", ())) == shape:
+            fields[name] = leaf[index]
+        else:
+            fields[name] = leaf
+    return Record(record.kind, fields, record.label)
+
+
+def _stacked(results: list, shape: tuple):
+    first = results[0]
+    if isinstance(first, Record):
+        return Record(first.kind, {k: _stacked([r.fields[k] for r in results], shape)
+                                   for k in first.fields}, first.label)
+    if isinstance(first, Uncertain):
+        keys: dict = {}
+        for r in results:
+            for key in (r.parts if isinstance(r, Uncertain) else {}):
+                keys[key] = None
+        nominal_values = np.stack([np.asarray(nominal(r).value) for r in results])
+        unit = first.unit
+        parts = {}
+        for key in keys:
+            parts[key] = np.stack([np.broadcast_to(np.asarray(r.parts.get(key, 0.0))
+                                                   if isinstance(r, Uncertain) else 0.0,
+                                                   np.shape(nominal(r).value))
+                                   for r in results]).reshape(shape + nominal_values.shape[1:])
+        return Uncertain(quantity(nominal_values.reshape(shape + nominal_values.shape[1:]), unit),
+                         parts)
+    if isinstance(first, Samples):
+        data = np.stack([r.data.value for r in results], axis=1)
+        return Samples(quantity(data.reshape((data.shape[0],) + shape + data.shape[2:]),
+                                first.unit))
+    if is_date(first):
+        from astropy.time import Time
+
+        return Time(results).reshape(shape + first.shape)
+    values = np.stack([np.asarray(r.value) for r in results])
+    return quantity(values.reshape(shape + values.shape[1:]), first.unit)
+
+
 def _curve(value, name: str | None):
     """An argument that must be a curve along one axis: its data (1-D)."""
     if isinstance(value, Grid):
@@ -354,7 +435,7 @@ def _unwrapped(value, axes: tuple):
     if isinstance(value, RecordList):
         return RecordList(tuple(_unwrapped(r, axes) for r in value.items))
     if axes and value_shape(value):
-        (data,), _ = grid_align(value, Grid(None, axes))
+        (data, _placeholder), _ = grid_align(value, Grid(None, axes))
         return data
     return value
 

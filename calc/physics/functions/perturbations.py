@@ -72,14 +72,11 @@ def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | Non
     PPN:       none.
     Source:    Murray & Dermott 1999, Solar System Dynamics, §2.8 (from memory).
     """
-    for value, name in ((a, "a"), (e, "e")):
-        check.scalar(value, name)
     check.length(a, "a")
     ecc = check.eccentricity(e)
     angles = {}
     for value, name in ((i, "i"), (node, "node"), (long_peri, "long_peri"), (arg_peri, "arg_peri")):
         if value is not None:
-            check.scalar(value, name)
             angles[name] = check.angle(value, name)
     if "long_peri" in angles and "arg_peri" in angles:
         raise ArgumentError("give `long_peri` or `arg_peri`, not both", "arg_peri")
@@ -92,7 +89,7 @@ def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | Non
     # fields keep the numbers as written where the unit allows (0.061 AU stays 0.061 AU)
     def degrees(q, radians):
         return quantity(check.value_in(q, u.deg), u.deg) if q is not None else \
-            quantity(radians * 180 / np.pi, u.deg)
+            quantity(np.asarray(radians) * 180 / np.pi, u.deg)
 
     given = {"i": i, "node": node, "long_peri": long_peri, "arg_peri": arg_peri}
     i_deg = degrees(given["i"], inc)
@@ -105,16 +102,23 @@ def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | Non
         long_deg = quantity(node_deg.value + arg_deg.value, u.deg)
     fields = {
         "a": quantity(check.value_in(a, u.AU), u.AU),
-        "e": quantity(float(ecc)),
+        "e": quantity(np.asarray(ecc, dtype=float)),
         "i": i_deg,
         "node": node_deg,
         "arg_peri": arg_deg,
         "long_peri": long_deg,
     }
     if m is not None:
-        check.scalar(m, "m")
         check.gravitational_parameter(m, "m")
         fields["m"] = m
+    # arrays of elements (a sweep over a, say): every element on the same points
+    try:
+        shape = np.broadcast_shapes(*(np.shape(q.value) for q in fields.values()))
+    except ValueError:
+        raise ArgumentError("the orbit's elements are arrays of different lengths", "a") from None
+    if shape:
+        fields = {k: quantity(np.broadcast_to(q.value, shape).copy(), q.unit)
+                  for k, q in fields.items()}
     fields.update(_position_in_time(t_peri, mean_anomaly, epoch))
     return Record("orbit", fields)
 
