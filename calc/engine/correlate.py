@@ -50,11 +50,12 @@ def apply(definitions: list[CorrelationDef], cells, namespaces: dict, source: So
           touched: list[Input]) -> list[SheetError]:
     """Set the coefficients of every `correlation` line; returns the errors. ``touched`` holds
     the inputs coefficients were set on last time (cleared first, then refilled)."""
-    for key in touched:
-        key.correlations.clear()
+    # coefficients are set again each time (a what-if makes a new input, while values computed
+    # before it keep the old one: both must carry the coefficient)
     touched.clear()
     errors: list[SheetError] = []
     named: dict[Input, str] = {}
+    pairs: set[frozenset] = set()
     for definition in definitions:
         try:
             first, a = _input_of(definition.first, cells, namespaces)
@@ -72,9 +73,10 @@ def apply(definitions: list[CorrelationDef], cells, namespaces: dict, source: So
             if np.ndim(r) != 0 or not -1.0 <= float(r) <= 1.0:
                 raise DomainError("a correlation coefficient is a single number from -1 to 1",
                                   definition.coefficient.span)
-            if b in a.correlations:
+            if frozenset((a, b)) in pairs:
                 raise DomainError(f"`{first}` and `{second}` are correlated twice",
                                   definition.span)
+            pairs.add(frozenset((a, b)))
             a.correlations[b] = float(r)
             b.correlations[a] = float(r)
             touched += [a, b]
@@ -116,9 +118,11 @@ def matrix(group: list[Input]) -> np.ndarray:
 
 def _semi_definite(named: dict[Input, str], definitions, source: Source) -> list[SheetError]:
     errors: list[SheetError] = []
+    order = {key: index for index, key in enumerate(named)}
     for group in groups(list(named)):
         if len(group) < 3:
             continue   # a pair with |r| ≤ 1 is always a valid correlation matrix
+        group.sort(key=lambda key: order.get(key, len(order)))
         if np.linalg.eigvalsh(matrix(group)).min() < -1e-12:
             names = ", ".join(f"`{named.get(k, k.name)}`" for k in group)
             errors.append(DomainError(

@@ -435,6 +435,8 @@ class Sheet:
         """Errors worth reporting on their own, in file order: the sheet's, and each failing
         cell's own (not those that only say an input failed)."""
         found = list(self.errors) + list(self._cells.correlation_errors)
+        # a solve refused before its unknowns were known: no cell carries its error
+        found += [p.error for p in self._cells.solves if p.error is not None and not p.unknowns]
         reported_cycles: set[tuple[str, ...]] = set()
         for cell in self.cells:
             err = cell.error
@@ -497,5 +499,6 @@ class Sheet:
     def ok(self) -> bool:
         """No errors anywhere (a failing check is not an error; see :attr:`checks`)."""
         return not self.errors and not self._cells.correlation_errors \
+            and not any(p.error is not None for p in self._cells.solves) \
             and all(c.error is None for c in self.cells) \
             and all(r.error is None for r in self.checks) and not self.figure_errors()

@@ -290,15 +290,15 @@ def _root(problem: Problem, program: SolveProgram, z0: np.ndarray) -> np.ndarray
     except (ValueError, FloatingPointError) as exc:
         raise DomainError(f"the solver failed: {exc}", program.span) from None
     residual = float(np.max(np.abs(f(found.x))))
+    if not residual <= 1e-9:
+        raise DomainError(f"the solve did not converge (residual {residual:.3g} after "
+                          f"{found.nfev} evaluations)", program.span,
+                          hint="try other starting values, or a bracket for one unknown")
     jacobian = _jacobian(f, found.x)
     if not np.all(np.isfinite(jacobian)) or np.linalg.cond(jacobian) > 1e13:
         raise DomainError("the equations' Jacobian is singular at the solution: the unknowns "
                           "are not determined by these equations", program.span,
                           hint="check that each equation brings new information")
-    if residual > 1e-9:
-        raise DomainError(f"the solve did not converge (residual {residual:.3g} after "
-                          f"{found.nfev} evaluations)", program.span,
-                          hint="try other starting values, or a bracket for one unknown")
     return found.x
 
 
@@ -351,7 +351,7 @@ def _bracketed(problem: Problem, program: SolveProgram) -> np.ndarray:
     if len(zeros):
         return np.array([grid[zeros[0]]])
     i = changes[0]
-    return np.array([brentq(f, grid[i], grid[i + 1], xtol=1e-15, rtol=4e-16, maxiter=200)])
+    return np.array([brentq(f, grid[i], grid[i + 1], xtol=1e-15, rtol=1e-15, maxiter=200)])
 
 
 def newton(residuals: Callable, z: np.ndarray, program: SolveProgram,

@@ -118,10 +118,23 @@ def error_text(cell: Cell) -> str | None:
     return f"{text} (hint: {err.hint})" if err.hint else text
 
 
+def shown_json(s: Shown):
+    """The JSON form of a shown value: numbers; dates as ISO strings with their scale; truths
+    as booleans."""
+    if s.kind == "date":
+        return s.value if isinstance(s.value, str) else [str(t) for t in np.ravel(s.value)]
+    if s.kind == "truth":
+        return bool(s.value) if np.ndim(s.value) == 0 else [bool(f) for f in np.ravel(s.value)]
+    return json_value(s.value)
+
+
 def _leaf(s: Shown) -> dict:
-    out = {"value": json_value(s.value), "unit": unit_string(s.unit)}
+    out = {"value": shown_json(s), "unit": None if s.kind != "quantity" else unit_string(s.unit)}
     if s.sigma is not None:
         out["sigma"] = json_value(s.sigma)
+    if s.axes:
+        out["axes"] = list(s.axes)
+        out["shape"] = list(np.shape(s.value))
     return out
 
 
@@ -135,17 +148,21 @@ def record_value(value: ShownValue):
     return _leaf(value)
 
 
-def cell_record(cell: Cell, sampled: ShownValue | None = None) -> dict:
+def cell_record(cell: Cell, sampled: ShownValue | None = None, solved: bool = False) -> dict:
     sigma = None
     percentiles = None
     unit = None
+    axes: dict = {}
     if cell.raw is None:
         shown_value = None
     else:
         s = sampled if isinstance(sampled, Shown) and sampled.samples is not None \
             else as_shown(cell.raw)
         if isinstance(s, Shown):
-            shown_value, unit = json_value(s.value), unit_string(s.unit)
+            shown_value = shown_json(s)
+            unit = unit_string(s.unit) if s.kind == "quantity" else None
+            if s.axes:
+                axes = {"axes": list(s.axes), "shape": list(np.shape(s.value))}
             if s.sigma is not None:
                 sigma = json_value(s.sigma)
             points = s.percentiles()
@@ -165,6 +182,9 @@ def cell_record(cell: Cell, sampled: ShownValue | None = None) -> dict:
     }
     if percentiles is not None:
         record["percentiles"] = percentiles
+    record.update(axes)
+    if solved:
+        record["solved"] = True
     return record
 
 
@@ -177,7 +197,8 @@ def sheet_record(sheet: Sheet, monte_carlo: dict | None = None,
     record: dict[str, object] = {
         "sheet": sheet.source.label,
         "constants": sheet.selection.names,
-        "cells": [cell_record(c, sampled.get(c.name)) for c in sheet.cells],
+        "cells": [cell_record(c, sampled.get(c.name), sheet.solved(c.name))
+                  for c in sheet.cells],
         "checks": [{"line": r.line, "text": r.text, "passed": r.passed,
                     "detail": check_detail(r)} for r in sheet.checks],
     }
@@ -225,6 +246,12 @@ def to_csv(sheet: Sheet) -> str:
                 rows(f"{name}.{field}", q)
         else:
             sigma = _sigma_text(s.sigma) if s.sigma is not None else ""
+            if s.kind != "quantity":
+                # dates (ISO with their scale) and truths; several separated by `; `
+                texts = shown_json(s)
+                text = "; ".join(map(str, texts)) if isinstance(texts, list) else str(texts)
+                writer.writerow([name, text, "", ""])
+                return
             writer.writerow([name, _number_text(s.value), sigma, unit_string(s.unit)])
 
     for cell in sheet.cells:
