@@ -55,6 +55,7 @@ from ..language.syntax import (
     PlusMinus,
     Power,
     Slice,
+    TextLiteral,
     UnaryOp,
     UnitProduct,
 )
@@ -527,6 +528,10 @@ class _Compiler:
         if kind is Slice:
             raise DomainError("a slice `a:b` stands only inside an index, as in `x[2:5]`",
                               node.span)
+        if kind is TextLiteral:
+            raise DomainError("text in quotes is a function's argument only, as in "
+                              "`ephemeris(\"mars\", t)` or `read_table(\"passes.ecsv\")`",
+                              node.span)
         raise NameResolutionError("this is not a value", node.span)
 
     def index(self, node: Index, depth: int) -> Code:
@@ -681,9 +686,9 @@ class _Compiler:
             raise err.located(node.span) from None
         values = [*node.args, *(k.value for k in node.keywords)]
         arg_spans = {slot: value.span for slot, value in zip(slots, values)}
-        arg_codes = [self.expr(a, depth + 1) for a in node.args]
+        arg_codes = [self.argument(a, depth) for a in node.args]
         names = list(keywords)
-        kw_codes = [self.expr(keywords[k].value, depth + 1) for k in names]
+        kw_codes = [self.argument(keywords[k].value, depth) for k in names]
         for parameter in PPN_PARAMETERS:
             # an omitted gamma or beta takes the sheet's `ppn` value (else 1)
             if parameter in omitted:
@@ -740,6 +745,12 @@ class _Compiler:
             return _finite(result, values, span, f"the result of {fname}")
 
         return _lift(apply, *arg_codes, *kw_codes)
+
+    def argument(self, node, depth: int) -> Code:
+        """A library function's argument: a value, or text in quotes (a body's name)."""
+        if type(node) is TextLiteral:
+            return Const(node.text)
+        return self.expr(node, depth + 1)
 
     def along(self, keyword, effect: str) -> str:
         """The axis a reduction runs along: `along = elong` names an axis, not a value."""

@@ -131,7 +131,7 @@ def _finite(result, inputs, span: Span, what: str = "the result"):
     if np.isnan(value).any():
         raise DomainError(f"{what} is not a number (nan)", span)
     for q in inputs:
-        if isinstance(q, u.UnitBase) or isinstance(q, CONTAINERS):
+        if not isinstance(q, (u.Quantity, Uncertain, Samples)):
             continue
         if not np.isfinite(q.value).all():
             return result  # an infinity written into the sheet (`inf`) carries through

@@ -143,6 +143,8 @@ class Sheet:
         #: `constants … uncertain`: named constants carry their published uncertainties
         self.uncertain_constants = built.uncertain_constants
         self.context.selection = built.selection
+        if built.ephemeris is not None:
+            self._use_kernel(built.ephemeris)
         scope = Scope([c.name for c in built.cells], self.selection,
                       namespaces=self.namespaces, failed_namespaces=built.failed_namespaces)
         #: the sheet's own functions (`ratio(x, y) = …`) by name
@@ -158,6 +160,37 @@ class Sheet:
         self._cells.correlations = built.correlations
         with entered(self.context):
             self._cells.compile_all(built.check_definitions, self.source, built.solves)
+
+    def _use_kernel(self, statement) -> None:
+        """`ephemeris "FILE.bsp"`: a JPL kernel beside the sheet, inside the project root."""
+        from ..errors import InputError
+
+        here = self.source.path.parent if self.source.path is not None else Path.cwd()
+        try:
+            path = (here / statement.path).resolve()
+            path.relative_to(self.root)
+        except ValueError:
+            self.errors.append(InputError(
+                f"the kernel `{statement.path}` lies outside the project root", statement.path_span,
+                hint="keep kernels below the top sheet's folder, or pass --root",
+                source=self.source))
+            return
+        if not path.is_file():
+            self.errors.append(InputError(
+                f"no kernel file `{statement.path}`", statement.path_span,
+                hint="a JPL SPK kernel (.bsp), e.g. de440s.bsp from JPL's public archive",
+                source=self.source))
+            return
+        try:
+            from jplephem.spk import SPK
+
+            SPK.open(str(path)).close()
+        except Exception as exc:  # noqa: BLE001 - jplephem's refusals of a file are of any kind
+            self.errors.append(InputError(
+                f"`{statement.path}` cannot be read as a JPL SPK kernel ({exc})",
+                statement.path_span, hint="name a .bsp kernel file", source=self.source))
+            return
+        self.context.ephemeris = path
 
     # -- what-ifs
     def set(self, name: str, text: str, label: str | None = None) -> list[Cell]:

@@ -61,6 +61,8 @@ def build_parser() -> argparse.ArgumentParser:
     ev.add_argument("--mc", type=int, metavar="N",
                     help="Monte Carlo propagation with N samples (default: first-order)")
     ev.add_argument("--seed", type=int, metavar="S", help="seed of the Monte Carlo draws")
+    ev.add_argument("--rows", type=int, metavar="N",
+                    help="show at most N rows of each table (the first and the last ones)")
     ev.add_argument("--sigma-budget", metavar="CELL", dest="sigma_budget",
                     help="list each input's share of the uncertainty of CELL")
     _sheet_options(ev)
@@ -137,6 +139,8 @@ def build_parser() -> argparse.ArgumentParser:
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
     fn.add_argument("names", metavar="NAME", nargs="*", help="function names")
+    fn.add_argument("--sheet", metavar="FILE",
+                    help="also list the functions a sheet defines (`name(x, y) = …`)")
     return parser
 
 
@@ -228,6 +232,8 @@ def cmd_eval(args) -> int:
         raise UsageError(f"--mc takes between 2 and 10,000,000 samples, got {args.mc}")
     if args.seed is not None and args.mc is None:
         raise UsageError("--seed goes with --mc")
+    if args.rows is not None and args.rows < 2:
+        raise UsageError(f"--rows takes at least 2 (the first and the last row), got {args.rows}")
     sheet = Sheet.load(args.file, root=args.root)
     _apply_overrides(sheet, args.overrides)
     if args.sigma_budget is not None and args.sigma_budget not in sheet:
@@ -261,7 +267,7 @@ def cmd_eval(args) -> int:
     else:
         from ..outputs.report import render_text
 
-        print(render_text(sheet, args.digits, monte_carlo, args.mc))
+        print(render_text(sheet, args.digits, monte_carlo, args.mc, rows_shown=args.rows))
     _report_warnings(sheet)
     _report(sheet.all_errors(), args.debug)
     return _exit_code(sheet, monte_carlo)
@@ -488,10 +494,31 @@ def cmd_repl(args) -> int:
 
 
 def cmd_funcs(args) -> int:
+    from ..engine.sheet import Sheet
     from ..physics.catalog import entries, listing
 
-    print(entries(args.names) if args.names else listing())
+    own = ""
+    if args.sheet:
+        sheet = Sheet.load(args.sheet)
+        own = sheet_functions(sheet)
+        if args.names:
+            wanted = [n for n in args.names if n not in sheet.functions]
+            print(own + ("\n\n" + entries(wanted) if wanted else ""))
+            return EXIT_OK
+    print((own + "\n\n" if own else "") + (entries(args.names) if args.names else listing()))
     return EXIT_OK
+
+
+def sheet_functions(sheet) -> str:
+    """The functions a sheet defines, as written, with their lines."""
+    if not sheet.functions:
+        return f"{sheet.source.label} defines no functions"
+    lines = [f"Functions of {sheet.source.label}"]
+    for function in sheet.functions.values():
+        params = ", ".join(name for name, _ in function.params)
+        body = sheet.source.between(function.body.span)
+        lines.append(f"  {function.name}({params}) = {body}    (line {function.span.line})")
+    return "\n".join(lines)
 
 
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,

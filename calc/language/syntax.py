@@ -321,6 +321,14 @@ class Index(_Plain):
     span: Span
 
 
+class TextLiteral(_Plain):
+    """``"mars"``, ``"passes.ecsv"``: text, as a function's argument (a body, a file)."""
+
+    __slots__ = ("text", "span")
+    text: str
+    span: Span
+
+
 class DateLiteral(_Plain):
     """``2031-04-12T06:30:00 TDB``: a calendar date and time with its time scale (``scale``
     None when the sheet wrote none: refused when the cell is compiled)."""
@@ -811,6 +819,10 @@ class NodeBuilder:
         target, _lsqb, *items, rsqb = children
         return Index(target, tuple(i for i in items if i is not None),
                      target.span.to(token_span(rsqb)))
+
+    def text(self, children):
+        (tok,) = children
+        return TextLiteral(tok.value[1:-1], token_span(tok))
 
     def date(self, children):
         tok, scale = children
