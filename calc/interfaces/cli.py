@@ -137,6 +137,11 @@ def build_parser() -> argparse.ArgumentParser:
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
     fn.add_argument("names", metavar="NAME", nargs="*", help="function names")
+
+    commands.add_parser("lsp", help="a language server for editors (LSP over stdio)",
+                        description="Serve the Language Server Protocol on stdin and stdout: "
+                                    "diagnostics, values as inlay hints, hover, completion, "
+                                    "definitions, references, renaming. An editor starts it.")
     return parser
 
 
@@ -494,9 +499,16 @@ def cmd_funcs(args) -> int:
     return EXIT_OK
 
 
+def cmd_lsp(args) -> int:
+    from .lsp import serve
+
+    gc.enable()  # a long session (see `run`)
+    return serve()
+
+
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
              "export": cmd_export, "deps": cmd_deps, "diff": cmd_diff, "watch": cmd_watch,
-             "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs}
+             "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs, "lsp": cmd_lsp}
 
 
 def run() -> None:
