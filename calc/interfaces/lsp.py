@@ -193,6 +193,9 @@ class OpenSheet:
     incremental: int = 0
     lock: threading.RLock = field(default_factory=threading.RLock)
     settled: threading.Condition = field(init=False)
+    #: cell name → (value, error, shown text): formatting a value costs more than a
+    #: recomputation, so a cell that kept its value keeps its text
+    shown: dict[str, tuple[object, object, str]] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         self.settled = threading.Condition(self.lock)
@@ -723,14 +726,23 @@ def inlay_hints(documents: SheetDocuments, doc: OpenSheet, first: int, last: int
         line = definition.span.end_line
         if not first <= line - 1 <= last:
             continue
-        if cell.error is not None and isinstance(cell.error, InputFailedError):
-            label = "→ (input failed)"
-        else:
-            label = "→ " + cell_text(cell)
+        label = _hint_label(doc, cell)
         end = len(lines.line(line - 1)) + 1
         hints.append(lsp.InlayHint(lines.position(line, end), label, padding_left=True,
                                    kind=None))
     return hints
+
+
+def _hint_label(doc: OpenSheet, cell: Cell) -> str:
+    known = doc.shown.get(cell.name)
+    if known is not None and known[0] is cell.raw and known[1] is cell.error:
+        return known[2]
+    if isinstance(cell.error, InputFailedError):
+        label = "→ (input failed)"
+    else:
+        label = "→ " + cell_text(cell)
+    doc.shown[cell.name] = (cell.raw, cell.error, label)
+    return label
 
 
 def _word_before(prefix: str) -> str:
