@@ -362,3 +362,40 @@ def test_sheet_edit_imported_follows_an_unsaved_import(tmp_path):
     changed = sheet.edit_imported((tmp_path / "lib.sheet").resolve(), LIB.replace("1.1", "2.2"))
     assert [c.name for c in changed] == ["P", "v"]
     assert sheet["P"].to_value(u.d) == pytest.approx(kepler_period_days(2.2, 0.05), rel=1e-9)
+
+
+def test_ranges_count_utf16_code_units(session):
+    # LSP 3.17, "Position": characters are UTF-16 code units unless the client negotiated
+    # another encoding; 𝑀 (U+1D440) is two of them
+    uri = session.open("astral.sheet", "𝑀 = 2 kg\nx = 𝑀 * 3 kmz\n", session.uri("astral.sheet"))
+    found = session.wait_diagnostics(uri, lambda d: bool(d))
+    assert found[0].range == lsp.Range(lsp.Position(1, 11), lsp.Position(1, 14))
+    assert "**𝑀**" in session.hover(uri, 1, 5)
+
+
+def test_a_newer_edit_supersedes_an_evaluation_under_way():
+    from calc.interfaces.lsp import SheetDocuments, inlay_hints
+
+    release = threading.Event()
+    published: list[int] = []
+
+    def publish(doc, diagnostics):
+        published.append(doc.evaluated)
+        release.wait(10)   # hold the worker while the editor types on
+
+    documents = SheetDocuments(publish)
+    try:
+        documents.open("untitled:typing", "x = 1 km\ny = x * 2\n", 1)
+        for _ in range(200):       # until the worker is busy publishing version 1
+            if published:
+                break
+            threading.Event().wait(0.02)
+        for version in range(2, 7):
+            documents.change("untitled:typing", f"x = {version} km\ny = x * 2\n", version)
+        release.set()
+        doc = documents.get("untitled:typing")
+        assert doc is not None and doc.evaluated == 6
+        assert published == [1, 6]      # versions 2 to 5 were never evaluated nor shown
+        assert [h.label for h in inlay_hints(documents, doc, 0, 10)] == ["→ 6 km", "→ 12 km"]
+    finally:
+        documents.stop()
