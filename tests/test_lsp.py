@@ -376,26 +376,32 @@ def test_ranges_count_utf16_code_units(session):
 def test_a_newer_edit_supersedes_an_evaluation_under_way():
     from calc.interfaces.lsp import SheetDocuments, inlay_hints
 
-    release = threading.Event()
     published: list[int] = []
-
-    def publish(doc, diagnostics):
-        published.append(doc.evaluated)
-        release.wait(10)   # hold the worker while the editor types on
-
-    documents = SheetDocuments(publish)
+    documents = SheetDocuments(lambda doc, diagnostics: published.append(doc.evaluated))
+    uri = "untitled:typing"
+    slow = "".join(f"c{i} = {i} km\n" for i in range(3000))   # a rebuild of some 0.5 s
     try:
-        documents.open("untitled:typing", "x = 1 km\ny = x * 2\n", 1)
-        for _ in range(200):       # until the worker is busy publishing version 1
+        documents.open(uri, "x = 1 km\n", 1)
+        for _ in range(500):
             if published:
                 break
-            threading.Event().wait(0.02)
-        for version in range(2, 7):
-            documents.change("untitled:typing", f"x = {version} km\ny = x * 2\n", version)
-        release.set()
-        doc = documents.get("untitled:typing")
+            threading.Event().wait(0.01)
+        assert published == [1]
+        documents.change(uri, slow + "x = 2 km\n", 2)
+        for _ in range(500):       # until the worker has taken version 2
+            if not documents._pending:  # noqa: SLF001 - the test watches the queue
+                break
+            threading.Event().wait(0.002)
+        for version in range(3, 7):
+            documents.change(uri, f"x = {version} km\ny = x * 2\n", version)
+        doc = documents.get(uri)
         assert doc is not None and doc.evaluated == 6
-        assert published == [1, 6]      # versions 2 to 5 were never evaluated nor shown
+        for _ in range(500):       # the worker publishes just after it settles
+            if 6 in published:
+                break
+            threading.Event().wait(0.01)
+        # version 2 finished after 3 to 6 came in: never shown; 3 to 5 never evaluated
+        assert published == [1, 6]
         assert [h.label for h in inlay_hints(documents, doc, 0, 10)] == ["→ 6 km", "→ 12 km"]
     finally:
         documents.stop()
