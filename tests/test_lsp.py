@@ -103,7 +103,6 @@ class Session:
     def wait_diagnostics(self, uri: str, until=lambda d: True, timeout: float = 20
                          ) -> list[lsp.Diagnostic]:
         with self.published:
-            self.diagnostics.pop(uri, None) if until is None else None
             ok = self.published.wait_for(
                 lambda: uri in self.diagnostics and until(self.diagnostics[uri]), timeout)
             assert ok, f"no diagnostics for {uri}: {self.diagnostics.get(uri)}"
@@ -192,8 +191,12 @@ def test_hover_on_a_cell_a_function_a_unit_and_a_constant(session):
     assert "1 AU = 1.495978707e11 m" in unit and "length" in unit
     imported = session.hover(uri, 3, 24)
     assert "**M**" in imported and "lib.sheet" in imported and "mass" in imported
-    constant = session.hover(uri, 4, 5)   # `pi` is a constant of its own; G via const.
-    assert constant is None or "pi" in constant
+    consts = session.open("consts.sheet", "g = const.G * 1 kg\n", session.uri("consts.sheet"))
+    session.wait_diagnostics(consts)
+    constant = session.hover(consts, 0, 11)
+    # CODATA 2018 and 2022 both give G = 6.674 30(15) × 10⁻¹¹ m³ kg⁻¹ s⁻²
+    assert "constant **G** = 6.6743e-11" in constant and "1.5e-15" in constant
+    assert "edition: codata20" in constant and "source: CODATA" in constant
 
 
 def test_completion_offers_cells_imports_functions_units_and_files(session):
@@ -312,6 +315,9 @@ def test_bad_input_gets_an_error_or_nothing_and_the_server_goes_on(session):
     found = session.wait_diagnostics(huge, lambda d: bool(d))
     assert "bytes" in found[0].message
     assert session.hover(huge, 0, 0) is None
+    session.call(session.client.text_document_did_close, lsp.DidCloseTextDocumentParams(
+        lsp.TextDocumentIdentifier(huge)))
+    session.wait_diagnostics(huge, lambda d: not d)   # closing clears its diagnostics
     # invalid UTF-8 inside a message
     body = b'{"jsonrpc": "2.0", "id": 99999, "method": "textDocument/hover", "params": "\xff\xfe"}'
     session.call(session.client.protocol.writer.write,

@@ -1147,6 +1147,9 @@ def build_server() -> SheetServer:
     @server.feature(lsp.TEXT_DOCUMENT_DID_CLOSE)
     def did_close(ls: SheetServer, params: lsp.DidCloseTextDocumentParams) -> None:
         sheets.close(params.text_document.uri)
+        # a closed sheet's problems leave the editor's list with it
+        ls.text_document_publish_diagnostics(lsp.PublishDiagnosticsParams(
+            params.text_document.uri, []))
 
     @server.feature(lsp.TEXT_DOCUMENT_HOVER)
     @server.thread()
