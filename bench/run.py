@@ -219,6 +219,52 @@ def p8_what_if(repeats: int) -> Figure:
     return _summarise(fig, ta, tb)
 
 
+def p13_editor(repeats: int) -> Figure:
+    """An editor's keystroke: a didChange that edits one input of a 500-cell sheet (it feeds
+    1% of the cells), until the diagnostics are published and the inlay hints refreshed,
+    against a whole `relsheet eval` of the sheet in process."""
+    import contextlib
+    import io
+    import tempfile as _tempfile
+    import threading
+
+    from calc.interfaces.cli import main as cli_main
+    from calc.interfaces.lsp import SheetDocuments, inlay_hints, uri_of
+
+    text = workloads.fanout_sheet(500, fed=5)
+    published = threading.Event()
+    documents = SheetDocuments(lambda doc, diagnostics: published.set())
+    with _tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "edited.sheet"
+        path.write_text(text)
+        uri = uri_of(path.resolve())
+        documents.open(uri, text, 1)
+        assert published.wait(60)
+        versions = iter(range(2, 10**9))
+        doc = documents.get(uri)
+        assert doc is not None
+
+        def keystroke():
+            version = next(versions)
+            published.clear()
+            documents.change(uri, text.replace("x0 = 1 km", f"x0 = {version} km"), version)
+            assert published.wait(60)
+            hints = inlay_hints(documents, doc, 0, 600)
+            assert hints[0].label == f"→ {version} km", hints[0].label
+
+        def evaluate():
+            with contextlib.redirect_stdout(io.StringIO()):
+                assert cli_main(["eval", str(path)]) == 0
+
+        ta, tb = paired_calls(keystroke, evaluate, repeats)
+        incremental = doc.incremental
+        documents.stop()
+    fig = Figure("P13", "editor: a didChange of one input of a 500-cell sheet to published "
+                        "diagnostics and inlay hints vs `relsheet eval` of it in process", 0.2)
+    fig.notes.append(f"{incremental} of the edits were evaluated incrementally")
+    return _summarise(fig, ta, tb)
+
+
 # ---- output -------------------------------------------------------------------
 
 
@@ -247,7 +293,7 @@ def compile_bytecode() -> None:
     compileall.compile_dir(str(ROOT / "calc"), quiet=1)
 
 
-FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8"]
+FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8", "P13"]
 
 
 def _figure_ids(text: str) -> set[str]:
@@ -264,7 +310,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--quick", action="store_true", help="few repetitions (smoke check)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
     parser.add_argument("--only", metavar="IDS", type=_figure_ids,
-                        help="comma-separated figures to run (P1,…,P8; P2 gives P5 too, "
+                        help="comma-separated figures to run (P1,…,P8, P13; P2 gives P5 too, "
                              "P7 gives P7b too)")
     args = parser.parse_args(argv)
     process_repeats, call_repeats = (3, 5) if args.quick else (11, 21)
@@ -286,6 +332,8 @@ def main(argv: list[str] | None = None) -> int:
             figures += p7_monte_carlo(call_repeats)
         if "P8" in wanted:
             figures.append(p8_what_if(call_repeats))
+        if "P13" in wanted:
+            figures.append(p13_editor(call_repeats))
     figures.sort(key=lambda f: FIGURES.index(f.id))
     if args.json:
         rows = []

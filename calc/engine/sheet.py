@@ -34,9 +34,10 @@ from ..errors import (
     Source,
     Span,
     UnitError,
+    split_lines,
 )
 from ..files import read_sheet
-from ..language.parse import parse_expression
+from ..language.parse import parse_expression, parse_line
 from ..language.scope import Scope
 from ..language.syntax import CellDef, CheckDef, Expr, PlotDef, TableDef, UseDef
 from ..outputs.figures import PlotSpec, TableSpec
@@ -273,6 +274,80 @@ class Sheet:
                     f" ({unit_text(new_unit)})" if unit_text(new_unit) else ""),
                 line.expr.span, hint=f"give a value in {unit_text(old_unit) or 'plain numbers'}",
                 source=source) from None
+
+    def edit(self, text: str) -> list[Cell] | None:
+        """Take ``text`` as the new content of this sheet's file (an editor's buffer) when it
+        differs from the current one only inside lines that each define one cell: those
+        cells take their new definitions and only what they reach is recomputed. Returns the
+        cells whose value or error changed, in evaluation order; None (and nothing changed)
+        when the structure changed (a line added or removed, a statement other than a
+        one-line cell edited, a renamed cell, a line that does not parse): the caller
+        builds the sheet anew then."""
+        old_lines, new_lines = split_lines(self.source.text), split_lines(text)
+        if len(old_lines) != len(new_lines):
+            return None
+        edited = [n for n, (a, b) in enumerate(zip(old_lines, new_lines), 1) if a != b]
+        if not edited:
+            return [] if text == self.source.text else None
+        cells = self._cells
+        by_line = {c.definition.span.line: c for c in self.cells if c.source is self.source}
+        source = Source(self.source.label, text, self.source.path)
+        definitions: list[CellDef] = []
+        for number in edited:
+            cell = by_line.get(number)
+            if cell is None or cells.cells.get(cell.name) is not cell:
+                return None
+            old = cell.definition
+            if old.span.end_line != number or old.syntax_error is not None:
+                return None
+            try:
+                statements = parse_line(new_lines[number - 1], source, number)
+            except SheetError:
+                return None
+            if len(statements) != 1 or not isinstance(statements[0], CellDef):
+                return None
+            new = statements[0]
+            if new.name != old.name or new.name_span != old.name_span:
+                return None
+            definitions.append(new)
+        with numeric_context(), entered(self.context):
+            forced: set[str] = set()
+            structural = False
+            for definition in definitions:
+                name = definition.name
+                cell = cells.cells[name]
+                cell.definition = definition
+                cells.original[name] = definition
+                program = cells.compile(definition, source)
+                cells.programs[name] = program
+                cells.fixed_errors.pop(name, None)
+                structural = cells.graph.set_uses(name, program.deps) or structural
+                forced.add(name)
+            for item in self.items:
+                if isinstance(item, Cell) and item.source is self.source:
+                    item.source = source
+            self.source = source
+            if structural:
+                forced |= cells.reorder()
+            changed = cells.propagate(forced)
+            cells.run_checks()
+            return changed
+
+    def edit_imported(self, path: Path, text: str) -> list[Cell] | None:
+        """Give every sheet imported (directly or not) from the file ``path`` the new
+        content ``text`` by :meth:`edit`, then recompute the cells of the sheets above it
+        that read it. Returns this sheet's changed cells; None when an edit was structural
+        (the caller builds this sheet anew)."""
+        from .montecarlo import imports_first
+
+        found = [each for each in imports_first(self)
+                 if each is not self and each.source.path == path]
+        changed: list[Cell] = []
+        for imported in found:
+            if imported.edit(text) is None:
+                return None
+            changed += self._refresh_importers_of(imported)
+        return changed
 
     def override(self, name: str, expr: Expr, source: Source) -> list[Cell]:
         """Give cell ``name`` an expression already parsed (a `use … with` override)."""

@@ -141,6 +141,11 @@ def build_parser() -> argparse.ArgumentParser:
     fn.add_argument("names", metavar="NAME", nargs="*", help="function names")
     fn.add_argument("--sheet", metavar="FILE",
                     help="also list the functions a sheet defines (`name(x, y) = …`)")
+
+    commands.add_parser("lsp", help="a language server for editors (LSP over stdio)",
+                        description="Serve the Language Server Protocol on stdin and stdout: "
+                                    "diagnostics, values as inlay hints, hover, completion, "
+                                    "definitions, references, renaming. An editor starts it.")
     return parser
 
 
@@ -520,10 +525,16 @@ def sheet_functions(sheet) -> str:
         lines.append(f"  {function.name}({params}) = {body}    (line {function.span.line})")
     return "\n".join(lines)
 
+def cmd_lsp(args) -> int:
+    from .lsp import serve
+
+    gc.enable()  # a long session (see `run`)
+    return serve()
+
 
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
              "export": cmd_export, "deps": cmd_deps, "diff": cmd_diff, "watch": cmd_watch,
-             "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs}
+             "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs, "lsp": cmd_lsp}
 
 
 def run() -> None:

@@ -27,7 +27,7 @@ _PREFIXES = ("y", "z", "a", "f", "p", "n", "u", "m", "c", "d", "da", "h", "k", "
              "P", "E", "Z", "Y")
 
 
-def _unit_rank(name: str, names: set[str]) -> tuple:
+def unit_rank(name: str, names: set[str]) -> tuple:
     """Common units first, then plain names before prefixed ones (`yA` is the yocto-ampere),
     then shorter names."""
     common = name in _COMMON_UNITS
@@ -91,7 +91,7 @@ class SheetCompleter(Completer):
                   if n.startswith(word) and n not in sheet.names()]
         every = set(sheet.unit_names())
         units = sorted({n for n in every if n.startswith(word)},
-                       key=lambda n: _unit_rank(n, every))
+                       key=lambda n: unit_rank(n, every))
         offered += [(n, "unit") for n in units[:MAX_UNITS]]
         seen: set[str] = set()
         unique = []

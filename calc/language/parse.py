@@ -446,6 +446,12 @@ def _record(statements: list, errors: list, lines: list[str], first: int, last: 
     errors.append(err)
 
 
+def parse_line(text: str, source: Source, line: int) -> list[Statement]:
+    """Parse one physical line of a sheet that stands at ``line`` of its file (the statements
+    keep the file's line numbers); raises SheetError when it is not a whole statement."""
+    return _parse(text + "\n", "sheet", source, line)
+
+
 def parse_expression(text: str, source: Source) -> ExpressionLine:
     """Parse one expression with an optional ``in unit`` (the right side of ``--set``)."""
     return _parse(text, "expression_input", source)

@@ -24,13 +24,13 @@ def table_text(spec: TableSpec, rows: int | None = None) -> str:
         body.append(line)
     widths = [max(len(h), *(len(r[k]) for r in body)) for k, h in enumerate(header)]
     out = [f"table {spec.name}", "  " + "  ".join(h.rjust(w) for h, w in zip(header, widths))]
-    shown = range(len(body))
+    shown: list[int] = list(range(len(body)))
     if rows is not None and len(body) > rows:
         head = rows - rows // 2
         shown = [*range(head), -1, *range(len(body) - rows // 2, len(body))]
     for i in shown:
         if i == -1:
-            out.append(f"  … {len(body) - rows:,} rows not shown (--rows {rows})")  # type: ignore[operator]
+            out.append(f"  … {len(body) - (rows or 0):,} rows not shown (--rows {rows})")
         else:
             out.append("  " + "  ".join(v.rjust(w) for v, w in zip(body[i], widths)))
     return "\n".join(out)
