@@ -219,6 +219,60 @@ def p8_what_if(repeats: int) -> Figure:
     return _summarise(fig, ta, tb)
 
 
+def _peak_memory(call: Callable[[], object]) -> float:
+    """Peak bytes numpy and Python allocate during ``call`` (tracemalloc sees numpy's buffers)."""
+    import tracemalloc
+
+    tracemalloc.start()
+    try:
+        call()
+        return float(tracemalloc.get_traced_memory()[1])
+    finally:
+        tracemalloc.stop()
+
+
+def p9_grid(repeats: int) -> Figure:
+    from calc import Sheet
+
+    def sheet():
+        return Sheet.from_text(workloads.GRID_SHEET).raw("v")
+
+    ta, tb = paired_calls(sheet, workloads.grid_direct, repeats)
+    fig = _summarise(Figure("P9", "grids: a 1,000 × 1,000 grid of two axes through four steps vs "
+                                  "astropy Quantity arrays with numpy broadcasting", 1.2), ta, tb)
+    memory = _peak_memory(sheet) / _peak_memory(workloads.grid_direct)
+    fig.notes.append(f"peak memory {memory:.2f}× the direct computation's (goal ≤ 1.5×)")
+    return fig
+
+
+def p11_time(repeats: int) -> Figure:
+    from calc import Sheet
+
+    def sheet():
+        s = Sheet.from_text(workloads.TIME_SHEET)
+        assert s.ok, s.all_errors()
+
+    ta, tb = paired_calls(sheet, workloads.time_direct, max(3, repeats // 3))
+    return _summarise(Figure("P11", "orbits in time: orbit_state and binary_delays over "
+                                    "1,000,000 dates vs the same numpy code written directly",
+                             1.3), ta, tb)
+
+
+def p12_solve(repeats: int) -> Figure:
+    from calc import Sheet
+
+    def solved():
+        results = Sheet.from_text(workloads.SOLVE_SHEET).monte_carlo(10_000, seed=1)
+        assert not hasattr(results["pbdot"], "message"), results["pbdot"]
+
+    def given():
+        Sheet.from_text(workloads.GIVEN_SHEET).monte_carlo(10_000, seed=1)
+
+    ta, tb = paired_calls(solved, given, max(3, repeats // 3))
+    return _summarise(Figure("P12", "solving: --mc 10000 through the two-mass solve vs the same "
+                                    "sheet with the masses given", 20.0), ta, tb)
+
+
 def p13_editor(repeats: int) -> Figure:
     """An editor's keystroke: a didChange that edits one input of a 500-cell sheet (it feeds
     1% of the cells), until the diagnostics are published and the inlay hints refreshed,
@@ -293,7 +347,7 @@ def compile_bytecode() -> None:
     compileall.compile_dir(str(ROOT / "calc"), quiet=1)
 
 
-FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8", "P13"]
+FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8", "P9", "P11", "P12", "P13"]
 
 
 def _figure_ids(text: str) -> set[str]:
@@ -310,7 +364,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--quick", action="store_true", help="few repetitions (smoke check)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
     parser.add_argument("--only", metavar="IDS", type=_figure_ids,
-                        help="comma-separated figures to run (P1,…,P8, P13; P2 gives P5 too, "
+                        help="comma-separated figures to run (P1,…,P13; P2 gives P5 too, "
                              "P7 gives P7b too)")
     args = parser.parse_args(argv)
     process_repeats, call_repeats = (3, 5) if args.quick else (11, 21)
@@ -332,6 +386,12 @@ def main(argv: list[str] | None = None) -> int:
             figures += p7_monte_carlo(call_repeats)
         if "P8" in wanted:
             figures.append(p8_what_if(call_repeats))
+        if "P9" in wanted:
+            figures.append(p9_grid(call_repeats))
+        if "P11" in wanted:
+            figures.append(p11_time(call_repeats))
+        if "P12" in wanted:
+            figures.append(p12_solve(call_repeats))
         if "P13" in wanted:
             figures.append(p13_editor(call_repeats))
     figures.sort(key=lambda f: FIGURES.index(f.id))

@@ -170,3 +170,116 @@ def mc_sheet(samples: int | None = None, cells: int = 50) -> str:
     while len(lines) < cells:
         lines.append(f"extra{len(lines)} = m1 * {len(lines)} + m2")
     return "\n".join(lines) + "\n"
+
+
+# ---- P9: a 1,000 × 1,000 grid through four steps -----------------------------------------
+
+GRID_SHEET = """\
+r = axis(span(0.3 AU, 30 AU, 1000))
+el = axis(span(1 deg, 179 deg, 1000))
+b = r * sin(el)
+w = b * 2 + 3 AU
+z = w / 7 s
+v = z * z * 1 s
+"""
+
+
+def grid_direct():
+    import astropy.units as u
+    import numpy as np
+
+    r = u.Quantity(np.linspace(0.3, 30, 1000), u.AU)[:, None]
+    el = u.Quantity(np.linspace(1, 179, 1000), u.deg)[None, :]
+    b = r * np.sin(el)
+    w = b * 2 + 3 * u.AU
+    z = w / (7 * u.s)
+    v = z * z * (1 * u.s)
+    return v
+
+
+# ---- P11: orbit_state and binary_delays over 1,000,000 dates -------------------------------
+
+DATES = 1_000_000
+
+TIME_SHEET = f"""\
+t0 = 2031-04-12 TDB
+t = span(t0, t0 + 400 d, {DATES})
+planet = orbit(a = 1.4 AU, e = 0.09, i = 2 deg, node = 40 deg, arg_peri = 110 deg, t_peri = 2030-11-02 TDB)
+state = orbit_state(1 Msun, planet, t)
+delays = binary_delays(t, 0.322997448918 d, 2.341776 s, 0.6171340, 292.54 deg, 2030-12-01 TDB, 1.438 Msun, 1.390 Msun)
+"""
+
+
+def time_direct():
+    """The same computations on float seconds with the library's own numpy kernels (Kepler's
+    equation, the two-body state, the timing formula and its inversion), written out without
+    dates, units or records."""
+    import astropy.constants as c
+    import numpy as np
+
+    from calc.physics.functions.motion import solve_kepler, true_from_eccentric, two_body_state
+
+    au = 1.495978707e11
+    gm_sun = c.GM_sun.value
+    seconds = np.linspace(0.0, 400 * 86400.0, DATES)
+    # orbit_state: t − t_peri = seconds + 161 days (2031-04-12 − 2030-11-02)
+    a, e = 1.4 * au, 0.09
+    i, node, w = np.radians(2.0), np.radians(40.0), np.radians(110.0)
+    n = np.sqrt(gm_sun / a**3)
+    E = solve_kepler(n * (seconds + 161 * 86400.0), e)
+    P = (np.cos(node) * np.cos(w) - np.sin(node) * np.sin(w) * np.cos(i),
+         np.sin(node) * np.cos(w) + np.cos(node) * np.sin(w) * np.cos(i), np.sin(w) * np.sin(i))
+    Q = (-np.cos(node) * np.sin(w) - np.sin(node) * np.cos(w) * np.cos(i),
+         -np.sin(node) * np.sin(w) + np.cos(node) * np.cos(w) * np.cos(i), np.cos(w) * np.sin(i))
+    state = two_body_state(gm_sun, a, e, E, P, Q)
+    anomaly = true_from_eccentric(E, e)
+    # binary_delays: the timing formula, inverted for the pulsar's time as relsheet does
+    pb, x, ecc, om = 0.322997448918 * 86400, 2.341776, 0.6171340, np.radians(292.54)
+    gamma, r, s, k, pbdot = 4.29e-3, 6.85e-6, 0.734, 4.2e-4, -2.4e-12
+    since = seconds + 132 * 86400.0
+    root = np.sqrt(1 - ecc * ecc)
+
+    def delays(T):
+        phase = T / pb
+        Eb = solve_kepler(2 * np.pi * (phase - 0.5 * pbdot * phase * phase), ecc)
+        om_t = om + k * true_from_eccentric(Eb, ecc)
+        sin_u, cos_u = np.sin(Eb), np.cos(Eb)
+        proj = np.sin(om_t) * (cos_u - ecc) + root * np.cos(om_t) * sin_u
+        return x * proj, gamma * sin_u, -2 * r * np.log(1 - ecc * cos_u - s * proj)
+
+    T = since
+    floor = 1e-12 + 4 * np.finfo(float).eps * np.max(np.abs(since))
+    for _ in range(50):
+        roemer, einstein, shapiro = delays(T)
+        updated = since - (roemer + einstein + shapiro)
+        moved = np.max(np.abs(updated - T))
+        T = updated
+        if not moved > floor:
+            break
+    return state, anomaly, delays(T)
+
+
+# ---- P12: Monte Carlo through a two-mass solve ------------------------------------------------
+
+SOLVE_SHEET = """\
+Pb = 0.322997448918 d
+e = 0.6171340
+omdot = 4.226598 ± 0.000005 deg / yr
+gam = 4.307 ± 0.004 ms
+m1 = 1.4 Msun
+m2 = 1.4 Msun
+solve periastron_rate(m1, m2, Pb, e) == omdot, einstein_delay_amplitude(m1, m2, Pb, e) == gam for m1, m2
+pbdot = orbital_decay_rate(m1, m2, Pb, e)
+"""
+
+GIVEN_SHEET = """\
+Pb = 0.322997448918 d
+e = 0.6171340
+omdot = 4.226598 ± 0.000005 deg / yr
+gam = 4.307 ± 0.004 ms
+m1 = 1.43787 ± 0.00097 Msun
+m2 = 1.39050 ± 0.00097 Msun
+w = periastron_rate(m1, m2, Pb, e)
+g = einstein_delay_amplitude(m1, m2, Pb, e)
+pbdot = orbital_decay_rate(m1, m2, Pb, e)
+"""

@@ -21,6 +21,7 @@ import numpy as np
 from ..errors import CycleError, DomainError, InternalError, SheetError, Source, Span
 from ..language.scope import Scope, ppn_parameter
 from ..language.syntax import CellDef, Expr
+from ..physics.records import is_date
 from .checks import CheckProgram, CheckResult, compile_check, run_check
 from .compile import InputTable, compile_cell
 from .context import context, memory_budget
@@ -74,6 +75,9 @@ def held_size(value) -> int:
     """How many numbers a value holds: its elements, and as many again per contribution."""
     total = 0
     for leaf in leaves(value):
+        if is_date(leaf):   # its `.value` would format every date as text
+            total += 2 * int(np.prod(leaf.shape))
+            continue
         size = int(np.size(getattr(leaf, "value", 0)))
         total += size * (1 + len(getattr(leaf, "parts", ())))
     return total

@@ -206,6 +206,8 @@ def _relative_size(value, key: Input) -> float:
 def _difference(plus, minus, scale: float):
     """(plus − minus) · scale, leaf by leaf, as plain values in plus's units."""
     def one(a, b):
+        if is_date(a) or isinstance(a, Truth):
+            return None   # dates and truths carry no contributions (the record's `t` field)
         return (np.asarray(a.value) - np.asarray(b.to_value(a.unit))) * scale
 
     return zip_leaves(one, plus, minus)
@@ -458,8 +460,24 @@ def _aligned_rest(values: tuple, axes: tuple) -> tuple[list, tuple]:
     return out, axes
 
 
+#: Functions that find places or count (an index, a number of elements): they read central
+#: values (nominal; the median of Monte Carlo samples), as comparisons do, so that their
+#: result is exact and can index an array.
+CENTRAL_ONLY = frozenset({"argmin", "argmax", "count", "any", "all", "len"})
+
+
+def _central_leaf(leaf):
+    if isinstance(leaf, Uncertain):
+        return leaf.nominal
+    if isinstance(leaf, Samples):
+        return quantity(np.median(np.asarray(leaf.data.value), axis=0), leaf.unit)
+    return leaf
+
+
 def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | None):
     """A function on values whose axes are settled: uncertain, sampled or plain."""
+    if name in CENTRAL_ONLY:
+        return call(*(map_leaves(_central_leaf, v) for v in values))
     uncertain_args = False
     sampled_args = False
     for v in values:

@@ -326,6 +326,8 @@ def to_markdown(sheet: Sheet) -> str:
                 lines.append(_markdown_text(item.text))   # consecutive notes: one paragraph
                 state = "note"
             continue
+        if not isinstance(item, Cell):
+            continue   # tables and plots are written after the cells
         if state != "table":
             if state == "note":
                 lines.append("")
