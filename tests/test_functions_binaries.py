@@ -131,8 +131,9 @@ def _quadrupole_power_over_binding_energy(gm1, gm2, a, e, samples=4096):
     anomalies (a smooth periodic mean: converges geometrically). Not Peters' closed form."""
     gm = gm1 + gm2
     mean = 2 * np.pi * (np.arange(samples) + 0.5) / samples
-    E = newton(lambda E: E - e * np.sin(E) - mean, mean.copy(), fprime=lambda E: 1 - e * np.cos(E),
-               tol=1e-15, maxiter=100)
+    E = newton(lambda E: E - e * np.sin(E) - mean, np.full_like(mean, np.pi),
+               fprime=lambda E: 1 - e * np.cos(E), tol=1e-14, maxiter=200)
+    assert np.max(np.abs(E - e * np.sin(E) - mean)) < 1e-13
     n = math.sqrt(gm / a**3)
     x = np.stack([a * (np.cos(E) - e), a * math.sqrt(1 - e**2) * np.sin(E), 0 * E], 1)
     edot = n / (1 - e * np.cos(E))
