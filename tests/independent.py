@@ -107,16 +107,16 @@ def newtonian_hyperbola_turn(gm: float, b: float, v_inf: float) -> float:
     return 2 * value - math.pi
 
 
-def column(density, b: float, before: float, after: float) -> float:
-    """∫ N(√(b² + z²)) dz from −before to +after, by quadrature."""
-    total = 0.0
-    for hi in (before, after):
-        value, _ = quad(lambda z: density(math.hypot(b, z)), 0.0, hi, epsabs=0, epsrel=1e-11,
-                        limit=400)
-        total += value
-    return total
 
 
-__all__ = ["AU", "C", "GM_SUN", "column", "impact_parameter_of", "newtonian_hyperbola_turn",
-           "ppn_bending", "ppn_light_time_excess", "ppn_refractive_index",
-           "schwarzschild_light_bending", "np"]
+def einstein_ring_angle(gm: float, d_lens: float, d_source: float, bending) -> float:
+    """The ring of a source straight behind a point lens (beta = 0): the angle theta at which the
+    thin-lens equation theta D_s = alpha(D_l theta) (D_s - D_l) holds (Schneider, Ehlers & Falco
+    1992, ch. 2, from memory), with alpha = bending(gm, b) (one of the integrals above) and the
+    root found by brentq."""
+    from scipy.optimize import brentq
+
+    def mismatch(theta: float) -> float:
+        return theta * d_source - bending(gm, d_lens * theta) * (d_source - d_lens)
+
+    return brentq(mismatch, 1e-14, 1e-4, xtol=1e-24, rtol=1e-13)

@@ -137,9 +137,9 @@ def test_einstein_radius_is_the_ring_of_the_integrated_geodesic():
     # the ring: a source straight behind the lens (beta = 0) is seen at theta where the thin-lens
     # equation theta D_s = alpha(D_l theta) (D_s - D_l) holds (Schneider, Ehlers & Falco 1992,
     # ch. 2, from memory), alpha from the Schwarzschild geodesic integrated by scipy quad and
-    # the root found by brentq: independent of the closed form. 1e-8: quadrature and root
-    # tolerance (GM/(c^2 b) is 1e-11 here, so closest approach and impact parameter, which
-    # differ by it, are used interchangeably)
+    # the root found by brentq: independent of the closed form. At the ring b = D_l theta_E =
+    # 6e11 m, GM/(c^2 b) = 2.5e-9: the geodesic's second-order term moves theta_E by half of
+    # 15 pi/16 of that (3.6e-9), and closest approach and impact parameter differ by it: 1e-8
     from scipy.optimize import brentq
 
     pc = 648000 / math.pi * AU

@@ -8,6 +8,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 import scipy.constants as sc
+from independent import einstein_ring_angle, ppn_bending, schwarzschild_light_bending
 from scipy.integrate import quad
 
 from calc.physics.functions import light
@@ -218,12 +219,17 @@ def test_largest_centroid_shift():
 
 
 def test_einstein_crossing_time():
-    # t_E = theta_E D_l / v, with theta_E from einstein_radius (the definition: one Einstein
-    # radius crossed at the relative transverse speed in the lens plane)
-    sheet = evaluate("t = einstein_crossing_time(0.5 Msun, 6 kpc, 8 kpc, 150 km/s)\n"
-                     "th = einstein_radius(0.5 Msun, 6 kpc, 8 kpc)\n"
-                     "t2 = th * 6 kpc / (150 km/s) in d")
-    assert sheet["t"].to_value(u.d) == pytest.approx(sheet["t2"].to_value(u.d), rel=1e-12, abs=0)
+    # one Einstein radius crossed at the relative transverse speed in the lens plane
+    # (Paczynski 1986, ApJ 304, 1): the ring from the Schwarzschild geodesic and the lens
+    # equation (tests/independent.py, quad and brentq), carried to the lens plane (D_l theta)
+    # and crossed at v. 1e-8: the geodesic's second-order part, (15 pi/32) GM/(c^2 b) = 2e-9
+    # at this ring (b = 8e11 m), and quadrature
+    kpc = u.kpc.to(u.m)
+    ring = einstein_ring_angle(0.5 * GM_SUN, 6 * kpc, 8 * kpc,
+                               lambda gm, b: schwarzschild_light_bending(gm, b))
+    expected = ring * 6 * kpc / 150e3 / 86400
+    t = evaluate("t = einstein_crossing_time(0.5 Msun, 6 kpc, 8 kpc, 150 km/s)")["t"]
+    assert t.to_value(u.d) == pytest.approx(expected, rel=1e-8, abs=0)
 
 
 def test_halo_lens_time_scale():
@@ -236,13 +242,18 @@ def test_halo_lens_time_scale():
 
 
 def test_lensing_follows_the_sheets_ppn_gamma():
-    # the deflection scales with (1 + gamma)/2, so theta_E and t_E with its square root
+    # the rings of the lens equation with the PPN-metric bending integral for gamma = 0 and 1
+    # (tests/independent.py): their ratio. At the ring (b = 6e11 m) GM/(c^2 b) = 2.5e-9, and
+    # the integrals' second-order parts, which differ with gamma, are a few times that: 2e-8
     sheet = evaluate("ppn gamma = 0\nr0 = einstein_radius(1 Msun, 4 kpc, 8 kpc)\n"
                      "r1 = einstein_radius(1 Msun, 4 kpc, 8 kpc, gamma = 1)\n"
                      "t0 = einstein_crossing_time(1 Msun, 4 kpc, 8 kpc, 100 km/s)\n"
                      "t1 = einstein_crossing_time(1 Msun, 4 kpc, 8 kpc, 100 km/s, gamma = 1)")
-    assert (sheet["r0"] / sheet["r1"]).to_value(u.one) == pytest.approx(math.sqrt(0.5), rel=1e-12, abs=0)
-    assert (sheet["t0"] / sheet["t1"]).to_value(u.one) == pytest.approx(math.sqrt(0.5), rel=1e-12, abs=0)
+    kpc = u.kpc.to(u.m)
+    rings = [einstein_ring_angle(GM_SUN, 4 * kpc, 8 * kpc,
+                                 lambda gm, b, g=gamma: ppn_bending(gm, b, g)) for gamma in (0.0, 1.0)]
+    assert (sheet["r0"] / sheet["r1"]).to_value(u.one) == pytest.approx(rings[0] / rings[1], rel=2e-8, abs=0)
+    assert (sheet["t0"] / sheet["t1"]).to_value(u.one) == pytest.approx(rings[0] / rings[1], rel=2e-8, abs=0)
 
 
 @pytest.mark.parametrize("text, message", [
