@@ -101,7 +101,8 @@ def test_merger_time_matches_direct_integration_of_peters_equations():
 
 def test_merger_time_hulse_taylor_and_the_circular_pitfall():
     # about 300 Myr for B1913+16 (Weisberg, Nice & Taylor 2010, ApJ 722, 1030; from memory);
-    # the circular formula overestimates it about fivefold at e = 0.617 (REFERENCES.md pitfall)
+    # the circular formula overestimates it about fivefold at e = 0.617 (Peters 1964, Phys.
+    # Rev. 136, B1224: emission near periastron shortens the inspiral; from memory)
     sheet = evaluate(HULSE_TAYLOR + "t = merger_time(m1, m2, Pb, ecc) in Myr\n"
                      "t0 = merger_time(m1, m2, Pb, 0) in Myr")
     assert sheet["t"].value == pytest.approx(300, rel=0.02, abs=0)

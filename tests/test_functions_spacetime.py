@@ -127,14 +127,17 @@ def test_eccentricity_term_of_the_earth_orbit_matches_erfa_tdb_minus_tt():
         columns += [np.sin(2 * np.pi * days / period), np.cos(2 * np.pi * days / period)]
     coef, *_ = np.linalg.lstsq(np.column_stack(columns), dtdb, rcond=None)
     amplitude = math.hypot(coef[2], coef[3])
-    assert amplitude == pytest.approx(1.657e-3, rel=2e-3, abs=0)   # REFERENCES.md: about 1.657 ms
+    # the series' leading annual term is 1656.67 us (Fairhead & Bretagnon 1990, A&A 229, 240;
+    # from memory); the fitted amplitude, 4 digits quoted: 2e-3
+    assert amplitude == pytest.approx(1.657e-3, rel=2e-3, abs=0)
     ours = evaluate("x = eccentricity_clock_term(const.GM_sun, 1.00000261 AU, 0.01671123)")["x"]
     assert ours.to_value(u.s) == pytest.approx(amplitude, rel=5e-3, abs=0)
 
 
 def test_gnss_satellite_clock_terms():
     # Ashby 2003, Living Rev. Relativ. 6, 1 (from memory): the satellite's own velocity term is
-    # -7.2 us/day (REFERENCES.md pitfall: -7.1 includes the ground clock's rotation); the net
+    # -7.2 us/day (the often-quoted -7.1 us/day already includes the ground clock's rotation,
+    # which this term leaves out); the net
     # satellite-minus-ground rate is +38.6 us/day. Tolerance 0.5% (rounded published values,
     # and the ground clock here ignores J2).
     sheet = evaluate("""
