@@ -53,6 +53,31 @@ def test_geodetic_gamma_dependence():
     assert sheet["b"].value == pytest.approx(sheet["a"].value / 3, rel=1e-12, abs=0)
 
 
+@pytest.mark.parametrize("radius_km", [7027.4, 12270.0, 42164.0])
+def test_frame_dragging_is_the_orbit_average_of_the_instantaneous_precession(radius_km):
+    # Schiff 1960, PRL 4, 215 (from memory): a gyroscope at r precesses at
+    # G/(c^2 r^3) [3 (J . r_hat) r_hat - J]. On a polar circular orbit (J along z, the orbit in
+    # the x-z plane) its time average, done here by scipy quad over the orbit (not the closed
+    # form G J/(2 c^2 r^3)), lies along J; the component across it averages to zero. 1e-12:
+    # quadrature of a trigonometric polynomial
+    from scipy.integrate import quad
+
+    from calc.physics.functions import gyroscopes
+    G, c, spin, r = 6.67430e-11, 299_792_458.0, 5.86e33, radius_km * 1e3   # G: CODATA 2018
+
+    def along_j(phi):
+        return G / (c**2 * r**3) * spin * (3 * math.sin(phi) ** 2 - 1)
+
+    def across_j(phi):
+        return G / (c**2 * r**3) * spin * 3 * math.sin(phi) * math.cos(phi)
+
+    average = quad(along_j, 0, 2 * math.pi, epsabs=0, epsrel=1e-13)[0] / (2 * math.pi)
+    across = quad(across_j, 0, 2 * math.pi, epsabs=1e-30, epsrel=1e-13)[0] / (2 * math.pi)
+    assert abs(across) < 1e-12 * average
+    got = gyroscopes.frame_dragging_rate(spin * u.kg * u.m**2 / u.s, r * u.m).to_value(u.rad / u.s)
+    assert got == pytest.approx(average, rel=1e-12, abs=0)
+
+
 def test_frame_dragging_gamma_dependence():
     # PPN: (1 + gamma + alpha1/4)/2 times the GR value (Will 2014, Living Rev. Relativ. 17, 4;
     # from memory), alpha1 = 0 here: gamma = 0 halves it, and the sheet's `ppn` line reaches it.
