@@ -1,4 +1,4 @@
-"""The function registry and `relsheet funcs`: DESIGN §4's names, docstrings, listings."""
+"""The function registry and `relsheet funcs`: the library's names and signatures, docstrings, listings."""
 
 from __future__ import annotations
 
@@ -13,8 +13,9 @@ from calc.physics.catalog import CAUTION, entry, listing
 
 ROOT = Path(__file__).resolve().parent.parent
 
-# DESIGN §4; periapsis_budget also takes the PPN parameters and perturbation_rate a grid
-DESIGN_FUNCTIONS = {
+# the project's specified names and parameters (README "The function library" lists them);
+# periapsis_budget also takes the PPN parameters and perturbation_rate a grid
+SPECIFIED_FUNCTIONS = {
     "orbit": ("a", "e", "i", "node", "long_peri", "arg_peri", "m", "t_peri", "mean_anomaly", "epoch"),
     "perturbation_rate": ("M", "target", "perturber", "grid"),
     "periapsis_budget": ("M", "target", "perturbers", "J2", "R", "J", "gamma", "beta", "grid",
@@ -41,7 +42,7 @@ DESIGN_FUNCTIONS = {
 MATH = "sqrt exp ln log10 sin cos tan asin acos atan atan2 hypot abs min max sum mean span logspan"
 
 
-@pytest.mark.parametrize("name, params", sorted(DESIGN_FUNCTIONS.items()))
+@pytest.mark.parametrize("name, params", sorted(SPECIFIED_FUNCTIONS.items()))
 def test_design_functions_are_registered_with_their_signatures(name, params):
     spec = functions.lookup(name)
     assert spec is not None, name
@@ -52,7 +53,7 @@ def test_math_functions_are_registered():
     assert all(functions.lookup(n) is not None for n in MATH.split())
 
 
-@pytest.mark.parametrize("name", sorted(DESIGN_FUNCTIONS))
+@pytest.mark.parametrize("name", sorted(SPECIFIED_FUNCTIONS))
 def test_every_domain_docstring_is_a_handbook_entry(name):
     doc = functions.lookup(name).documentation()
     for section in ("Formula:", "Arguments:", "Result:", "Validity:", "PPN:", "Source:"):
@@ -61,7 +62,7 @@ def test_every_domain_docstring_is_a_handbook_entry(name):
 
 def test_listing_has_every_function_and_the_caution():
     text = listing()
-    for name in [*DESIGN_FUNCTIONS, *MATH.split()]:
+    for name in [*SPECIFIED_FUNCTIONS, *MATH.split()]:
         assert f"  {name}(" in text
     assert CAUTION in text and "IERS Conventions" in text
 

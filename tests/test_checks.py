@@ -15,7 +15,7 @@ MERCURY = "a = 0.38709927 AU\ne = 0.20563593\nadv = periapsis_rate(1 Msun, a, e)
 
 
 @pytest.mark.parametrize("line, passed", [
-    # Nobili & Will 1986: 42.98"/century (REFERENCES.md)
+    # Nobili & Will 1986, Nature 320, 39: 42.98"/century
     ("check adv == 42.98 arcsec / century within 0.5%", True),
     ("check adv == 42.98 arcsec / century within 0.01 arcsec / century", True),
     ("check adv == 42.98 arcsec / century within 0.0001 arcsec / century", False),

@@ -53,7 +53,7 @@ def test_eval_json_schema(sheet_file):
     cells = {c["name"]: c for c in doc["cells"]}
     assert [c["name"] for c in doc["cells"]] == ["a", "xs", "bad", "r"]   # file order
     for cell in doc["cells"]:
-        # DESIGN §6's keys, plus the cell's validity warnings
+        # the keys README's "Evaluating from the command line" lists for `--format json`
         assert set(cell) == {"name", "line", "value", "unit", "sigma", "error", "warnings"}
         assert cell["sigma"] is None
     assert cells["a"] == {"name": "a", "line": 1, "value": pytest.approx(149_597_870.7),

@@ -39,7 +39,7 @@ def test_arithmetic(text, unit, expected):
 
 
 def test_chain_ends_at_a_cell():
-    # `3 km / dt` divides 3 km by cell dt (DESIGN §3)
+    # `3 km / dt` divides 3 km by cell dt (README, "A short tour of the language")
     sheet = evaluate("dt = 2 s\nv = 3 km / dt")
     assert sheet["v"].to_value(u.km / u.s) == 1.5
     sheet = evaluate("n = 4\nx = 3 km n")

@@ -441,20 +441,20 @@ def test_kernel_problems_are_clear_errors(kernel, tmp_path):
             ephemeris("earth", T0)
 
 
-# ---- registry: DESIGN §10's names and handbook entries -----------------------------------
+# ---- registry: the specified time functions' names and handbook entries -----------------------------------
 
-DESIGN_TIME_FUNCTIONS = {
+SPECIFIED_TIME_FUNCTIONS = {
     "kepler": ("mean_anomaly", "e"), "orbit_state": ("M", "orbit", "t"),
     "elongation": ("observer", "target"), "impact_parameter": ("observer", "target"),
     "ephemeris": ("body", "t", "origin"),
     "binary_delays": ("t", "Pb", "x", "e", "omega", "T0", "m1", "m2"),
     "clock_offset": ("M", "orbit", "t0", "t1"),
-    # DESIGN writes sagnac_delay(from, to, omega); `from` is a Python keyword
+    # the specification writes sagnac_delay(from, to, omega); `from` is a Python keyword
     "sagnac_delay": ("sender", "receiver", "omega"),
 }
 
 
-@pytest.mark.parametrize("name, params", sorted(DESIGN_TIME_FUNCTIONS.items()))
+@pytest.mark.parametrize("name, params", sorted(SPECIFIED_TIME_FUNCTIONS.items()))
 def test_time_functions_are_registered_as_handbook_entries(name, params):
     spec = functions.lookup(name)
     assert spec is not None and tuple(spec.signature.parameters) == params

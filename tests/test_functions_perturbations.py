@@ -29,8 +29,9 @@ planets = [venus, earth, mars, jupiter, saturn, uranus, neptune]
 
 def test_mercury_precession_from_the_planets():
     # Clemence 1947, Rev. Mod. Phys. 19, 361: 531.5"/century in total (from memory).
-    # First order in the masses by Gauss averaging should land within ~1% (REFERENCES.md):
-    # second-order mass terms and the elements' epoch are left out.
+    # First order in the masses by Gauss averaging: within ~1%, as the terms left out are of
+    # second order in the planetary masses (Clemence's theory carries them) and the elements
+    # here are of epoch J2000, not Clemence's.
     sheet = evaluate(SOLAR_SYSTEM + "budget = periapsis_budget(1 Msun, mercury, planets)\n"
                      "planetary = budget.total - budget.gr")
     assert sheet["planetary"].to_value(u.arcsec / u.yr) * 100 == pytest.approx(531.5, rel=1e-2, abs=0)
@@ -100,7 +101,9 @@ def test_budget_terms_and_names():
 def test_budget_uses_the_sheets_ppn():
     sheet = evaluate("ppn gamma = 0\nt = orbit(1 AU, 0.1)\np = orbit(3 AU, 0.0, m = 1e-6 Msun)\n"
                      "b = periapsis_budget(1 Msun, t, [p])\ng = periapsis_rate(1 Msun, 1 AU, 0.1, gamma = 1)")
-    # (2 + 2 gamma - beta)/3 with gamma = 0: one third of GR
+    # the sheet's `ppn gamma` reaches the budget's GR term: (2 + 2 gamma - beta)/3 with
+    # gamma = 0 is a third of GR (that factor itself is checked against a Gauss average of the
+    # IERS PPN acceleration in test_functions_orbits.py)
     assert sheet["b"].field("gr").value == pytest.approx(sheet["g"].value / 3, rel=1e-12, abs=0)
 
 

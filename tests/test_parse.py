@@ -41,7 +41,8 @@ def expr_of(text: str):
     return cell.expr
 
 
-# Table of expressions and the shape of node they must produce (the precedence rules of DESIGN §3).
+# Table of expressions and the shape of node they must produce (the language's precedence rules,
+# README "A short tour of the language").
 @pytest.mark.parametrize("text, check", [
     ("12", lambda e: isinstance(e, Number) and e.value == 12),
     ("1.5e-3", lambda e: e.value == 1.5e-3),
@@ -120,7 +121,8 @@ def test_expression_input_for_set():
     assert isinstance(line.expr, Chain) and line.unit is not None
 
 
-# Exact messages, with position and caret (DESIGN §6: file:line:col, the line, a caret).
+# Exact messages, with position and caret (file:line:col, the line, a caret: DEVELOPERS.md,
+# calc/errors.py).
 @pytest.mark.parametrize("text, rendered", [
     ("x = 3 $\n",
      "t.sheet:1:7: unexpected character `$`\n  x = 3 $\n        ^\n"
