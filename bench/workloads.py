@@ -206,7 +206,8 @@ t0 = 2031-04-12 TDB
 t = span(t0, t0 + 400 d, {DATES})
 planet = orbit(a = 1.4 AU, e = 0.09, i = 2 deg, node = 40 deg, arg_peri = 110 deg, t_peri = 2030-11-02 TDB)
 state = orbit_state(1 Msun, planet, t)
-delays = binary_delays(t, 0.322997448918 d, 2.341776 s, 0.6171340, 292.54 deg, 2030-12-01 TDB, 1.438 Msun, 1.390 Msun)
+T0 = 2030-12-01 TDB
+delays = binary_delays(t, 0.322997448918 d, 2.341776 s, 0.6171340, 292.54 deg, T0, 1.438 Msun, 1.390 Msun)
 """
 
 
