@@ -689,7 +689,7 @@ def parse_number(tok: Token) -> float:
 
 def _is_token(item, kind: str) -> bool:
     """Whether a child is a token of ``kind`` (tokens are strings; nodes never are)."""
-    return isinstance(item, str) and item.type == kind  # type: ignore[attr-defined]
+    return isinstance(item, str) and getattr(item, "type", None) == kind
 
 
 class NodeBuilder:

@@ -28,10 +28,12 @@ _BOM = b"\xef\xbb\xbf"
 MARKER = "#→"
 
 
-def marker_text(cell: Cell, digits: int = 6) -> str:
+def marker_text(cell: Cell, digits: int = 6, solved: bool = False) -> str:
     """What follows `#→`: the cell's value (or error) as the report shows it, and for a long
-    array a digest of every element."""
+    array a digest of every element; `(solved)` after an unknown of a `solve` line."""
     text = cell_text(cell, digits)
+    if solved and cell.error is None:
+        text += "  (solved)"
     if cell.error is None:
         digest = array_digest(cell.raw, digits)
         if digest is not None:
@@ -46,6 +48,9 @@ def array_digest(value, digits: int) -> str | None:
     values = getattr(s, "value", None)
     if values is None or np.size(values) <= ARRAY_PREVIEW:
         return None
+    if getattr(s, "kind", "quantity") != "quantity":   # dates, truths: their texts
+        parts = [str(v) for v in np.ravel(values)]
+        return hashlib.sha256(" ".join(parts).encode()).hexdigest()[:6]
     parts = [format_number(v, digits) for v in np.ravel(values)]
     sigma = getattr(s, "sigma", None)
     if sigma is not None:
@@ -79,7 +84,7 @@ def annotated_text(sheet: Sheet, text: str, digits: int = 6) -> str:
         # only blanks and tabs go before a marker: other characters Python calls white space
         # (U+2029, \x1c…) belong to the line
         keep = (body[:code_end] + _without_marker(body[code_end:])).rstrip(" \t")
-        markers[index] = (keep, marker_text(cell, digits))
+        markers[index] = (keep, marker_text(cell, digits, sheet.solved(cell.name)))
     out = list(lines)
     indices = sorted(markers)
     group: list[int] = []

@@ -42,10 +42,15 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None,
             if item.error is not None:
                 rows.append(("cell", item.name, f"error: {item.error.message}", ""))
             elif isinstance(sampled, Shown) and sampled.samples is not None:
-                rows.append(("cell", item.name, *format_quantity(sampled, digits)))
+                number, unit = format_quantity(sampled, digits)
+                if sheet.solved(item.name):
+                    unit = f"{unit}  (solved)" if unit else "(solved)"
+                rows.append(("cell", item.name, number, unit))
                 rows.append(("warning", f"16 / 50 / 84 %: {format_percentiles(sampled)}"))
             else:
                 number, unit = format_quantity(item.raw, digits)
+                if sheet.solved(item.name):
+                    unit = f"{unit}  (solved)" if unit else "(solved)"
                 rows.append(("cell", item.name, number, unit))
                 rows += [("field", *row) for row in record_rows(item.raw, digits)]
             rows += [("warning", text) for text in item.warnings]
