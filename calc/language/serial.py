@@ -28,9 +28,17 @@ from .syntax import (
     CellDef,
     Chain,
     CheckDef,
+    Compare,
     ConstantsDef,
+    CorrelationDef,
+    DateLiteral,
+    DayNumber,
     Dotted,
+    EphemerisDef,
+    Equation,
+    FunctionDef,
     Group,
+    Index,
     Keyword,
     Name,
     NamePower,
@@ -39,19 +47,32 @@ from .syntax import (
     Override,
     Percent,
     PercentUnit,
+    PlotDef,
     PlusMinus,
     Power,
     PPNDef,
+    Slice,
+    SolveDef,
     Statement,
+    TableDef,
+    TextLiteral,
     UnaryOp,
     UnitProduct,
+    Unknown,
     UseDef,
+    _Node,
 )
 
 #: Bumped whenever the record layout below changes (entries of another layout are not read).
-FORMAT = 2
+FORMAT = 3
 
-_STATEMENTS = (CellDef, ConstantsDef, PPNDef, UseDef, CheckDef, Note)
+#: Nodes written field by field (their fields in __slots__ order, children on the stack).
+_PLAIN = {cls.__name__: cls for cls in (Compare, Slice, Index, DateLiteral, DayNumber, TextLiteral,
+                                        FunctionDef, TableDef, PlotDef, Equation, Unknown,
+                                        SolveDef, CorrelationDef, EphemerisDef)}
+
+_STATEMENTS = (CellDef, ConstantsDef, PPNDef, UseDef, CheckDef, Note, FunctionDef, TableDef,
+               PlotDef, SolveDef, CorrelationDef, EphemerisDef)
 
 
 class NotEncodable(ValueError):
@@ -161,13 +182,34 @@ def _note(n: Note):
     return ["T", n.text, n.heading, *n.span], ()
 
 
+def _plain(n):
+    """A node of :data:`_PLAIN`: each field as a span, a child (written before the record), a
+    tuple of fields, or a plain JSON value."""
+    children: list = []
+
+    def field(value):
+        if isinstance(value, Span):
+            return {"s": list(value)}
+        if isinstance(value, _Node):
+            children.append(value)
+            return {"c": 1}
+        if isinstance(value, tuple):
+            return {"t": [field(item) for item in value]}
+        if value is None or isinstance(value, (str, int, float)):
+            return {"v": value}
+        raise NotEncodable(f"a field of {type(n).__name__} the cache does not hold")
+
+    fields = [field(getattr(n, slot)) for slot in n.__slots__]
+    return ["X", type(n).__name__, len(children), fields], tuple(children)
+
+
 _ENCODERS: dict[type, Callable[[Any], tuple[list, tuple]]] = {
     Number: _number, Percent: _percent, Name: _name, NamePower: _name_power, Dotted: _dotted,
     Keyword: _keyword, Call: _call, Group: _group, ArrayLiteral: _array, Chain: _chain,
     UnitProduct: _unit_product, PercentUnit: _percent_unit, BinaryOp: _binary,
     UnaryOp: _unary, PlusMinus: _plus_minus, Power: _power, CellDef: _cell,
     ConstantsDef: _constants, PPNDef: _ppn, Override: _override, UseDef: _use,
-    CheckDef: _check, Note: _note,
+    CheckDef: _check, Note: _note, **{cls: _plain for cls in _PLAIN.values()},
 }
 
 
@@ -320,12 +362,31 @@ def _d_note(r, s):
     return Note(r[1], r[2], _new(Span, r[3:7]))
 
 
+def _d_plain(r, s):
+    cls = _PLAIN[r[1]]
+    children = iter(_take(s, r[2]))
+
+    def field(item: dict):
+        if "s" in item:
+            return _new(Span, item["s"])
+        if "c" in item:
+            return next(children)
+        if "t" in item:
+            return tuple(field(x) for x in item["t"])
+        return item["v"]
+
+    values = [field(item) for item in r[3]]
+    if len(values) != len(cls.__slots__):
+        raise TypeError("a record of another layout")
+    return cls(*values)
+
+
 _DECODERS: dict[str, Callable[[list, list], Any]] = {
     "n": _d_number, "p": _d_percent, "a": _d_name, "w": _d_name_power, "d": _d_dotted,
     "k": _d_keyword, "c": _d_call, "g": _d_group, "r": _d_array, "h": _d_chain,
     "u": _d_unit_product, "%": _d_percent_unit, "b": _d_binary, "m": _d_unary,
     "pm": _d_plus_minus, "^": _d_power, "C": _d_cell, "K": _d_constants, "P": _d_ppn,
-    "O": _d_override, "U": _d_use, "Q": _d_check, "T": _d_note,
+    "O": _d_override, "U": _d_use, "Q": _d_check, "T": _d_note, "X": _d_plain,
 }
 
 
@@ -344,5 +405,6 @@ def decode(data: bytes) -> list[Statement] | None:
         if any(type(s) not in _STATEMENTS for s in stack):
             return None
         return stack
-    except (ValueError, TypeError, KeyError, IndexError, AttributeError, RecursionError):
+    except (ValueError, TypeError, KeyError, IndexError, AttributeError, RecursionError,
+            StopIteration):
         return None
