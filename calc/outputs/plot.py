@@ -364,24 +364,37 @@ def render_terminal(spec: PlotSpec, width: int = 72, height: int = 18) -> str:
     return _terminal_lines(spec, width, height)
 
 
+def _y_ticks(scale: _Scale, height: int) -> dict[int, str]:
+    """Tick labels by canvas row: the top, the bottom and, on a tall canvas, the middle."""
+    ticks = {0: _short(scale.value_at(1.0)), height - 1: _short(scale.value_at(0.0))}
+    if height >= 5:
+        middle = (height - 1) // 2
+        ticks[middle] = _short(scale.value_at(1 - middle / (height - 1)))
+    return ticks
+
+
+def _margin(scale: _Scale, rows: int) -> int:
+    """The width of the y tick labels of a canvas ``rows`` high."""
+    return max(len(t) for t in _y_ticks(scale, rows).values())
+
+
 def _frame(title: str, y_label: str, y_scale: _Scale, canvas_rows: list[str],
            right: list[str], x_ticks: str, x_label: str, footer: Sequence[str] = ()) -> str:
     """Title, the y label, the canvas with y ticks (top, middle, bottom) on a `┤` axis, the
     x axis with ticks and its label centred; ``right`` holds text beside each canvas row."""
     height = len(canvas_rows)
     width = len(canvas_rows[0]) if canvas_rows else 0
-    ticks = {0: _short(y_scale.value_at(1.0)), height - 1: _short(y_scale.value_at(0.0))}
-    if height >= 5:
-        ticks[(height - 1) // 2] = _short(y_scale.value_at(1 - ((height - 1) // 2) / (height - 1)))
-    margin = max(len(t) for t in ticks.values())
-    lines = [title, f"{' ' * margin} {y_label}"]
+    ticks = _y_ticks(y_scale, height)
+    margin = _margin(y_scale, height)
+    room = margin + 2 + width + max((len(r) for r in right), default=0)
+    lines = [title[:room], f"{' ' * margin} {y_label}"[:room]]
     for row, dots in enumerate(canvas_rows):
         mark = "┤" if row in ticks else "│"
         lines.append(f"{ticks.get(row, '').rjust(margin)} {mark}{dots}{right[row]}".rstrip())
     lines.append(f"{' ' * margin} └{'─' * width}")
     lines.append(f"{' ' * (margin + 2)}{x_ticks}".rstrip())
     lines.append(f"{' ' * (margin + 2)}{x_label.center(width)}".rstrip())
-    lines += list(footer)
+    lines += [line[:room] for line in footer]
     return "\n".join(lines)
 
 
@@ -397,10 +410,10 @@ def _terminal_lines(spec: PlotSpec, width: int, height: int) -> str:
             edges += [y - sigma, y + sigma]
     y_scale = _Scale(np.concatenate([np.ravel(e) for e in edges]), spec.log_y)
     names = [s.name for s in spec.y]
-    label_room = max(len(n) for n in names) + 3 if len(spec.y) > 1 else 0
-    margin = 12
-    canvas_width = max(8, width - margin - label_room)
-    canvas_height = max(3, height - 6)
+    label_room = max(len(n) for n in names) + 2 if len(spec.y) > 1 else 0
+    footer = ["dotted: ±1σ"] if any(s.sigma is not None for s in spec.y) else []
+    canvas_height = max(3, height - 5 - len(footer))
+    canvas_width = max(8, width - _margin(y_scale, canvas_height) - 2 - label_room)
     canvas = _Dots(canvas_width, canvas_height)
     fx = x_scale.unit(_values(x_series))
     ends: list[tuple[int, str]] = []
@@ -422,9 +435,6 @@ def _terminal_lines(spec: PlotSpec, width: int, height: int) -> str:
             free = [r for r in range(canvas_height) if not right[r]]
             if free:   # the free row nearest to where the line ends
                 right[min(free, key=lambda r: (abs(r - row), r))] = f" ╴{name}"
-    footer = []
-    if any(s.sigma is not None for s in spec.y):
-        footer.append("dotted: ±1σ")
     title = _title(spec) + (f"  ({spec.name})" if spec.heading else "")
     scales = [w for w, on in (("log x", spec.log_x), ("log y", spec.log_y)) if on]
     if scales:
@@ -447,25 +457,29 @@ def _terminal_map(spec: PlotSpec, width: int, height: int) -> str:
     grid = np.asarray(colour.values, dtype=float)
     x_scale = _Scale(_values(first), spec.log_x)
     y_scale = _Scale(_values(second), spec.log_y)
-    canvas_width = max(8, width - 12)
-    canvas_height = max(3, height - 7)
+    finite = grid[np.isfinite(grid)]
+    low, high = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
+    span = high - low or 1.0
+    steps = [low + span * k / len(SHADES) for k in range(len(SHADES) + 1)]
+    items = [f"{SHADES[k]} {_short(steps[k])}…{_short(steps[k + 1])}" for k in range(len(SHADES))]
+    legend = [f"{colour.label}:"]
+    for item in items:   # the colour scale, on as many lines as the width needs
+        if len(legend[-1]) + 2 + len(item) > width:
+            legend.append(" " * 2)
+        legend[-1] += "  " + item
+    canvas_height = max(3, height - 5 - len(legend))
+    canvas_width = max(8, width - _margin(y_scale, canvas_height) - 2)
     columns = _nearest(_values(first), (np.arange(canvas_width) + 0.5) / canvas_width, x_scale)
     rows = _nearest(_values(second), 1 - (np.arange(canvas_height) + 0.5) / canvas_height,
                     y_scale)
     sampled = grid[np.ix_(columns, rows)].T        # rows of text run along the second axis
-    finite = grid[np.isfinite(grid)]
-    low, high = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
-    span = high - low or 1.0
-    level = np.clip(((sampled - low) / span * len(SHADES)).astype(np.int64), 0, len(SHADES) - 1)
+    fraction = np.nan_to_num((sampled - low) / span)
+    level = np.clip((fraction * len(SHADES)).astype(np.int64), 0, len(SHADES) - 1)
     text_rows = ["".join(SHADES[v] if np.isfinite(z) else " " for v, z in zip(lv, zr))
                  for lv, zr in zip(level, sampled)]
-    steps = [low + span * k / len(SHADES) for k in range(len(SHADES) + 1)]
-    legend = "  ".join(f"{SHADES[k]} {_short(steps[k])}…{_short(steps[k + 1])}"
-                       for k in range(len(SHADES)))
     title = _title(spec) + (f"  ({spec.name})" if spec.heading else "")
     scales = [w for w, on in (("log x", spec.log_x), ("log y", spec.log_y)) if on]
     if scales:
         title += "  · " + ", ".join(scales)
     return _frame(title, axis_label(second), y_scale, text_rows, [""] * canvas_height,
-                  _x_ticks(first, x_scale, canvas_width), axis_label(first),
-                  [f"{colour.label}:  {legend}"])
+                  _x_ticks(first, x_scale, canvas_width), axis_label(first), legend)

@@ -114,7 +114,7 @@ def table_text(spec: TableSpec, rows: int | None = None, digits: int = DEFAULT_D
              gap.join(c[1] for c in columns)]
     for row in range(len(head)):
         lines.append(gap.join(c[2][row] for c in columns).rstrip())
-    if tail:
+    if len(shown) < count:
         left_out = count - len(shown)
         lines.append(f"  ⋮  {left_out:,} row{'s' if left_out != 1 else ''} left out "
                      f"(rows {len(head) + 1:,}–{count - len(tail):,})")
@@ -194,7 +194,7 @@ def table_markdown(spec: TableSpec, rows: int | None = None,
                                  for s in spec.columns) + " |"
 
     lines += [row(i) for i in head]
-    if tail:
+    if len(head) + len(tail) < spec.rows:
         left_out = spec.rows - len(head) - len(tail)
         lines.append("| " + " | ".join(["⋮"] * len(spec.columns)) + " |")
         lines += [row(i) for i in tail]
