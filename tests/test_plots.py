@@ -122,6 +122,23 @@ def test_svg_map_has_mesh_colour_scale_and_labels():
     assert _group(root, "map-shift") is not None
 
 
+def test_map_cells_sit_at_their_axis_values():
+    """Each coloured cell of the map is centred on the (x, x2) its value belongs to."""
+    elong = np.linspace(1, 179, 7)
+    r_obs = np.array([0.5, 1.0, 4.0, 9.0])
+    grid = elong[:, None] * 1000 + r_obs[None, :]           # tells both axes apart
+    spec = PlotSpec("m", "", (Series("z", "", grid),),
+                    (Series("elong", "deg", elong), Series("r_obs", "AU", r_obs)))
+    (mesh,) = draw(spec).axes[0].collections
+    corners = mesh.get_coordinates()                        # (rows + 1, columns + 1, 2)
+    centres = (corners[:-1, :-1] + corners[1:, 1:]) / 2
+    values = np.asarray(mesh.get_array()).reshape(centres.shape[:2])
+    for (cx, cy), value in zip(centres.reshape(-1, 2), values.ravel()):
+        i = int(np.argmin(np.abs(elong - cx)))
+        j = int(np.argmin(np.abs(r_obs - cy)))
+        assert value == grid[i, j]
+
+
 def test_pdf_one_page_of_the_figure_size(tmp_path):
     path = write_plot(line_spec(), tmp_path / "f.pdf")
     data = path.read_bytes()
