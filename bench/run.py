@@ -219,6 +219,25 @@ def p8_what_if(repeats: int) -> Figure:
     return _summarise(fig, ta, tb)
 
 
+def p10_plot(repeats: int, workdir: Path) -> Figure:
+    sheet = workdir / "plot.sheet"
+    sheet.write_text(workloads.plot_sheet())
+    ours, direct = workdir / "plot_ours.py", workdir / "plot_direct.py"
+    out_a, out_b = workdir / "plots_a", workdir / "plots_b"
+    out_a.mkdir()
+    out_b.mkdir()
+    ours.write_text(workloads.plot_spec_script(str(out_a), str(ROOT)))
+    direct.write_text(workloads.plot_direct_script(str(out_b)))
+    # once the engine evaluates `plot` lines, the left side is the whole command:
+    # a = [PY, "-m", "calc", "plot", str(sheet), "-o", str(out_a)]
+    a = [PY, str(ours)]
+    b = [PY, str(direct)]
+    ta, tb, _, _ = paired_processes(a, b, repeats, ROOT)
+    fig = Figure("P10", "plot: a 100,000-point line as PNG through `write_plots` vs the same "
+                        "figure drawn with matplotlib directly", 1.5)
+    return _summarise(fig, ta, tb)
+
+
 # ---- output -------------------------------------------------------------------
 
 
@@ -247,7 +266,7 @@ def compile_bytecode() -> None:
     compileall.compile_dir(str(ROOT / "calc"), quiet=1)
 
 
-FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8"]
+FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8", "P10"]
 
 
 def _figure_ids(text: str) -> set[str]:
@@ -264,7 +283,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--quick", action="store_true", help="few repetitions (smoke check)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
     parser.add_argument("--only", metavar="IDS", type=_figure_ids,
-                        help="comma-separated figures to run (P1,…,P8; P2 gives P5 too, "
+                        help="comma-separated figures to run (P1,…,P10; P2 gives P5 too, "
                              "P7 gives P7b too)")
     args = parser.parse_args(argv)
     process_repeats, call_repeats = (3, 5) if args.quick else (11, 21)
@@ -286,6 +305,8 @@ def main(argv: list[str] | None = None) -> int:
             figures += p7_monte_carlo(call_repeats)
         if "P8" in wanted:
             figures.append(p8_what_if(call_repeats))
+        if "P10" in wanted:
+            figures.append(p10_plot(process_repeats, Path(tmp)))
     figures.sort(key=lambda f: FIGURES.index(f.id))
     if args.json:
         rows = []
