@@ -338,3 +338,17 @@ def test_field_macro_never_takes_a_cells_name():
     text = to_tex(Sheet.from_text("o = orbit(1 AU, 0.1)\no_a = 3\n", "t.sheet"))
     assert "\\newcommand{\\rsOA}{\\num{3}}" in text            # the cell keeps its macro
     assert "% o.a would be \\rsOA like o_a: no macro" in text
+
+
+def test_eval_prints_tables_after_the_cells(monkeypatch, tmp_path, capsys):
+    from calc.interfaces.cli import main
+
+    path = tmp_path / "s.sheet"
+    path.write_text("x = 1 km\n")
+    monkeypatch.setattr(Sheet, "tables", lambda self: [small_table()], raising=False)
+    assert main(["eval", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert out.endswith("\n\n" + SMALL_TEXT + "\n") and out.index("x  1") < out.index("table pass")
+    assert main(["eval", str(path), "--rows", "2"]) == 0
+    assert "⋮  1 row left out (rows 2–2)" in capsys.readouterr().out
+    assert main(["eval", str(path), "--rows", "0"]) == 64

@@ -63,6 +63,8 @@ def build_parser() -> argparse.ArgumentParser:
     ev.add_argument("--seed", type=int, metavar="S", help="seed of the Monte Carlo draws")
     ev.add_argument("--sigma-budget", metavar="CELL", dest="sigma_budget",
                     help="list each input's share of the uncertainty of CELL")
+    ev.add_argument("--rows", type=int, metavar="N",
+                    help="print tables as their first and last N rows (default: every row)")
     _sheet_options(ev)
     vf = commands.add_parser("verify", help="run the sheets' checks; exit 1 if any fails",
                              description="Run the `check` lines of each sheet. Prints every "
@@ -247,6 +249,8 @@ def cmd_eval(args) -> int:
         raise UsageError(f"--mc takes between 2 and 10,000,000 samples, got {args.mc}")
     if args.seed is not None and args.mc is None:
         raise UsageError("--seed goes with --mc")
+    if args.rows is not None and args.rows < 1:
+        raise UsageError(f"--rows takes a number of rows of 1 or more, got {args.rows}")
     sheet = Sheet.load(args.file, root=args.root)
     _apply_overrides(sheet, args.overrides)
     if args.sigma_budget is not None and args.sigma_budget not in sheet:
@@ -281,9 +285,22 @@ def cmd_eval(args) -> int:
         from ..outputs.report import render_text
 
         print(render_text(sheet, args.digits, monte_carlo, args.mc))
+        _print_tables(sheet, args.rows, args.digits)
     _report_warnings(sheet)
     _report(sheet.all_errors(), args.debug)
     return _exit_code(sheet, monte_carlo)
+
+
+def _print_tables(sheet, rows: int | None, digits: int) -> None:
+    """The sheet's tables after its cells, each in full unless ``rows`` cuts it."""
+    tables = getattr(sheet, "tables", None)
+    if not callable(tables):
+        return
+    from ..outputs.tables import table_text
+
+    for spec in tables():
+        print()
+        print(table_text(spec, rows, digits))
 
 
 class _Progress:
