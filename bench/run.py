@@ -316,6 +316,21 @@ def p13_editor(repeats: int) -> Figure:
     fig = Figure("P13", "editor: a didChange of one input of a 500-cell sheet to published "
                         "diagnostics and inlay hints vs `relsheet eval` of it in process", 0.2)
     fig.notes.append(f"{incremental} of the edits were evaluated incrementally")
+def p10_plot(repeats: int, workdir: Path) -> Figure:
+    sheet = workdir / "plot.sheet"
+    sheet.write_text(workloads.plot_sheet())
+    ours, direct = workdir / "plot_ours.py", workdir / "plot_direct.py"
+    out_a, out_b = workdir / "plots_a", workdir / "plots_b"
+    out_a.mkdir()
+    out_b.mkdir()
+    ours.write_text(workloads.plot_spec_script(str(out_a), str(ROOT)))
+    direct.write_text(workloads.plot_direct_script(str(out_b)))
+    # the whole command: read the sheet, evaluate it, draw its plot, write the PNG
+    a = [PY, "-m", "calc", "plot", str(sheet), "-o", str(out_a), "--force"]
+    b = [PY, str(direct)]
+    ta, tb, _, _ = paired_processes(a, b, repeats, ROOT)
+    fig = Figure("P10", "plot: `relsheet plot` of a 100,000-point line (PNG) vs a script drawing "
+                        "the same figure with matplotlib directly", 1.5)
     return _summarise(fig, ta, tb)
 
 
@@ -347,7 +362,8 @@ def compile_bytecode() -> None:
     compileall.compile_dir(str(ROOT / "calc"), quiet=1)
 
 
-FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8", "P9", "P11", "P12", "P13"]
+FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8", "P9", "P10", "P11", "P12",
+           "P13"]
 
 
 def _figure_ids(text: str) -> set[str]:
@@ -394,6 +410,8 @@ def main(argv: list[str] | None = None) -> int:
             figures.append(p12_solve(call_repeats))
         if "P13" in wanted:
             figures.append(p13_editor(call_repeats))
+        if "P10" in wanted:
+            figures.append(p10_plot(process_repeats, Path(tmp)))
     figures.sort(key=lambda f: FIGURES.index(f.id))
     if args.json:
         rows = []

@@ -284,3 +284,56 @@ w = periastron_rate(m1, m2, Pb, e)
 g = einstein_delay_amplitude(m1, m2, Pb, e)
 pbdot = orbital_decay_rate(m1, m2, Pb, e)
 """
+
+
+# ---- P10: a 100,000-point line figure ----------------------------------------------------
+
+PLOT_POINTS = 100_000
+
+
+def plot_sheet(points: int = PLOT_POINTS) -> str:
+    """The figure of P10 as a sheet: a delay curve near conjunction against the day."""
+    return (f"## Orvane b near conjunction\n"
+            f"days = axis(span(-10 d, 10 d, {points}))\n"
+            f"delay = 150 us / sqrt((days / 1 d)^2 + 0.3)\n"
+            f"plot delay vs days\n")
+
+
+def plot_spec_script(folder: str, root: str, points: int = PLOT_POINTS) -> str:
+    """The figure of P10 drawn through relsheet's writer from numpy data (the same numbers
+    the sheet of :func:`plot_sheet` gives), until the engine evaluates `plot` lines; ``root``
+    is the checkout whose `calc` is measured."""
+    return f"""\
+import sys
+sys.path.insert(0, {root!r})
+import numpy as np
+from calc.outputs.figures import PlotSpec, Series
+from calc.outputs.plot import write_plots
+
+days = np.linspace(-10, 10, {points})
+delay = 150 / np.sqrt(days ** 2 + 0.3)
+spec = PlotSpec("delay_vs_days", "Orvane b near conjunction", (Series("delay", "us", delay),),
+                (Series("days", "d", days),))
+write_plots([spec], {folder!r}, "png")
+"""
+
+
+def plot_direct_script(folder: str, points: int = PLOT_POINTS) -> str:
+    """The same figure written directly with matplotlib, as a person would: the same size,
+    resolution, labels, title and grid, saved as PNG."""
+    return f"""\
+import matplotlib
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt
+import numpy as np
+
+days = np.linspace(-10, 10, {points})
+delay = 150 / np.sqrt(days ** 2 + 0.3)
+fig, ax = plt.subplots(figsize=(8, 5), dpi=150, layout="constrained")
+ax.plot(days, delay, linewidth=1.2)
+ax.set_xlabel("days [d]")
+ax.set_ylabel("delay [us]")
+ax.set_title("Orvane b near conjunction")
+ax.grid(True, linewidth=0.4, alpha=0.5)
+fig.savefig({folder!r} + "/delay_vs_days.png", dpi=150)
+"""

@@ -65,11 +65,14 @@ def test_tex_macros(sheet):
     macros = dict(re.findall(r"\\newcommand\{(\\rs\w+)\}\{(.*)\}", text))
     # units as siunitx (v3) macros; those it lacks are declared in the file
     assert macros["\\rsMOne"] == "\\qty{1.4380 \\pm 0.0010}{\\solarmass}"
-    assert "\\DeclareSIUnit{\\solarmass}{M_\\odot}" in text
+    assert "\\DeclareSIUnit{\\solarmass}{\\ensuremath{M_{\\odot}}}" in text
     assert macros["\\rsOmegaDot"].startswith("\\qty{") and \
         macros["\\rsOmegaDot"].endswith("{\\degree\\per\\year}")
     assert macros["\\rsShare"] == "\\num{0.175}"
-    assert "% orbit_b is a record: no macro" in text
+    # a record gives one macro per field (orbit_b.a is the 1 AU written in the sheet)
+    assert "% orbit_b (orbit): one macro per field" in text
+    assert macros["\\rsOrbitBA"] == "\\qty{1}{\\astronomicalunit}"
+    assert macros["\\rsOrbitBE"] == "\\num{0.1}"
     assert all(re.fullmatch(r"\\rs[A-Za-z]+", name) for name in macros)
 
 

@@ -61,10 +61,10 @@ def build_parser() -> argparse.ArgumentParser:
     ev.add_argument("--mc", type=int, metavar="N",
                     help="Monte Carlo propagation with N samples (default: first-order)")
     ev.add_argument("--seed", type=int, metavar="S", help="seed of the Monte Carlo draws")
-    ev.add_argument("--rows", type=int, metavar="N",
-                    help="show at most N rows of each table (the first and the last ones)")
     ev.add_argument("--sigma-budget", metavar="CELL", dest="sigma_budget",
                     help="list each input's share of the uncertainty of CELL")
+    ev.add_argument("--rows", type=int, metavar="N",
+                    help="print tables as their first and last N rows (default: every row)")
     _sheet_options(ev)
     vf = commands.add_parser("verify", help="run the sheets' checks; exit 1 if any fails",
                              description="Run the `check` lines of each sheet. Prints every "
@@ -96,7 +96,26 @@ def build_parser() -> argparse.ArgumentParser:
                     help="the format")
     ex.add_argument("-o", dest="output", metavar="OUT", help="write to OUT (default: stdout)")
     ex.add_argument("--force", action="store_true", help="replace a read-only OUT too")
+    ex.add_argument("--plots", metavar="DIR",
+                    help="also draw the sheet's plots into DIR (see `relsheet plot`)")
+    ex.add_argument("--plot-format", dest="plot_format", choices=["png", "svg", "pdf"],
+                    default="png", help="the image format of --plots (default png)")
+    ex.add_argument("--tables", metavar="DIR",
+                    help="also write each table of the sheet as DIR/NAME.csv")
     _sheet_options(ex)
+
+    pl = commands.add_parser("plot", help="draw the sheet's plots into image files",
+                             description="Draw each `plot` of the sheet (or the ones named) "
+                                         "with matplotlib into DIR/NAME.png (or .svg, .pdf); "
+                                         "files are replaced atomically.")
+    pl.add_argument("file", metavar="FILE", help="the sheet (.sheet)")
+    pl.add_argument("names", metavar="NAME", nargs="*", help="only these plots")
+    pl.add_argument("-o", dest="output", metavar="DIR", default=".",
+                    help="the folder to write into (default: the current folder)")
+    pl.add_argument("--format", choices=["png", "svg", "pdf"], default="png",
+                    help="the image format (default png)")
+    pl.add_argument("--force", action="store_true", help="replace read-only files too")
+    _sheet_options(pl)
 
     dp = commands.add_parser("deps", help="show which cells a cell uses, or which use it",
                              description="Print the cells CELL depends on as a tree (all cells "
@@ -237,8 +256,8 @@ def cmd_eval(args) -> int:
         raise UsageError(f"--mc takes between 2 and 10,000,000 samples, got {args.mc}")
     if args.seed is not None and args.mc is None:
         raise UsageError("--seed goes with --mc")
-    if args.rows is not None and args.rows < 2:
-        raise UsageError(f"--rows takes at least 2 (the first and the last row), got {args.rows}")
+    if args.rows is not None and args.rows < 1:
+        raise UsageError(f"--rows takes a number of rows of 1 or more, got {args.rows}")
     sheet = Sheet.load(args.file, root=args.root)
     _apply_overrides(sheet, args.overrides)
     if args.sigma_budget is not None and args.sigma_budget not in sheet:
@@ -396,6 +415,50 @@ def cmd_export(args) -> int:
         atomic_write(args.output, text.encode("utf-8"), force=args.force)
     else:
         sys.stdout.write(text)
+    if args.tables:
+        from pathlib import Path
+
+        folder = Path(args.tables)
+        folder.mkdir(parents=True, exist_ok=True)
+        for name, table in export.table_csv_files(sheet).items():
+            atomic_write(folder / name, table.encode("utf-8"), force=args.force)
+            print(folder / name, file=sys.stderr)
+    if args.plots:
+        for path in _draw_plots(sheet, [], args.plots, args.plot_format, args.force):
+            print(path, file=sys.stderr)
+    _report(sheet.all_errors(), args.debug)
+    return _exit_code(sheet)
+
+
+def _draw_plots(sheet, names: list[str], folder: str, fmt: str, force: bool) -> list:
+    """Draw the sheet's plots (those named, or all) into ``folder``; the paths written."""
+    plots = getattr(sheet, "plots", None)
+    specs = list(plots()) if callable(plots) else []
+    if names:
+        known = {spec.name: spec for spec in specs}
+        for name in names:
+            if name not in known:
+                from ..physics.units import close_matches, did_you_mean
+
+                raise UsageError(f"the sheet has no plot `{name}`",
+                                 hint=did_you_mean(close_matches(name, list(known)))
+                                 or (f"its plots are {', '.join(known)}" if known
+                                     else "it has no `plot` lines"))
+        specs = [known[name] for name in names]
+    if not specs:
+        print(f"{sheet.source.label}: no plots to draw", file=sys.stderr)
+        return []
+    from ..outputs.plot import write_plots
+
+    return write_plots(specs, folder, fmt, force=force)
+
+
+def cmd_plot(args) -> int:
+    from ..engine.sheet import Sheet
+
+    sheet = Sheet.load(args.file, root=args.root)
+    for path in _draw_plots(sheet, args.names, args.output, args.format, args.force):
+        print(path)
     _report(sheet.all_errors(), args.debug)
     return _exit_code(sheet)
 
@@ -534,7 +597,8 @@ def cmd_lsp(args) -> int:
 
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
              "export": cmd_export, "deps": cmd_deps, "diff": cmd_diff, "watch": cmd_watch,
-             "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs, "lsp": cmd_lsp}
+             "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs, "lsp": cmd_lsp,
+             "plot": cmd_plot}
 
 
 def run() -> None:

@@ -33,6 +33,9 @@ check a == b …        judge a check now (`within 1%`, `within 2 sigma`, `<`, `
 :revert [NAME]        back to the file's definition (all overrides without NAME)
 :save [FILE]          save overrides and new cells into the sheet (atomic; other lines
                       kept; result markers brought up to date)
+:plot [NAME]          the sheet's plots, or draw one here
+:plot NAME save FILE  write it as an image (.png, .svg or .pdf; atomic)
+:table [NAME] [ROWS]  the sheet's tables, or print one (ROWS: first and last rows only)
 :funcs [NAME…]        the function list, or functions' entries
 :help                 this text;  :quit (or Ctrl-D) leave;  Ctrl-C cancels the line"""
 
@@ -275,6 +278,60 @@ class Session:
     def cmd_write(self, args) -> str:
         """The command's name before `:save`."""
         return ":write is now called :save\n" + self.cmd_save(args)
+
+    def _specs(self, kind: str) -> list:
+        """The sheet's evaluated ``plot`` or ``table`` statements (none from an engine
+        without them)."""
+        found = getattr(self.sheet, kind, None)
+        return list(found()) if callable(found) else []
+
+    def _spec(self, kind: str, name: str):
+        specs = {spec.name: spec for spec in self._specs(kind)}
+        if name not in specs:
+            from ..physics.units import close_matches, did_you_mean
+
+            what = kind[:-1]
+            raise SheetError(f"no {what} `{name}`",
+                             hint=did_you_mean(close_matches(name, list(specs)))
+                             or (f"the {kind} are {', '.join(specs)}" if specs
+                                 else f"the sheet has no `{what}` lines"))
+        return specs[name]
+
+    def cmd_plot(self, args) -> str:
+        if not args:
+            names = [spec.name for spec in self._specs("plots")]
+            return ("plots: " + ", ".join(names) + " (:plot NAME draws one)") if names \
+                else "the sheet has no `plot` lines"
+        spec = self._spec("plots", args[0])
+        if len(args) == 1:
+            import shutil
+
+            from ..outputs.plot import render_terminal
+
+            size = shutil.get_terminal_size((80, 24))
+            drawing = render_terminal(spec, max(40, size.columns - 2),
+                                      max(12, min(size.lines - 4, 30)))
+            return f"{drawing}\n(:plot {spec.name} save {spec.name}.png writes the image; " \
+                   ".svg and .pdf too)"
+        if len(args) != 3 or args[1] != "save":
+            raise SheetError(":plot takes a plot name, then optionally `save FILE`",
+                             hint=f"for example :plot {spec.name} save {spec.name}.png")
+        from ..outputs.plot import write_plot
+
+        path = write_plot(spec, Path(args[2]).expanduser())
+        return f"saved {path}"
+
+    def cmd_table(self, args) -> str:
+        if not args:
+            names = [spec.name for spec in self._specs("tables")]
+            return ("tables: " + ", ".join(names) + " (:table NAME prints one)") if names \
+                else "the sheet has no `table` lines"
+        if len(args) > 2 or (len(args) == 2 and not args[1].isdigit()):
+            raise SheetError(":table takes a table name and optionally a number of rows")
+        from ..outputs.tables import table_text
+
+        rows = int(args[1]) if len(args) == 2 else None
+        return table_text(self._spec("tables", args[0]), rows)
 
     def cmd_funcs(self, args) -> str:
         from ..physics.catalog import entries, listing

@@ -31,7 +31,7 @@ from ..engine.cells import Cell
 from ..engine.sheet import Sheet
 from ..engine.values import Shown, ShownRecord, ShownRecords, ShownValue, is_record
 from ..physics.units import unit_string
-from .format import as_shown, format_magnitude, format_quantity
+from .format import as_shown, format_magnitude, format_quantity, format_with_sigma
 
 
 def _number(x: float):
@@ -202,6 +202,11 @@ def sheet_record(sheet: Sheet, monte_carlo: dict | None = None,
         "checks": [{"line": r.line, "text": r.text, "passed": r.passed,
                     "detail": check_detail(r)} for r in sheet.checks],
     }
+    tables = _sheet_tables(sheet)
+    if tables:
+        from .tables import table_record
+
+        record["tables"] = [table_record(spec) for spec in tables]
     if monte_carlo is not None:
         record["monte_carlo"] = {"samples": samples}
     return record
@@ -262,16 +267,25 @@ def to_csv(sheet: Sheet) -> str:
     return buffer.getvalue()
 
 
+def table_csv_files(sheet: Sheet) -> dict[str, str]:
+    """One CSV per ``table`` statement of the sheet (file name → text): columns
+    `name [unit]` and `name_sigma [unit]` (see :func:`calc.outputs.tables.table_csv`). The
+    cell CSV of :func:`to_csv` keeps its four columns."""
+    from .tables import csv_file_name, table_csv
+
+    return {csv_file_name(spec): table_csv(spec) for spec in _sheet_tables(sheet)}
+
+
 # ---- Markdown ------------------------------------------------------------------------
 
 
 def _markdown_value(cell: Cell) -> tuple[str, str]:
     if cell.error is not None:
-        return f"**error:** {_markdown_text(cell.error.message)}", ""
+        return f"**error:** {markdown_text(cell.error.message)}", ""
     return format_quantity(cell.raw)
 
 
-def _markdown_text(text: str) -> str:
+def markdown_text(text: str) -> str:
     """Sheet text made safe for Markdown (and the HTML it may be rendered to): no raw HTML,
     no line breaks that would start a block of their own; Markdown emphasis stays."""
     text = "".join(" " if ch in "\r\n\v\f\x1c\x1d\x1e\x85\u2028\u2029" else ch for ch in text)
@@ -283,9 +297,9 @@ def _code_text(text: str) -> str:
     return "".join(" " if ch in "\r\n\v\f\x85\u2028\u2029" else ch for ch in text).replace("`", "'")
 
 
-def _cell_text(text: str) -> str:
+def markdown_cell_text(text: str) -> str:
     """Text safe inside a Markdown table cell."""
-    return _markdown_text(text).replace("|", "\\|")
+    return markdown_text(text).replace("|", "\\|")
 
 
 def _record_rows(name: str, value: ShownValue) -> list[tuple[str, str, str]]:
@@ -310,20 +324,34 @@ def to_markdown(sheet: Sheet) -> str:
     checks, the constant sets."""
     from ..language.syntax import Note
     from .format import check_detail
+    from .tables import table_markdown
 
-    lines = [f"# {_markdown_text(sheet.source.label)}", "",
+    pending = sorted(_sheet_tables(sheet), key=lambda spec: spec.line)
+    lines = [f"# {markdown_text(sheet.source.label)}", "",
              f"Constants: {', '.join(sheet.selection.names)}"
              + (" (with their published uncertainties)" if sheet.uncertain_constants else ""), ""]
     state = "start"   # what the last item left open: "table", "note" (a paragraph) or "start"
+
+    def tables_before(line: int | None) -> None:
+        """The sheet's tables that stand before ``line`` (all that are left without one)."""
+        nonlocal state
+        while pending and (line is None or pending[0].line < line):
+            if state != "start":
+                lines.append("")
+            lines.extend([table_markdown(pending.pop(0)), ""])
+            state = "start"
+
     for item in sheet.items:
+        if getattr(item, "source", sheet.source) is sheet.source:
+            tables_before(item.line if isinstance(item, Cell) else item.span.line)
         if isinstance(item, Note):
             if state in ("table", "note") and (item.heading or state == "table"):
                 lines.append("")
             if item.heading:
-                lines += [f"## {_markdown_text(item.text)}", ""]
+                lines += [f"## {markdown_text(item.text)}", ""]
                 state = "start"
             else:
-                lines.append(_markdown_text(item.text))   # consecutive notes: one paragraph
+                lines.append(markdown_text(item.text))   # consecutive notes: one paragraph
                 state = "note"
             continue
         if not isinstance(item, Cell):
@@ -334,20 +362,23 @@ def to_markdown(sheet: Sheet) -> str:
             lines += ["| cell | value | unit |", "|---|---|---|"]
             state = "table"
         value, unit = _markdown_value(item)
-        lines.append(f"| `{item.name}` | {_cell_text(value)} | {_cell_text(unit)} |")
+        lines.append(f"| `{item.name}` | {markdown_cell_text(value)} | {markdown_cell_text(unit)} |")
         if item.error is None and is_record(item.raw):
             for name, field_value, field_unit in _record_rows(item.name, as_shown(item.raw)):
-                lines.append(f"| `{name}` | {_cell_text(field_value)} | {_cell_text(field_unit)} |")
+                lines.append(f"| `{name}` | {markdown_cell_text(field_value)} | "
+                             f"{markdown_cell_text(field_unit)} |")
         for warning in item.warnings:
-            lines.append(f"| | *warning: {_cell_text(warning)}* | |")
+            lines.append(f"| | *warning: {markdown_cell_text(warning)}* | |")
     if state != "start":
         lines.append("")
+        state = "start"
+    tables_before(None)
     if sheet.checks:
         lines += ["## Checks", ""]
         for result in sheet.checks:
             mark = "passed" if result.passed else "**FAILED**"
             lines.append(f"- {mark} (line {result.line}): `{_code_text(result.text)}` — "
-                         f"{_markdown_text(check_detail(result))}")
+                         f"{markdown_text(check_detail(result))}")
         lines.append("")
     return "\n".join(lines)
 
@@ -431,13 +462,18 @@ _SIUNITX = {
 #: Units siunitx does not know: declared in the macro file (\DeclareSIUnit), as printed.
 _DECLARED = {
     "yr": ("year", "yr"), "century": ("century", "century"), "pc": ("parsec", "pc"),
-    "lyr": ("lightyear", "ly"), "lsec": ("lightsecond", "lt-s"), "solMass": ("solarmass", r"M_\odot"),
-    "solRad": ("solarradius", r"R_\odot"), "earthMass": ("earthmass", r"M_\oplus"),
-    "earthRad": ("earthradius", r"R_\oplus"), "jupiterMass": ("jupitermass", r"M_J"),
-    "jupiterRad": ("jupiterradius", r"R_J"), "cycle": ("cycle", "cycle"), "ppm": ("ppm", "ppm"),
+    "lyr": ("lightyear", "ly"), "lsec": ("lightsecond", "lt-s"),
+    # symbols with subscripts are math: siunitx sets units in text mode inside text
+    "solMass": ("solarmass", r"\ensuremath{M_{\odot}}"),
+    "solRad": ("solarradius", r"\ensuremath{R_{\odot}}"),
+    "solLum": ("solarluminosity", r"\ensuremath{L_{\odot}}"),
+    "earthMass": ("earthmass", r"\ensuremath{M_{\oplus}}"),
+    "earthRad": ("earthradius", r"\ensuremath{R_{\oplus}}"),
+    "jupiterMass": ("jupitermass", r"\ensuremath{M_{J}}"),
+    "jupiterRad": ("jupiterradius", r"\ensuremath{R_{J}}"),
+    "cycle": ("cycle", "cycle"), "ppm": ("ppm", "ppm"),
     "ppb": ("ppb", "ppb"), "mas": ("milliarcsecond", "mas"), "uas": ("microarcsecond", r"\micro as"),
     "Jy": ("jansky", "Jy"), "wk": ("week", "wk"), "fortnight": ("fortnight", "fortnight"),
-    "lsec ": ("lightsecond", "lt-s"),
 }
 _PREFIXES = {"Y": "yotta", "Z": "zetta", "E": "exa", "P": "peta", "T": "tera", "G": "giga",
              "M": "mega", "k": "kilo", "h": "hecto", "da": "deca", "d": "deci", "c": "centi",
@@ -459,7 +495,8 @@ def _siunitx_base(name: str, declared: dict[str, str]) -> str:
         if name.startswith(prefix) and rest and (rest in _SIUNITX or rest in _DECLARED):
             return f"\\{_PREFIXES[prefix]}" + _siunitx_base(rest, declared)
     macro = "rsunit" + "".join(c for c in macro_name(name)[3:] if c.isalpha())
-    declared[macro] = "\\text{" + "".join(c for c in name if c.isalnum()) + "}"
+    # the name as letters: siunitx sets it upright like any unit (no \\text, which needs amsmath)
+    declared[macro] = "".join(c for c in name if c.isalnum())
     return "\\" + macro
 
 
@@ -470,65 +507,173 @@ def siunitx_unit(unit, declared: dict[str, str]) -> str:
         return r"\percent"
     bases = getattr(unit, "bases", [unit])
     powers = getattr(unit, "powers", [1])
+    factors = [(base.to_string(), float(power)) for base, power in zip(bases, powers)]
+    return _siunitx_factors(factors, float(getattr(unit, "scale", 1.0)), declared)
+
+
+def _siunitx_factors(factors: list[tuple[str, float]], scale: float,
+                     declared: dict[str, str]) -> str:
+    """Unit names with their powers as siunitx macros, the positive powers first."""
     out = []
-    for base, power in sorted(zip(bases, powers), key=lambda bp: bp[1] < 0):
-        macro = _siunitx_base(base.to_string(), declared)
+    for name, power in sorted(factors, key=lambda bp: bp[1] < 0):
+        macro = _siunitx_base(name, declared)
         size = abs(power)
         if power < 0:
             macro = r"\per" + macro
         if size != 1:
-            macro += _POWERS.get(size, f"\\tothe{{{size:g}}}") if float(size).is_integer() \
+            macro += _POWERS.get(int(size), f"\\tothe{{{size:g}}}") if float(size).is_integer() \
                 else f"\\tothe{{{size:g}}}"
         out.append(macro)
-    scale = getattr(unit, "scale", 1.0)
     text = "".join(out)
     return f"{scale:g}{text}" if scale != 1 else text
 
 
+def siunitx_unit_text(text: str, declared: dict[str, str]) -> str:
+    """A unit written as the sheet language prints it (:func:`calc.physics.units.unit_text`:
+    `us`, `deg / yr`, `m^2 kg / s`, `s^-1`, `m^(1/2)`, `(1000 m)`, `%`) as siunitx macros:
+    `\\micro\\second`, `\\degree\\per\\year`. The table and plot specs carry units as this
+    text; a unit name siunitx lacks is declared as :func:`siunitx_unit` does."""
+    text = text.strip()
+    if not text:
+        return ""
+    if text == "%":
+        return r"\percent"
+    scale = 1.0
+    if text.startswith("(") and text.endswith(")"):
+        number, _, rest = text[1:-1].partition(" ")
+        try:
+            scale = float(number)
+        except ValueError:
+            rest = text[1:-1]
+        text = rest
+    factors: list[tuple[str, float]] = []
+    for index, part in enumerate(text.split(" / ")):
+        sign = -1.0 if index else 1.0
+        for factor in part.split():
+            name, _, power_text = factor.partition("^")
+            factors.append((name, sign * _power_value(power_text)))
+    return _siunitx_factors(factors, scale, declared)
+
+
+def _power_value(text: str) -> float:
+    """`2`, `-1`, `(1/2)`, `0.3333` (a power as unit_text writes it; none is 1)."""
+    text = text.strip("()")
+    if not text:
+        return 1.0
+    top, slash, bottom = text.partition("/")
+    try:
+        return float(top) / float(bottom) if slash else float(top)
+    except (ValueError, ZeroDivisionError):
+        return 1.0
+
+
 def _tex_number(s: Shown) -> str:
     """A value (± σ) in siunitx's input form: `1.4380 \\pm 0.0010 e30`."""
-    if s.sigma is None:
-        return format_magnitude(s.value, 6)
-    text = format_quantity(s)[0].replace("%", "")
+    return tex_number(s.value, s.sigma)
+
+
+def tex_number(value: float, sigma: float | None = None) -> str:
+    """A number (± σ, GUM rounding as in text) in siunitx's input form: `4.2266`,
+    `1.4380 \\pm 0.0010 e30`. Built from the number alone, never from a unit's printed form
+    (a percentage would bring its `× 1%` along)."""
+    if sigma is None:
+        return format_magnitude(value, 6)
+    text = format_with_sigma(value, sigma)
     if " × 1e" in text:
         text, exponent = text.split(" × 1e")
         return text.strip("()").replace(" ± ", r" \pm ") + f" e{exponent}"
     return text.replace(" ± ", r" \pm ")
 
 
-def _tex_comment(text: str) -> str:
+def tex_comment(text: str) -> str:
     """Text safe on a LaTeX comment line (no line break can end the comment)."""
     return "".join(" " if not ch.isprintable() else ch for ch in text)
 
 
+def _tex_leaves(path: str, value: ShownValue):
+    """(name, shown) of every field of a record, nested records and record lists too:
+    `budget.gr`, `orbits[0].a`."""
+    if isinstance(value, ShownRecords):
+        for index, record in enumerate(value.items):
+            yield from _tex_leaves(f"{path}[{index}]", record)
+    elif isinstance(value, ShownRecord):
+        for field, item in value.fields.items():
+            yield from _tex_leaves(f"{path}.{field}", item)
+    else:
+        yield path, value
+
+
+def _tex_macro(s: Shown, declared: dict[str, str]) -> str:
+    number = _tex_number(s)
+    unit = siunitx_unit(s.unit, declared) if s.unit != u.dimensionless_unscaled else ""
+    return f"\\qty{{{number}}}{{{unit}}}" if unit else f"\\num{{{number}}}"
+
+
 def to_tex(sheet: Sheet) -> str:
     """One ``\\newcommand`` per cell: ``\\qty{value}{unit}`` (siunitx, units as its macros),
-    ``\\num`` when dimensionless, ``\\pm`` for uncertainties; arrays and records are left out
-    with a comment. Two cells with the same macro name are an error naming both."""
+    ``\\num`` when dimensionless, ``\\pm`` for uncertainties; a record gives one macro per
+    field (`budget.gr` → ``\\rsBudgetGr``); arrays are left out with a comment; each table
+    of the sheet is a ``tabular`` in a macro of its own (`conjunction` →
+    ``\\rsConjunctionTable``). Two names with the same macro name are an error naming both."""
     from ..errors import SheetError
 
     seen: dict[str, str] = {}
     declared: dict[str, str] = {}
     body: list[str] = []
+
+    for cell in sheet.cells:   # cells first: a record's field never takes a cell's macro
+        macro = macro_name(cell.name)
+        if macro in seen:
+            raise SheetError(f"cells `{seen[macro]}` and `{cell.name}` would both be the LaTeX "
+                             f"macro {macro}", cell.definition.name_span,
+                             hint="rename one of them", source=cell.source)
+        seen[macro] = cell.name
     for cell in sheet.cells:
         name = macro_name(cell.name)
-        if name in seen:
-            raise SheetError(f"cells `{seen[name]}` and `{cell.name}` would both be the LaTeX "
-                             f"macro {name}", cell.definition.name_span,
-                             hint="rename one of them", source=cell.source)
-        seen[name] = cell.name
         s = as_shown(cell.raw) if cell.raw is not None else None
-        if not isinstance(s, Shown) or np.ndim(s.value) != 0:
-            what = "failed" if s is None else "is an array" if isinstance(s, Shown) \
-                else "is a record"
-            body.append(f"% {_tex_comment(cell.name)} {what}: no macro")
+        if isinstance(s, (ShownRecord, ShownRecords)):
+            body.append(f"% {tex_comment(cell.name)} {tex_comment(s.summary())}: "
+                        "one macro per field")
+            for path, leaf in _tex_leaves(cell.name, s):
+                name = macro_name(path)
+                if name in seen:
+                    body.append(f"% {tex_comment(path)} would be {name} like "
+                                f"{tex_comment(seen[name])}: no macro")
+                elif isinstance(leaf, Shown) and np.ndim(leaf.value) == 0:
+                    seen[name] = path
+                    body.append(f"\\newcommand{{{name}}}{{{_tex_macro(leaf, declared)}}}")
+                else:
+                    body.append(f"% {tex_comment(path)} is an array: no macro")
             continue
-        number = _tex_number(s)
-        unit = siunitx_unit(s.unit, declared) if s.unit != u.dimensionless_unscaled else ""
-        command = f"\\qty{{{number}}}{{{unit}}}" if unit else f"\\num{{{number}}}"
-        body.append(f"\\newcommand{{{name}}}{{{command}}}")
-    lines = [f"% relsheet: {_tex_comment(sheet.source.label)} "
+        if not isinstance(s, Shown) or np.ndim(s.value) != 0:
+            what = "failed" if s is None else "is an array"
+            body.append(f"% {tex_comment(cell.name)} {what}: no macro")
+            continue
+        body.append(f"\\newcommand{{{name}}}{{{_tex_macro(s, declared)}}}")
+    for spec in _sheet_tables(sheet):
+        from .tables import table_latex
+
+        macro = macro_name(f"{spec.name}_table")
+        if macro in seen:
+            from ..errors import Span
+
+            where = Span(spec.line, 1, spec.line, 1) if spec.line else None
+            raise SheetError(f"`{seen[macro]}` and table `{spec.name}` would both be the LaTeX "
+                             f"macro {macro}", where, hint="rename one of them",
+                             source=sheet.source)
+        seen[macro] = f"table {spec.name}"
+        body.append(f"% table {tex_comment(spec.name)}"
+                    + (f": {tex_comment(spec.heading)}" if spec.heading else ""))
+        body.append(f"\\newcommand{{{macro}}}{{%\n{table_latex(spec, declared)}}}")
+    lines = [f"% relsheet: {tex_comment(sheet.source.label)} "
              f"(constants {', '.join(sheet.selection.names)})",
              "% needs \\usepackage{siunitx} (version 3)"]
     lines += [f"\\DeclareSIUnit{{\\{macro}}}{{{text}}}" for macro, text in sorted(declared.items())]
     return "\n".join(lines + body) + "\n"
+
+
+def _sheet_tables(sheet) -> list:
+    """The sheet's evaluated ``table`` statements (TableSpec), or none from an engine that
+    has no tables yet."""
+    tables = getattr(sheet, "tables", None)
+    return list(tables()) if callable(tables) else []
