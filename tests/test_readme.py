@@ -43,3 +43,18 @@ def test_readme_has_the_caution():
     text = (ROOT / "README.md").read_text(encoding="utf-8")
     caution = text.split("## Caution", 1)[1]
     assert "IERS Conventions" in caution and "IAU" in caution and "engineering authority" in caution
+
+
+def test_readme_figures_exist_and_are_current():
+    # the README embeds figures drawn from the demo sheets; sheets_demo/figures.py --check
+    # (run by CI) says whether the numbers behind them changed since they were drawn
+    import subprocess
+    import sys
+
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    for name in ("delay_vs_days", "doppler_vs_days"):
+        assert f"](sheets_demo/figures/{name}.png)" in text
+        assert (ROOT / "sheets_demo" / "figures" / f"{name}.png").stat().st_size > 10_000
+    done = subprocess.run([sys.executable, str(ROOT / "sheets_demo" / "figures.py"), "--check"],
+                          capture_output=True, text=True, cwd=ROOT)
+    assert done.returncode == 0, done.stdout + done.stderr
