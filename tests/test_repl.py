@@ -148,3 +148,25 @@ def test_save_ppn_lines(tmp_path):
     assert path.read_text() == ("ppn beta = 0.9\na = periapsis_advance(1 Msun, 1 AU, 0.1)\n"
                                 "ppn gamma = 1.1\n")
     assert Sheet.load(path).ok
+
+
+def test_functions_solves_and_correlations_typed_at_the_prompt_are_saved(tmp_path):
+    from calc.interfaces.completion import SheetCompleter
+    from calc.interfaces.repl import Session
+
+    path = tmp_path / "s.sheet"
+    path.write_text("a = 4\nx = 1\nm = 2 ± 0.1 km\nn = 3 ± 0.2 km\ny = 1 km\n")
+    session = Session(path)
+    assert session.handle("twice(v) = v * 2").startswith("added")
+    assert session.handle("twice(3)") == "6"
+    assert session.handle("solve x^2 == a for x") == "x: 2"
+    session.handle("solve y == m + n for y")
+    session.handle("correlation m, n = 0.5")
+    # JCGM 100:2008 eq. 13: σ(m + n) = √(0.1² + 0.2² + 2·0.5·0.1·0.2) = 0.2646 km
+    assert session.handle("y") == "5.00 ± 0.26 km"
+    assert "no equation depends on `x`" in session.handle("solve a == 3 for x")
+    assert ("twice", "twice(v) — the sheet's function") in SheetCompleter(session).candidates("tw")
+    session.handle(":save")
+    saved = path.read_text()
+    assert saved.endswith("twice(v) = v * 2\nsolve x^2 == a for x\nsolve y == m + n for y\n"
+                          "correlation m, n = 0.5\n")

@@ -402,6 +402,61 @@ class Sheet:
             failed = {n for n, c in self._cells.cells.items() if c.error is not None}
             return run_check(program, self._cells.values, failed)
 
+    def add_statement(self, text: str, label: str = "<statement>") -> list[Cell]:
+        """Add a function (`f(x) = …`), a `solve` or a `correlation` line typed at a prompt,
+        as if it stood at the end of the file; returns the cells that changed. Raises
+        SheetError for a line that does not parse or that the sheet refuses."""
+        from ..language.parse import parse_function_line, parse_prompt_line
+        from ..language.syntax import CorrelationDef, FunctionDef, SolveDef
+        from .build import function_errors
+
+        source = Source(label, text)
+        with numeric_context(), entered(self.context):
+            statement = parse_function_line(text, source) or parse_prompt_line(text, source)
+            cells = self._cells
+            if isinstance(statement, FunctionDef):
+                trial = Built(cells=self.cells, functions={statement.name: statement})
+                refused = function_errors(trial, source)
+                if refused:
+                    raise refused[0]
+                self.functions[statement.name] = statement
+                forced = set(cells.seeing(statement.name))
+                for name in forced:
+                    cells.recompile(name)
+                forced |= cells.reorder()
+                changed = cells.propagate(forced)
+            elif isinstance(statement, SolveDef):
+                from .solve import compile_solve, plan
+
+                program = compile_solve(statement, cells, source)
+                plan(program, cells)
+                if program.error is not None:
+                    raise program.error
+                cells.solves.append(program)
+                changed = cells.resolve()
+                failed = [cells.solved.get(n) for n in program.unknowns
+                          if isinstance(cells.solved.get(n), SheetError)]
+                if failed:
+                    cells.solves.remove(program)
+                    for n in program.unknowns:
+                        cells.solved.pop(n, None)
+                    cells.propagate(set(program.unknowns))
+                    raise failed[0]  # type: ignore[misc]
+            elif isinstance(statement, CorrelationDef):
+                cells.correlations.append(statement)
+                cells.correlate(source)
+                if cells.correlation_errors:
+                    cells.correlations.remove(statement)
+                    error = cells.correlation_errors[-1]
+                    cells.correlate(self.source)
+                    raise error
+                changed = []
+            else:
+                raise UnitError("not a function, `solve` or `correlation` line",
+                                Span(1, 1, 1, len(text) + 1), source=source)
+            cells.run_checks()
+            return changed
+
     def file_definition(self, name: str) -> CellDef | None:
         """The definition cell ``name`` has in the file (None for a cell added since)."""
         return self._cells.original.get(name)

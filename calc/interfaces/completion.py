@@ -12,7 +12,7 @@ from ..physics import functions
 from ..physics.constants import constant_table
 
 _WORD = re.compile(r"[\w.]*$")
-_COMMANDS = ["cells", "deps", "users", "revert", "save", "funcs", "help", "quit"]
+_COMMANDS = ["cells", "deps", "users", "revert", "save", "plot", "table", "funcs", "help", "quit"]
 #: At most this many unit names are offered for one prefix (astropy knows thousands).
 MAX_UNITS = 40
 
@@ -62,6 +62,10 @@ class SheetCompleter(Completer):
         sheet = self.session.sheet
         if stripped.startswith((":deps", ":users", ":revert")):
             return [(n, "cell") for n in sheet.names() if n.startswith(word)]
+        if stripped.startswith((":plot", ":table")):
+            kind = "plots" if stripped.startswith(":plot") else "tables"
+            specs = getattr(sheet, kind)()
+            return [(spec.name, kind[:-1]) for spec in specs if spec.name.startswith(word)]
         if stripped.startswith(":funcs"):
             return [(f.name, f.summary) for f in functions.all_functions() if f.name.startswith(word)]
         if "." in word:
@@ -84,6 +88,8 @@ class SheetCompleter(Completer):
         offered: list[tuple[str, str]] = []
         offered += [(n, "cell") for n in sheet.names() if n.startswith(word)]
         offered += [(n, "imported sheet") for n in sheet.namespaces if n.startswith(word)]
+        offered += [(name, f"{name}({', '.join(p for p, _ in f.params)}) — the sheet's function")
+                    for name, f in sheet.functions.items() if name.startswith(word)]
         offered += [(f.name, f"{f.name}{f.display_signature()} — {f.summary}")
                   for f in functions.all_functions() if f.name.startswith(word)]
         table = constant_table(sheet.selection)

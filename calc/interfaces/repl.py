@@ -57,6 +57,8 @@ class Session:
         self.path = Path(path) if path is not None else None
         self.sheet = Sheet.load(path) if path is not None else Sheet.from_text("", "<repl>")
         self.assigned: dict[str, str] = {}   # cell → the text typed for it, for :save
+        #: functions, `solve` and `correlation` lines typed, for :save (after the cells)
+        self.statements: list[str] = []
         self.counter = 0
         self.done = False
         #: show Python tracebacks of internal errors (`relsheet --debug repl`)
@@ -87,11 +89,19 @@ class Session:
             return self.command(text[1:].split())
         self.counter += 1
         label = f"<input {self.counter}>"
-        from ..language.parse import parse_prompt_line
+        from ..language.parse import parse_function_line, parse_prompt_line
         from ..language.scope import PPN_PARAMETERS
-        from ..language.syntax import CellDef, CheckDef, PPNDef
+        from ..language.syntax import CellDef, CheckDef, CorrelationDef, PPNDef, SolveDef
 
-        parsed = parse_prompt_line(text, Source(label, text))
+        parsed = parse_function_line(text, Source(label, text)) or \
+            parse_prompt_line(text, Source(label, text))
+        if isinstance(parsed, (SolveDef, CorrelationDef)) or type(parsed).__name__ == "FunctionDef":
+            changed = self.sheet.add_statement(text, label)
+            self.statements.append(text)
+            from ..outputs.format import cell_text
+
+            moved = [f"{c.name}: {cell_text(c)}" for c in changed]
+            return "\n".join(moved) if moved else "added (:save writes it into the sheet)"
         if isinstance(parsed, PPNDef):
             if parsed.parameter not in PPN_PARAMETERS:
                 return (f"unknown PPN parameter `{parsed.parameter}`: relsheet knows "
@@ -249,7 +259,7 @@ class Session:
             raise SheetError(":save needs a file name: this session has no sheet file")
         mine = {n: e for n, e in self.assigned.items() if n in self.sheet}
         others = [n for n in self.assigned if n not in mine]
-        text = written_text(self.sheet, mine)
+        text = written_text(self.sheet, mine, self.statements)
         from ..files import atomic_write
 
         expected = None
@@ -264,7 +274,8 @@ class Session:
         else:
             text_bytes = text.encode("utf-8")
         atomic_write(target, text_bytes, expected=expected)
-        count = len(mine)
+        count = len(mine) + len(self.statements)
+        self.statements = []
         if self.path is None or target.resolve() == self.path.resolve():
             self.path = target
             self.sheet = Sheet.load(target)
@@ -353,7 +364,8 @@ def _original_bytes(path: Path) -> bytes | None:
         return None
 
 
-def written_text(sheet: Sheet, assigned: dict[str, str]) -> str:
+def written_text(sheet: Sheet, assigned: dict[str, str], statements: list[str] | None = None
+                 ) -> str:
     """The sheet's file text with the typed definitions in place of the file's, new cells after
     the last cell (before checks that follow it), and, when the file carries result markers,
     every marker brought up to date; every other byte stays."""
@@ -386,6 +398,7 @@ def written_text(sheet: Sheet, assigned: dict[str, str]) -> str:
             edits.append((begin, end, statement))
     for begin, end, replacement in sorted(edits, reverse=True):
         text = text[:begin] + replacement + text[end:]
+    appended += list(statements or ())
     if appended:
         text = _insert_after_cells(sheet, text, appended)
     if any(marker_at(line) >= 0 for line in split_lines(sheet.source.text)):
