@@ -621,7 +621,16 @@ def all_finite(value) -> bool:
     if kind is Uncertain:
         value = value.nominal
     v = value.value
-    return math.isfinite(v) if np.ndim(v) == 0 else bool(np.isfinite(v).all())
+    if np.ndim(v) == 0:
+        return math.isfinite(v)
+    if v.size > 4096 and v.dtype.kind == "f":
+        # a sum is finite only if every element is (a finite sum can overflow, never the
+        # reverse): one pass without a temporary array of truths; an overflowed sum is
+        # looked at element by element
+        with np.errstate(all="ignore"):
+            if math.isfinite(float(np.add.reduce(v, axis=None))):
+                return True
+    return bool(np.isfinite(v).all())
 
 
 # ---- how values are shown ---------------------------------------------------------------
