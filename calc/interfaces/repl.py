@@ -47,7 +47,8 @@ def _shown(sheet: Sheet, name: str) -> str:
     namespace, _, inner = name.partition(".")
     if name not in sheet and inner and namespace in sheet.namespaces:
         return _shown(sheet.namespaces[namespace], inner)
-    return cell_text(sheet.cell(name))
+    text = cell_text(sheet.cell(name))
+    return f"{text}  (solved)" if sheet.solved(name) else text
 
 
 class Session:

@@ -362,6 +362,8 @@ def to_markdown(sheet: Sheet) -> str:
             lines += ["| cell | value | unit |", "|---|---|---|"]
             state = "table"
         value, unit = _markdown_value(item)
+        if sheet.solved(item.name):
+            unit = f"{unit} (solved)".strip()
         lines.append(f"| `{item.name}` | {markdown_cell_text(value)} | {markdown_cell_text(unit)} |")
         if item.error is None and is_record(item.raw):
             for name, field_value, field_unit in _record_rows(item.name, as_shown(item.raw)):
