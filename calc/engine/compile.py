@@ -48,6 +48,7 @@ from ..language.syntax import (
     PercentUnit,
     PlusMinus,
     Power,
+    Text,
     UnaryOp,
     UnitProduct,
 )
@@ -63,6 +64,7 @@ from ..physics.units import (
     value_in,
 )
 from .context import context
+from .datafiles import read_table_call
 from .run import (
     ADD,
     DIV,
@@ -491,6 +493,9 @@ class _Compiler:
             exponent = self.expr(node.exponent, depth + 1)
             return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
                                     POW, base, exponent)
+        if kind is Text:
+            raise NameResolutionError("quoted text is a file name, which only read_table takes",
+                                      node.span, hint='for example read_table("passes.ecsv")')
         raise NameResolutionError("this is not a value", node.span)
 
     def chain(self, node: Chain, depth: int) -> tuple[Code, bool]:
@@ -600,6 +605,10 @@ class _Compiler:
         return self.expr(node, depth), False
 
     def call(self, node: Call, depth: int) -> Code:
+        if node.function == "read_table":   # a data file: calc/engine/datafiles.py
+            self.looked_up.add(node.function)
+            return Const(read_table_call(node.function_span, node.args, node.keywords,
+                                         node.span, self.source.folder, context().root))
         spec = functions.lookup(node.function)
         self.looked_up.add(node.function)
         if spec is None:

@@ -94,6 +94,7 @@ class Sheet:
         self.imports = imports
         self.chain = chain or ((here,) if here is not None else ())
         self.context = EvaluationContext()
+        self.context.root = imports.root
         with numeric_context():
             try:
                 self._build(constants)

@@ -43,6 +43,7 @@ from .syntax import (
     Power,
     PPNDef,
     Statement,
+    Text,
     UnaryOp,
     UnitProduct,
     UseDef,
@@ -79,6 +80,10 @@ def _name_power(n: NamePower):
 
 def _dotted(n: Dotted):
     return ["d", list(n.parts), *n.span], ()
+
+
+def _text(n: Text):
+    return ["s", n.value, *n.span], ()
 
 
 def _keyword(n: Keyword):
@@ -167,7 +172,7 @@ _ENCODERS: dict[type, Callable[[Any], tuple[list, tuple]]] = {
     UnitProduct: _unit_product, PercentUnit: _percent_unit, BinaryOp: _binary,
     UnaryOp: _unary, PlusMinus: _plus_minus, Power: _power, CellDef: _cell,
     ConstantsDef: _constants, PPNDef: _ppn, Override: _override, UseDef: _use,
-    CheckDef: _check, Note: _note,
+    CheckDef: _check, Note: _note, Text: _text,
 }
 
 
@@ -233,6 +238,10 @@ def _d_name_power(r, s):
 
 def _d_dotted(r, s):
     return Dotted(tuple(r[1]), _new(Span, r[2:6]))
+
+
+def _d_text(r, s):
+    return Text(r[1], _new(Span, r[2:6]))
 
 
 def _d_keyword(r, s):
@@ -325,7 +334,7 @@ _DECODERS: dict[str, Callable[[list, list], Any]] = {
     "k": _d_keyword, "c": _d_call, "g": _d_group, "r": _d_array, "h": _d_chain,
     "u": _d_unit_product, "%": _d_percent_unit, "b": _d_binary, "m": _d_unary,
     "pm": _d_plus_minus, "^": _d_power, "C": _d_cell, "K": _d_constants, "P": _d_ppn,
-    "O": _d_override, "U": _d_use, "Q": _d_check, "T": _d_note,
+    "O": _d_override, "U": _d_use, "Q": _d_check, "T": _d_note, "s": _d_text,
 }
 
 

@@ -280,9 +280,22 @@ class Power(_Node):
         self.span = span
 
 
+class Text(_Node):
+    """``"passes.ecsv"``: quoted text, written only as a call's argument (a file name)."""
+
+    __slots__ = ("value", "span")
+
+    value: str
+    span: Span
+
+    def __init__(self, value: str, span: Span) -> None:
+        self.value = value
+        self.span = span
+
+
 Expr = Union[
     Number, Percent, Name, NamePower, Dotted, Call, Group, ArrayLiteral, Chain,
-    UnitProduct, PercentUnit, BinaryOp, UnaryOp, Power, PlusMinus,
+    UnitProduct, PercentUnit, BinaryOp, UnaryOp, Power, PlusMinus, Text,
 ]
 
 # ---- statements ---------------------------------------------------------------
@@ -605,6 +618,10 @@ class NodeBuilder:
     def keyword_argument(self, children):
         tok, value = children
         return Keyword(tok.value, value, token_span(tok).to(value.span))
+
+    def text(self, children):
+        (tok,) = children
+        return Text(tok.value[1:-1], token_span(tok))
 
     # -- operators
     def _binary(self, op: str, children):
