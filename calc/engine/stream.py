@@ -23,12 +23,14 @@ import numpy as np
 
 from ..errors import SheetError
 from ..language.syntax import Dotted, Name
+from ..physics.records import Record
 from ..physics.units import conversion_scale, describe
 from .cells import Cells
 from .checks import run_check
 from .context import EvaluationContext, entered
 from .datafiles import on_table_axis
 from .run import Env, run_cell
+from .uncertain import Uncertain
 from .values import is_record, nominal, sigma
 
 #: failing runs of rows this short are evaluated row by row instead of halved again
@@ -190,14 +192,14 @@ class ChunkEvaluator:
             if judged.passed:
                 continue
             tally.failed_chunks = 1
-            # name the first failing rows: halve the run while a half fails
+            # name the first failing rows: halve the run while a half fails (judging the
+            # check again on slices of the values already computed)
             todo = [(start, stop)]
             while todo and len(tally.rows) < KEPT_ERRORS:
                 lo, hi = todo.pop()
-                try:
-                    part = run_check(program, self._evaluate(_rows(columns, lo, hi, 0, 0)),
-                                     set())
-                except SheetError:
+                part = run_check(program, _sliced(env, lo - start, hi - start, stop - start),
+                                 set())
+                if part.error is not None:
                     continue
                 if part.passed:
                     continue
@@ -213,6 +215,27 @@ def _rows(columns: dict[str, u.Quantity], lo: int, hi: int, start: int, stop: in
     if lo == start and hi == stop:
         return columns
     return {k: v[lo:hi] for k, v in columns.items()}
+
+
+def _sliced(env: Env, lo: int, hi: int, rows: int) -> Env:
+    """The values of an evaluation over ``rows`` rows, cut to rows lo:hi (values that are
+    not one a row stay whole)."""
+    def cut(value):
+        if isinstance(value, u.Quantity):
+            return value[lo:hi] if value.shape == (rows,) else value
+        if isinstance(value, Uncertain):
+            if value.nominal.shape != (rows,):
+                return value
+            return Uncertain(value.nominal[lo:hi], {
+                k: p[lo:hi] if np.shape(p) == (rows,) else p for k, p in value.parts.items()},
+                None if value.noise is None else {
+                    k: p[lo:hi] if np.shape(p) == (rows,) else p
+                    for k, p in value.noise.items()})
+        if isinstance(value, Record):
+            return Record(value.kind, {k: cut(v) for k, v in value.fields.items()}, value.label)
+        return value
+
+    return {name: cut(value) for name, value in env.items()}
 
 
 def _per_row(values, rows: int, name: str) -> np.ndarray:

@@ -463,26 +463,27 @@ def run_local(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator,
 
 
 @lru_cache(maxsize=8)
-def _worker_evaluator(spec: MapSpec, thread: int) -> ChunkEvaluator:
-    """A worker's compiled sheet, made once per worker thread (a sheet's evaluation context
-    is not shared between threads)."""
+def _worker_evaluator(spec: MapSpec) -> tuple[ChunkEvaluator, Any]:
+    """A worker's compiled sheet, made once per worker process, with a lock: a sheet's
+    evaluation context is not shared by two threads at once (workers of a local cluster
+    without processes are threads of one process)."""
+    import threading
+
     sheet = load_sheet(spec.sheet, spec.root)
-    return sheet.chunk_evaluator(spec.table, list(spec.cells))
+    return sheet.chunk_evaluator(spec.table, list(spec.cells)), threading.Lock()
 
 
 def map_partition(frame, spec: MapSpec, folder: str, index: int) -> Summary:
     """One dask partition (a pandas DataFrame of the input's columns): evaluated in chunks
     of ``spec.chunk`` rows and written as ``part.INDEX.parquet`` in ``folder``; returns its
     summary (rows counted from the partition's start)."""
-    import threading
-
     import pyarrow.parquet as pq
 
-    evaluator = _worker_evaluator(spec, threading.get_ident())
+    evaluator, lock = _worker_evaluator(spec)
     schema = output_schema(spec, evaluator)
     summary = Summary()
     path = Path(folder) / f"part.{index:05d}.parquet"
-    with pq.ParquetWriter(path, schema) as writer:
+    with lock, pq.ParquetWriter(path, schema) as writer:
         rows = len(frame)
         for start in range(0, max(rows, 1), spec.chunk):
             stop = min(start + spec.chunk, rows)
@@ -513,7 +514,7 @@ def run_dask(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator, outp
     try:
         if scheduler is None:
             cluster = LocalCluster(n_workers=2, threads_per_worker=1,
-                                   processes=local_processes, dashboard_address=None)
+                                   processes=local_processes, dashboard_address=":0")
             client = Client(cluster)
         else:
             client = Client(scheduler)
