@@ -174,7 +174,11 @@ def read_astropy(path: Path, label: str, kind: str) -> dict[str, u.Quantity]:
 
 
 def read_parquet(path: Path, label: str) -> dict[str, u.Quantity]:
-    import pyarrow.parquet as pq
+    try:
+        import pyarrow.parquet as pq
+    except ImportError:
+        raise InputError(f"{label}: reading Parquet needs pyarrow",
+                         hint="pip install 'relsheet[tables]'") from None
 
     try:
         table = pq.read_table(path)

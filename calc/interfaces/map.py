@@ -109,6 +109,13 @@ class TableStream:
     def __init__(self, path: Path, label: str) -> None:
         self.path = path
         self.label = label
+        try:
+            import pyarrow  # noqa: F401 - every input is read through it
+        except ImportError:
+            raise UsageError("relsheet map needs pyarrow",
+                             hint="pip install 'relsheet[tables]'") from None
+        if not path.exists():
+            raise InputError(f"no such table: {label}")
         kind = "parquet" if path.is_dir() else table_format(path)
         if kind not in STREAMED:
             raise InputError(f"{label}: relsheet map streams Parquet, ECSV, FITS and CSV tables",
