@@ -332,6 +332,52 @@ def p10_plot(repeats: int, workdir: Path) -> Figure:
     fig = Figure("P10", "plot: `relsheet plot` of a 100,000-point line (PNG) vs a script drawing "
                         "the same figure with matplotlib directly", 1.5)
     return _summarise(fig, ta, tb)
+def p14_map(repeats: int, workdir: Path, quick: bool) -> list[Figure]:
+    """`relsheet map` over 10^7 rows (10^6 with --quick) vs pyarrow + numpy by hand; its
+    peak memory at 10^6 and 10^7 rows; the dask engine on a 2-worker local cluster."""
+    folder = workdir / "map"
+    folder.mkdir()
+    (folder / "sample.csv").write_text(workloads.MAP_SAMPLE)
+    (folder / "s.sheet").write_text(workloads.MAP_SHEET)
+    chunk = 100_000
+    sizes = [1_000_000] if quick else [1_000_000, 10_000_000]
+    for rows in sizes:
+        workloads.write_map_input(folder / f"in{rows}.parquet", rows)
+
+    def relsheet(rows: int, engine: str = "local") -> list[str]:
+        out = folder / (f"out{rows}.parquet" if engine == "local" else f"out{rows}_dask")
+        return [PY, "-m", "calc", "map", str(folder / "s.sheet"), "--table",
+                f"rows={folder / f'in{rows}.parquet'}", "--cells", workloads.MAP_CELLS, "-o",
+                str(out), "--chunk", str(chunk), "--force", "--engine", engine]
+
+    def baseline(rows: int) -> list[str]:
+        script = folder / f"baseline{rows}.py"
+        script.write_text(workloads.map_script(str(folder / f"in{rows}.parquet"),
+                                               str(folder / f"base{rows}.parquet"), chunk))
+        return [PY, str(script)]
+
+    top = sizes[-1]
+    label = f"{top // 1_000_000}×10^6" if top > 1_000_000 else "10^6"
+    ta, tb, ma, mb = paired_processes(relsheet(top), baseline(top), repeats, ROOT)
+    speed = _summarise(Figure("P14", f"map: {label} rows through a four-cell sheet "
+                                     "(`relsheet map`, local) vs pyarrow + numpy by hand", 1.3),
+                       ta, tb)
+    memory = _summarise(Figure("P14m", "map: peak RSS of P14 vs its baseline", 1.5, unit="KiB"),
+                        [float(x) for x in ma], [float(x) for x in mb])
+    figures = [speed, memory]
+    if not quick:
+        small = [run_process(relsheet(1_000_000), ROOT)[1] for _ in range(max(1, repeats // 3))]
+        large = [run_process(relsheet(10_000_000), ROOT)[1] for _ in range(max(1, repeats // 3))]
+        growth = _summarise(Figure("P14g", "map: peak RSS at 10^7 rows vs at 10^6 (constant "
+                                           "memory: ~1)", 1.1, unit="KiB"),
+                            [float(x) for x in large], [float(x) for x in small])
+        figures.append(growth)
+    n = 1 if quick else max(2, repeats // 4)
+    ta, tb, _, _ = paired_processes(relsheet(top, "dask"), relsheet(top), n, ROOT)
+    figures.append(_summarise(Figure("P14d", "map --engine dask (local cluster, 2 workers, "
+                                             "start-up included) vs the local engine", 2.0),
+                              ta, tb))
+    return figures
 
 
 # ---- output -------------------------------------------------------------------
@@ -363,7 +409,7 @@ def compile_bytecode() -> None:
 
 
 FIGURES = ["P1", "P2", "P3", "P4", "P5", "P6", "P7", "P7b", "P8", "P9", "P10", "P11", "P12",
-           "P13"]
+           "P13", "P14", "P14m", "P14g", "P14d"]
 
 
 def _figure_ids(text: str) -> set[str]:
@@ -380,8 +426,8 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--quick", action="store_true", help="few repetitions (smoke check)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
     parser.add_argument("--only", metavar="IDS", type=_figure_ids,
-                        help="comma-separated figures to run (P1,…,P13; P2 gives P5 too, "
-                             "P7 gives P7b too)")
+                        help="comma-separated figures to run (P1,…,P14; P2 gives P5 too, "
+                             "P7 gives P7b too, P14 gives P14m, P14g and P14d)")
     args = parser.parse_args(argv)
     process_repeats, call_repeats = (3, 5) if args.quick else (11, 21)
     wanted = args.only or set(FIGURES)
@@ -412,6 +458,8 @@ def main(argv: list[str] | None = None) -> int:
             figures.append(p13_editor(call_repeats))
         if "P10" in wanted:
             figures.append(p10_plot(process_repeats, Path(tmp)))
+        if wanted & {"P14", "P14m", "P14g", "P14d"}:
+            figures += p14_map(process_repeats, Path(tmp), args.quick)
     figures.sort(key=lambda f: FIGURES.index(f.id))
     if args.json:
         rows = []

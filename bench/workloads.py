@@ -337,3 +337,55 @@ ax.set_title("Orvane b near conjunction")
 ax.grid(True, linewidth=0.4, alpha=0.5)
 fig.savefig({folder!r} + "/delay_vs_days.png", dpi=150)
 """
+
+
+# ---- P14: a sheet over a streamed table ----------------------------------------------------
+
+MAP_SAMPLE = "x [AU],y [km / s]\n1.0,30.0\n2.0,20.0\n"
+
+#: four cells over the table's rows (the table cell itself aside)
+MAP_SHEET = """\
+rows = read_table("sample.csv")
+r = rows.x * 1.5
+v = rows.y / 3 in m / s
+e = v^2 / 2 - 1.327e20 m^3 s^-2 / r in J / kg
+t = r / v in d
+"""
+
+MAP_CELLS = "e,t"
+
+
+def write_map_input(path, rows: int) -> None:
+    """``rows`` rows of (x in AU, y in km/s), a million at a time."""
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    rng = np.random.default_rng(14)
+    schema = pa.schema([("x [AU]", pa.float64()), ("y [km / s]", pa.float64())])
+    with pq.ParquetWriter(path, schema) as writer:
+        for start in range(0, rows, 1_000_000):
+            n = min(1_000_000, rows - start)
+            writer.write_table(pa.table({"x [AU]": rng.uniform(0.5, 5, n),
+                                         "y [km / s]": rng.uniform(5, 50, n)}, schema=schema),
+                               row_group_size=100_000)
+
+
+def map_script(source: str, output: str, chunk: int) -> str:
+    """The baseline of P14: the same arithmetic as MAP_SHEET, by hand, with pyarrow + numpy
+    (units converted by hand: AU in m, km/s in m/s, days in s)."""
+    return f"""\
+import numpy as np, pyarrow as pa, pyarrow.parquet as pq
+AU, DAY = 149_597_870_700.0, 86400.0
+schema = pa.schema([pa.field("e", pa.float64(), metadata={{b"unit": b"J / kg"}}),
+                    pa.field("t", pa.float64(), metadata={{b"unit": b"d"}})])
+with pq.ParquetWriter({output!r}, schema) as writer:
+    for batch in pq.ParquetFile({source!r}).iter_batches(batch_size={chunk}, use_threads=False):
+        x = batch.column(0).to_numpy()
+        y = batch.column(1).to_numpy()
+        r = x * 1.5 * AU
+        v = y / 3 * 1000.0
+        e = v**2 / 2 - 1.327e20 / r
+        t = r / v / DAY
+        writer.write_batch(pa.record_batch([pa.array(e), pa.array(t)], schema=schema))
+"""

@@ -241,6 +241,28 @@ def resolve_import(importer: Path | None, written: str, root: Path, chain: tuple
     return path
 
 
+def resolve_data_file(folder: Path | None, written: str, root: Path | None, span) -> Path:
+    """The file a `read_table("…")` call names: relative to the sheet's folder, inside the
+    project root (as imports are)."""
+    base = folder if folder is not None else Path.cwd()
+    top = root if root is not None else base.resolve()
+    try:
+        path = (base / written).resolve()
+        path.relative_to(top)
+    except ValueError:
+        raise InputError(f"`{_clipped(written)}` lies outside the project root "
+                         f"{_shown_folder(top)}", span,
+                         hint="keep data files below the top sheet's folder, or pass --root") \
+            from None
+    except OSError as exc:
+        raise InputError(f"cannot read `{_clipped(written)}`: {exc.strerror or exc}", span) \
+            from None
+    if not path.is_file():
+        raise InputError(f"no such data file: {_clipped(written)} (looked for "
+                         f"{label_in(path, top)})", span)
+    return path
+
+
 def _clipped(text: str, limit: int = 80) -> str:
     return text if len(text) <= limit else text[:limit - 1] + "…"
 

@@ -72,6 +72,7 @@ from ..physics.units import (
 )
 from .arrays import axis_op, compare_op, index_op
 from .context import context
+from .datafiles import read_table_call
 from .run import (
     ADD,
     DIV,
@@ -657,6 +658,10 @@ class _Compiler:
         return self.expr(node, depth), False
 
     def call(self, node: Call, depth: int) -> Code:
+        if node.function == "read_table":   # a data file: calc/engine/datafiles.py
+            self.looked_up.add(node.function)
+            return Const(read_table_call(node.function_span, node.args, node.keywords,
+                                         node.span, self.source.folder, context().root))
         own = self.scope.functions.get(node.function)
         if own is not None:
             return self.own_function(own, node, depth)
@@ -686,9 +691,12 @@ class _Compiler:
             raise err.located(node.span) from None
         values = [*node.args, *(k.value for k in node.keywords)]
         arg_spans = {slot: value.span for slot, value in zip(slots, values)}
-        arg_codes = [self.argument(a, depth) for a in node.args]
+        texts = spec.text_parameters
+        arg_codes = [self.argument(a, depth, slot in texts, fname_of(spec), slot)
+                     for a, slot in zip(node.args, slots)]
         names = list(keywords)
-        kw_codes = [self.argument(keywords[k].value, depth) for k in names]
+        kw_codes = [self.argument(keywords[k].value, depth, k in texts, fname_of(spec), k)
+                    for k in names]
         for parameter in PPN_PARAMETERS:
             # an omitted gamma or beta takes the sheet's `ppn` value (else 1)
             if parameter in omitted:
@@ -746,10 +754,19 @@ class _Compiler:
 
         return _lift(apply, *arg_codes, *kw_codes)
 
-    def argument(self, node, depth: int) -> Code:
-        """A library function's argument: a value, or text in quotes (a body's name)."""
+    def argument(self, node, depth: int, takes_text: bool, function: str, slot: str) -> Code:
+        """A library function's argument: a value, or text in quotes where the parameter
+        takes a name (`ephemeris("mars", t)`)."""
         if type(node) is TextLiteral:
+            if not takes_text:
+                raise NameResolutionError(
+                    f"{function}: `{slot}` takes a value, not text in quotes", node.span,
+                    hint="quoted text names a body or a file (ephemeris(\"mars\", t), "
+                         "read_table(\"obs.ecsv\"))")
             return Const(node.text)
+        if takes_text:
+            raise NameResolutionError(f"{function}: `{slot}` takes a name in quotes", node.span,
+                                      hint="for example ephemeris(\"mars\", t)")
         return self.expr(node, depth + 1)
 
     def along(self, keyword, effect: str) -> str:
@@ -970,6 +987,10 @@ def _is_literal(node, scope: Scope, depth: int = 0) -> bool:
     if kind is ArrayLiteral:
         return all(_is_literal(item, scope, depth + 1) for item in node.items)
     return False
+
+
+def fname_of(spec) -> str:
+    return spec.name
 
 
 def _constant(code: Code):

@@ -113,6 +113,8 @@ class EvaluationContext(Environment):
         self.sampling = sampling
         #: operations check their results for nan/inf (only while a failing cell re-runs)
         self.checking = False
+        #: the folder data files (`read_table`) must stay in: the sheet's project root
+        self.root: Path | None = None
 
     @property
     def monte_carlo(self) -> bool:

@@ -22,6 +22,7 @@ import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -50,6 +51,9 @@ from .checks import CheckResult
 from .compile import InputTable
 from .context import EvaluationContext, Progress, entered
 from .values import ShownValue, is_record
+
+if TYPE_CHECKING:
+    from .stream import ChunkEvaluator
 
 #: A set of cell names (spelled here because the method `Sheet.set` hides the builtin in
 #: the class body).
@@ -102,6 +106,7 @@ class Sheet:
         self.imports = imports
         self.chain = chain or ((here,) if here is not None else ())
         self.context = EvaluationContext()
+        self.context.root = imports.root
         with numeric_context():
             try:
                 self._build(constants)
@@ -475,6 +480,22 @@ class Sheet:
             definition = CellDef("_", Span(1, 1, 1, 2), line.expr, line.unit, None, None,
                                  line.span)
             return self._cells.evaluate(definition, source)
+
+    # -- a table's rows, chunk by chunk (`relsheet map`)
+    def chunk_evaluator(self, table: str, cells: list[str]) -> ChunkEvaluator:
+        """The cells ``cells`` as a function of the rows of the table cell ``table`` (a cell
+        that reads `read_table`), for streaming a table far larger than memory.
+
+        The sheet stays compiled as it is; each call of the evaluator's ``chunk(columns,
+        rows)`` replaces the table's value by ``columns`` (name → Quantity, one value a
+        row) and runs only the cells between the table and ``cells`` (and the checks that
+        the table reaches), vectorised over the rows. See :mod:`calc.engine.stream`.
+        """
+        from .stream import ChunkEvaluator
+
+        for name in (table, *cells):
+            self.cell(name)   # KeyError naming the cell when there is none
+        return ChunkEvaluator(self._cells, self.context, table, cells)
 
     # -- uncertainties
     def sigma(self, name: str) -> u.Quantity | None:

@@ -154,6 +154,29 @@ def build_parser() -> argparse.ArgumentParser:
                                          "their value, `name = expr` shows what changes.")
     rp.add_argument("file", metavar="FILE", nargs="?", help="the sheet (.sheet)")
 
+    mp = commands.add_parser("map", help="apply a sheet to every row of a large table",
+                             description="Stream a table (Parquet file or folder, ECSV, FITS, "
+                                         "CSV) through a sheet whose cell NAME reads "
+                                         "read_table(...), chunk by chunk, and write the chosen "
+                                         "cells as Parquet columns (σ as NAME_sigma, units in "
+                                         "the metadata).")
+    mp.add_argument("sheet", metavar="SHEET", help="the sheet (.sheet)")
+    mp.add_argument("--table", required=True, metavar="NAME=PATH",
+                    help="the table cell NAME (read with read_table) and the table to stream")
+    mp.add_argument("--cells", required=True, metavar="CELL[,CELL…]",
+                    help="the cells to write as columns")
+    mp.add_argument("-o", dest="output", required=True, metavar="OUT",
+                    help="the Parquet file to write (a folder with --engine dask)")
+    mp.add_argument("--chunk", type=int, default=100_000, metavar="ROWS",
+                    help="rows evaluated at once (default 100,000; memory grows with it)")
+    mp.add_argument("--engine", choices=["local", "dask"], default="local",
+                    help="local (default) or dask (pip install 'relsheet[cluster]')")
+    mp.add_argument("--scheduler", metavar="ADDRESS",
+                    help="a dask scheduler such as tcp://host:8786 (default: a local cluster "
+                         "of 2 workers)")
+    mp.add_argument("--force", action="store_true", help="replace OUT if it exists")
+    _sheet_options(mp)
+
     fn = commands.add_parser("funcs", help="list the functions, or show one",
                              description="List the functions sheets can call, or show one's "
                                          "arguments, formula, validity, PPN dependence and source.")
@@ -561,6 +584,13 @@ def cmd_repl(args) -> int:
     return run(args.file, debug=getattr(args, "debug", False))
 
 
+def cmd_map(args) -> int:
+    from .map import cmd_map as run_map
+
+    gc.enable()  # a long run (see `run`): chunk after chunk must not pile up cycles
+    return run_map(args)
+
+
 def cmd_funcs(args) -> int:
     from ..engine.sheet import Sheet
     from ..physics.catalog import entries, listing
@@ -598,7 +628,7 @@ def cmd_lsp(args) -> int:
 _COMMANDS = {"eval": cmd_eval, "verify": cmd_verify, "annotate": cmd_annotate,
              "export": cmd_export, "deps": cmd_deps, "diff": cmd_diff, "watch": cmd_watch,
              "units": cmd_units, "repl": cmd_repl, "funcs": cmd_funcs, "lsp": cmd_lsp,
-             "plot": cmd_plot}
+             "plot": cmd_plot, "map": cmd_map}
 
 
 def run() -> None:

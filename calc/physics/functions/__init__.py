@@ -108,6 +108,19 @@ class FunctionSpec:
         return kinds
 
     @cached_property
+    def text_parameters(self) -> frozenset[str]:
+        """Parameters that take text in quotes (a body's name): annotated ``Annotated[str, …]``."""
+        hints = typing.get_type_hints(self.implementation, include_extras=True)
+        out = set()
+        for name, hint in hints.items():
+            args = [a for a in typing.get_args(hint) if a is not type(None)] \
+                if typing.get_origin(hint) is not typing.Annotated else [hint]
+            for arg in args:
+                if typing.get_origin(arg) is typing.Annotated and typing.get_args(arg)[0] is str:
+                    out.add(name)
+        return frozenset(out)
+
+    @cached_property
     def record_parameters(self) -> frozenset[str]:
         """Parameters that take orbit records (their kind mentions a record)."""
         if self.topic in ("math", "arrays"):
