@@ -125,3 +125,19 @@ def test_dates_print_in_iso_form_with_their_scale_in_text_and_json():
     data = json.loads(to_json(s))
     cell = next(c for c in data["cells"] if c["name"] == "t")
     assert cell["value"] == "2028-08-17T06:00:00.000 TT"
+
+
+def test_uncertain_dates_propagate():
+    s = sheet("t0 = 2031-04-12T06:30:00 TDB ± 2 s\nt1 = 2031-04-12T07:30:00 TDB ± 3 s\n"
+              "dt = t1 - t0 in s\nlater = t0 + 10 d\n"
+              "planet = orbit(a = 1 AU, e = 0.1, t_peri = 2031-01-01 TDB)\n"
+              "st = orbit_state(1 Msun, planet, t0)\nx = st.x in km\nvx = st.vx in km / s\n")
+    # GUM (JCGM 100:2008) eq. 10 for independent inputs: σ(t1 − t0) = √(2² + 3²) s
+    assert s["dt"].value == pytest.approx(3600.0, rel=1e-12)
+    assert s.sigma("dt").value == pytest.approx(np.sqrt(13), rel=1e-6)
+    # a position at an uncertain date: σx = |dx/dt| σt = |vx| · 2 s (first order)
+    assert s.sigma("x").value == pytest.approx(abs(s["vx"].value) * 2, rel=1e-4)
+    from calc.outputs.format import cell_text
+    assert cell_text(s.cell("later")) == "2031-04-22T06:30:00.000 TDB ± 2 s"
+    sampled = s.monte_carlo(20000, seed=2)
+    assert float(sampled["dt"].sigma) == pytest.approx(np.sqrt(13), rel=0.03)

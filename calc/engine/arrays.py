@@ -61,6 +61,8 @@ def axis_op(name: str, rank: float, span: Span) -> Callable:
 
 def _central(value):
     """What a comparison reads: nominal values; the median of Monte Carlo samples."""
+    if type(value).__name__ == "UncertainDate":
+        return value.nominal_date()
     if isinstance(value, Uncertain):
         return value.nominal
     if isinstance(value, Samples):
@@ -85,9 +87,9 @@ def compare_op(op: str, span: Span, right_span: Span) -> Callable:
             if isinstance(side, Truth):
                 raise DomainError("truths cannot be compared", span,
                                   hint="combine conditions with where(…), or count them")
+        a, b = _central(a), _central(b)
         if is_date(a) or is_date(b):
             return _compare_dates(a, b, test, span, right_span)
-        a, b = _central(a), _central(b)
         try:
             scale = conversion_scale(b.unit, a.unit)
         except u.UnitConversionError:

@@ -60,7 +60,7 @@ from ..language.syntax import (
     UnitProduct,
 )
 from ..physics import functions
-from ..physics.records import Record, RecordList
+from ..physics.records import Record, RecordList, is_date
 from ..physics.units import (
     close_matches,
     conversion_scale,
@@ -409,6 +409,8 @@ class _Compiler:
             raise UnitError("a value with `±` is a measured input: write it in numbers and units, "
                             "without cells", node.span)
         nominal_value, sigma_value = value.value, sigma.value
+        if is_date(nominal_value):
+            return self.uncertain_date(node, nominal_value, sigma_value)
         if isinstance(nominal_value, CONTAINERS) or isinstance(sigma_value, CONTAINERS):
             raise UnitError("a record cannot carry `±`; give its fields uncertainties", node.span)
         try:
@@ -430,6 +432,29 @@ class _Compiler:
         if not inputs:
             return Const(nominal_value)
         return _input_code(inputs, nominal_value, sigma_value)
+
+    def uncertain_date(self, node: PlusMinus, base, sigma_value) -> Code:
+        """`date ± σ`: an exact date and an input of nominal 0 s for its offset."""
+        from .dates import UncertainDate, uncertain_date
+
+        made: list[Code] = []
+
+        def make_offset(zero: u.Quantity, seconds: u.Quantity):
+            sv = np.asarray(seconds.value)
+            if np.any(sv < 0):
+                raise DomainError("an uncertainty must not be negative", node.sigma.span)
+            self.inputs_made += 1
+            name = self.cell_name if self.inputs_made == 1 else \
+                f"{self.cell_name} ({self.inputs_made})"
+            inputs = self.inputs.literal(self.source, node.span, name, zero, seconds)
+            made.append(_input_code(inputs, zero, seconds) if inputs else Const(zero))
+            return zero
+
+        uncertain_date(base, sigma_value, make_offset, node.sigma.span)
+        offset = made[0]
+        if isinstance(offset, Const):
+            return Const(base)
+        return lambda env: UncertainDate(base, offset(env))
 
     def exponent_number(self, node, depth: int) -> float:
         code = self.expr(node, depth + 1)

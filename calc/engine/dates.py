@@ -94,6 +94,8 @@ def checked(convert, span: Span, strict: bool = True):
 
 def in_scale(value, scale: str, span: Span):
     """A date (or dates) in another time scale: `t in TDB`."""
+    if is_uncertain_date(value):
+        return UncertainDate(in_scale(value.base, scale, span), value.offset)
     if not is_date(value):
         raise UnitError(f"`in {scale}` converts dates; this is {describe(value.unit)}", span,
                         hint="time scales apply to dates such as `2031-04-12 TDB`")
@@ -118,6 +120,8 @@ def _duration(value, span: Span):
 
 def add(x, y, subtract: bool, span: Span) -> Any:
     """``x ± y`` where at least one side is a date."""
+    if is_uncertain_date(x) or is_uncertain_date(y):
+        return add_uncertain(x, y, subtract, span)
     if is_date(x) and is_date(y):
         if not subtract:
             raise UnitError("two dates cannot be added", span,
@@ -162,3 +166,89 @@ def day_offsets(value, origin=None) -> np.ndarray:
     if origin is None:
         origin = value.ravel()[0] if value.shape else value
     return np.asarray((value - origin).to_value(u.d), dtype=float)
+
+
+class UncertainDate:
+    """A date with a standard uncertainty (`2031-04-12T06:30 TDB ± 2 s`): an exact ``base``
+    date and an uncertain ``offset`` in seconds (first order: nominal 0 s and the inputs'
+    contributions; under Monte Carlo: samples). Arithmetic moves the offset, so a duration
+    between two uncertain dates carries both their uncertainties."""
+
+    __array_ufunc__ = None
+    __slots__ = ("base", "offset")
+
+    def __init__(self, base, offset) -> None:
+        self.base = base
+        self.offset = offset
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return tuple(self.base.shape)
+
+    @property
+    def scale(self) -> str:
+        return self.base.scale
+
+    def nominal_date(self):
+        """The date at the offset's nominal value (its sample mean under Monte Carlo)."""
+        from .samples import Samples
+        from .uncertain import Uncertain
+
+        offset = self.offset
+        if isinstance(offset, Uncertain):
+            seconds = offset.nominal.to_value(u.s)
+        elif isinstance(offset, Samples):
+            seconds = np.mean(offset.data.to_value(u.s), axis=0)
+        else:
+            seconds = offset.to_value(u.s)
+        return self.base + seconds * u.s
+
+    def moved(self, seconds):
+        """The exact date ``seconds`` after the base (numerical differentiation, samples)."""
+        return self.base + np.asarray(seconds) * u.s
+
+    def __repr__(self) -> str:
+        return f"<UncertainDate {self.base} + {self.offset!r}>"
+
+
+def is_uncertain_date(value) -> bool:
+    return type(value) is UncertainDate
+
+
+def uncertain_date(base, sigma, make_offset, span: Span) -> UncertainDate:
+    """`date ± σ`: the offset is an input of nominal 0 s and standard uncertainty σ."""
+    try:
+        seconds = sigma.to(u.s)
+    except (u.UnitConversionError, AttributeError):
+        raise UnitError(f"the uncertainty of a date is a duration, got {describe(sigma.unit)}",
+                        span) from None
+    return UncertainDate(base, make_offset(u.Quantity(np.zeros(base.shape), u.s), seconds))
+
+
+def add_uncertain(x, y, subtract: bool, span: Span):
+    """Arithmetic with an uncertain date on one side (or both)."""
+    x_date = is_uncertain_date(x) or is_date(x)
+    y_date = is_uncertain_date(y) or is_date(y)
+    if x_date and y_date:
+        if not subtract:
+            raise UnitError("two dates cannot be added", span,
+                            hint="subtract them for the duration between them, or add a "
+                                 "duration to one")
+        base_x, offset_x = (x.base, x.offset) if is_uncertain_date(x) else (x, 0 * u.s)
+        base_y, offset_y = (y.base, y.offset) if is_uncertain_date(y) else (y, 0 * u.s)
+        return ((add(base_x, base_y, True, span) + offset_x) - offset_y).to(u.d)
+    if y_date:
+        if subtract:
+            raise UnitError("a date cannot be subtracted from a duration", span,
+                            hint="write `date - duration`, or `date - date` for a duration")
+        x, y = y, x
+    step = _as_seconds(y, span)
+    return UncertainDate(x.base, x.offset - step if subtract else x.offset + step)
+
+
+def _as_seconds(value, span: Span):
+    try:
+        return value.to(u.s)
+    except (u.UnitConversionError, AttributeError):
+        raise UnitError(f"a date and {describe(getattr(value, 'unit', u.one))} cannot be added; "
+                        "only a duration can", span) from None

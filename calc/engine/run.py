@@ -50,6 +50,7 @@ from ..physics.units import (
 )
 from . import uncertain
 from .context import context
+from .dates import UncertainDate
 from .grid import Grid
 from .grid import align as grid_align
 from .grid import wrap as grid_wrap
@@ -120,7 +121,7 @@ def failed_input(program: CellProgram, failed: list[str], source: Source | None 
 def _finite(result, inputs, span: Span, what: str = "the result"):
     """Refuse nan, and an infinity that no infinite input explains (overflow, x/0)."""
     if not context().checking or isinstance(result, u.UnitBase) or isinstance(result, CONTAINERS) \
-            or is_date(result):
+            or is_date(result) or type(result) is UncertainDate:
         return result
     value = result.value
     if np.ndim(value) == 0:
@@ -174,7 +175,8 @@ def add_op(span: Span, subtract: bool):
         if not (_plain(x) and _plain(y)):
             if type(x) is Grid or type(y) is Grid:
                 return _on_grid(apply, x, y, span)
-            if is_date(x) or is_date(y):
+            if is_date(x) or is_date(y) or type(x) is UncertainDate \
+                    or type(y) is UncertainDate:
                 from . import dates
 
                 return dates.add(x, y, subtract, span)
@@ -217,13 +219,13 @@ def mul_op(span: Span, divide: bool):
         if not _plain(x):
             if type(x) is Grid or type(y) is Grid:
                 return _on_grid(apply, x, y, span)
-            if is_date(x) or is_date(y):
+            if is_date(x) or is_date(y) or type(x) is UncertainDate or type(y) is UncertainDate:
                 from . import dates
 
                 raise dates.refuse_product(x, y, span)
         elif type(y) is Grid:
             return _on_grid(apply, x, y, span)
-        elif is_date(y):
+        elif is_date(y) or type(y) is UncertainDate:
             from . import dates
 
             raise dates.refuse_product(x, y, span)
@@ -261,7 +263,7 @@ def neg_op(span: Span):
     def apply(x):
         if _plain(x):
             return quantity(-x.value, x.unit)
-        if is_date(x):
+        if is_date(x) or type(x) is UncertainDate:
             from . import dates
 
             raise dates.refuse_product(x, x, span)
@@ -281,7 +283,8 @@ def power_op(span: Span, exponent_span: Span):
             except SheetError as err:
                 raise err.located(span) from None
             return grid_wrap(apply(b, e), axes)
-        if is_date(base) or is_date(exponent):
+        if is_date(base) or is_date(exponent) or type(base) is UncertainDate \
+                or type(exponent) is UncertainDate:
             from . import dates
 
             raise dates.refuse_product(base, exponent, span)
@@ -536,7 +539,8 @@ def finish(program: CellProgram, value):
         if type(value) is Grid:
             return Grid(in_scale(value.data, program.time_scale, span), value.axes)
         return in_scale(value, program.time_scale, span)
-    if is_date(value) or (type(value) is Grid and is_date(value.data)):
+    if is_date(value) or type(value) is UncertainDate \
+            or (type(value) is Grid and is_date(value.data)):
         if program.unit is not None and program.definition.unit is not None:
             raise UnitError("a date has no unit; `in` takes a time scale for dates "
                             "(`t in TDB`)", program.unit_span)

@@ -37,6 +37,7 @@ from ..physics.records import Record, RecordList, is_date
 from ..physics.units import quantity
 from . import uncertain
 from .context import context
+from .dates import UncertainDate
 from .grid import Grid, anonymous_axis, expand, move_last, put_back, reshaped, transposed, value_shape
 from .grid import align as grid_align
 from .grid import union as grid_union
@@ -149,6 +150,8 @@ def is_uncertain(value) -> bool:
     """Whether a value carries first-order contributions (any field of a record)."""
     if isinstance(value, Uncertain):
         return True
+    if type(value) is UncertainDate:
+        return isinstance(value.offset, Uncertain)
     if isinstance(value, STRUCTURES):
         return any(isinstance(leaf, Uncertain) for leaf in leaves(value))
     return False
@@ -167,6 +170,8 @@ def inputs_of(value) -> dict[Input, Any]:
     """Every input a value depends on (records: any field's)."""
     if isinstance(value, Uncertain):
         return value.parts
+    if type(value) is UncertainDate:
+        return inputs_of(value.offset)
     out: dict[Input, Any] = {}
     if isinstance(value, STRUCTURES):
         for leaf in leaves(value):
@@ -179,11 +184,22 @@ def sigma(value) -> u.Quantity | None:
     """The first-order standard uncertainty of a leaf, in its unit; None without one."""
     if isinstance(value, Grid):
         value = value.data
+    if type(value) is UncertainDate:
+        return sigma(value.offset)
     return value.sigma if isinstance(value, Uncertain) else None
 
 
 def _moved(leaf, key: Input | None, t: float):
     """A leaf's nominal value moved by t times input ``key``'s contribution."""
+    if type(leaf) is UncertainDate:
+        offset = leaf.offset
+        if not isinstance(offset, Uncertain):
+            return leaf.moved(offset.to_value(u.s))
+        seconds = offset.nominal.to_value(u.s)
+        part = offset.parts.get(key) if key is not None else None
+        if part is not None and t != 0.0:
+            seconds = seconds + t * np.asarray(part) * offset.nominal.unit.to(u.s)
+        return leaf.moved(seconds)
     if not isinstance(leaf, Uncertain):
         return leaf
     part = leaf.parts.get(key) if key is not None else None
@@ -196,6 +212,13 @@ def _relative_size(value, key: Input) -> float:
     """How large input ``key``'s contribution is relative to the value it moves."""
     largest = 0.0
     for leaf in leaves(value):
+        if type(leaf) is UncertainDate and isinstance(leaf.offset, Uncertain) \
+                and key in leaf.offset.parts:
+            # a date moves by a part of a day (its functions see it in seconds since an epoch)
+            part = float(np.max(np.abs(leaf.offset.parts[key]))) * \
+                leaf.offset.nominal.unit.to(u.s)
+            largest = max(largest, part / 86400.0)
+            continue
         if isinstance(leaf, Uncertain) and key in leaf.parts:
             part = float(np.max(np.abs(leaf.parts[key])))
             scale = float(np.max(np.abs(leaf.nominal.value)))
@@ -466,9 +489,18 @@ def _aligned_rest(values: tuple, axes: tuple) -> tuple[list, tuple]:
 CENTRAL_ONLY = frozenset({"argmin", "argmax", "count", "any", "all", "len"})
 
 
+def _date_samples(leaf):
+    """An uncertain date under Monte Carlo as samples of dates (the functions take dates)."""
+    if type(leaf) is UncertainDate and isinstance(leaf.offset, Samples):
+        return Samples(leaf.moved(leaf.offset.data.to_value(u.s)))
+    return leaf
+
+
 def _central_leaf(leaf):
     if isinstance(leaf, Uncertain):
         return leaf.nominal
+    if type(leaf) is UncertainDate:
+        return leaf.nominal_date()
     if isinstance(leaf, Samples):
         return quantity(np.median(np.asarray(leaf.data.value), axis=0), leaf.unit)
     return leaf
@@ -478,13 +510,15 @@ def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | N
     """A function on values whose axes are settled: uncertain, sampled or plain."""
     if name in CENTRAL_ONLY:
         return call(*(map_leaves(_central_leaf, v) for v in values))
+    values = tuple(map_leaves(_date_samples, v) for v in values)
     uncertain_args = False
     sampled_args = False
     for v in values:
         kind = type(v)
         if kind is u.Quantity:
             continue
-        if kind is Uncertain or (kind in CONTAINERS and is_uncertain(v)):
+        if kind is Uncertain or (kind in CONTAINERS and is_uncertain(v)) or (
+                kind is UncertainDate and isinstance(v.offset, Uncertain)):
             uncertain_args = True
         elif kind is Samples or (kind in CONTAINERS and is_sampled(v)):
             sampled_args = True
@@ -616,7 +650,7 @@ def all_finite(value) -> bool:
     kind = type(value)
     if kind is Grid:
         return all_finite(value.data)
-    if kind in CONTAINERS or kind is Truth or is_date(value):
+    if kind in CONTAINERS or kind is Truth or kind is UncertainDate or is_date(value):
         return True
     if kind is Uncertain:
         value = value.nominal
@@ -717,6 +751,17 @@ def shown(value) -> ShownValue:
         return inner
     if isinstance(value, Truth):
         return Shown(value.flags, None, u.dimensionless_unscaled, kind="truth")
+    if type(value).__name__ == "UncertainDate":
+        from .dates import iso
+
+        offset = value.offset
+        if isinstance(offset, Samples):
+            spread = u.Quantity(np.std(offset.data.to_value(u.s), axis=0, ddof=1), u.s)
+        else:
+            spread = sigma(offset)
+        text = iso(value.nominal_date())
+        return Shown(text if isinstance(text, str) else np.array(text, dtype=object),
+                     None if spread is None else spread.to_value(u.s), u.s, kind="date")
     if is_date(value):
         from .dates import iso
 

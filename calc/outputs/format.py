@@ -76,7 +76,10 @@ def format_quantity(value, digits: int = DEFAULT_DIGITS) -> tuple[str, str]:
     if not isinstance(s, Shown):
         return s.summary(), ""
     if s.kind != "quantity":
-        return _listed(s) + _on_axes(s), ""
+        text = _listed(s)
+        if s.kind == "date" and s.sigma is not None and np.ndim(s.sigma) == 0:
+            text += f" ± {format_number(float(s.sigma), 2)} s"
+        return text + _on_axes(s), ""
     if s.sigma is not None:
         number = format_with_sigma(s.value, s.sigma)
     else:
