@@ -170,7 +170,7 @@ def test_crossing_errors():
     ("d[1.5]", "an index must be a whole number, got 1.5"),
     ("d[2 m]", "an index is a plain number, got `m` (length)"),
     ("d[d > 100 m]", "the mask selects no element"),
-    ("d[[1, 2] m > 0 m]", "a mask of 2 truths for 8 values"),
+    ("d[[1, 2] m > 0 m]", "a mask of 2 truths for a dimension of 8 values"),
     ("d[5:2]", "the slice picks no element of 8"),
     ("(d > 1 m) + 1", "a comparison gives truths, not numbers"),
     ("d > 1 s", "cannot compare"),

@@ -212,12 +212,17 @@ def _indexed(target, keys: list, span: Span):
                 raise DomainError(f"the slice picks no element of {length}", span)
             numpy_key.append(key)
             if axis is not None:
-                new_axes.append(anonymous_axis(len(picked)))
+                # `:` keeps the whole axis; a part of it is a dimension of its own
+                whole = len(picked) == length and (key.step in (None, 1))
+                new_axes.append(axis if whole else anonymous_axis(len(picked)))
         else:   # a mask
             flags = key.flags
             if flags.ndim != 1 or flags.shape[0] != length:
-                raise DomainError(f"a mask of {flags.size} truths for {length} values", span,
-                                  hint="the mask must come from values of the same length")
+                what = (f"a mask over {' × '.join(map(str, flags.shape))} values"
+                        if flags.ndim > 1 else f"a mask of {flags.size} truths")
+                raise DomainError(f"{what} for a dimension of {length} values", span,
+                                  hint="a mask picks along one dimension: index a grid one axis "
+                                       "at a time, or use where(…) to keep its shape")
             if not flags.any():
                 raise DomainError("the mask selects no element", span,
                                   hint="no value meets the condition")

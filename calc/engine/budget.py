@@ -34,7 +34,11 @@ class BudgetRow:
 
 
 def rows(value) -> list[BudgetRow]:
-    """The budget of an uncertain value, largest share first (empty for an exact value)."""
+    """The budget of an uncertain value, largest share first (empty for an exact value); a
+    value on axes has the budget of its elements together."""
+    data = getattr(value, "data", None)
+    if isinstance(data, Uncertain) and hasattr(value, "axes"):
+        value = data
     if not isinstance(value, Uncertain):
         return []
     out = [BudgetRow((key,), quantity(np.abs(value.parts[key]), value.unit), share)

@@ -27,6 +27,8 @@ from ..language.scope import Scope
 from ..language.syntax import CellDef, Chain, CheckDef, Name, Number, Percent
 from ..physics.units import describe, quantity, value_in
 from .compile import InputTable, compile_cell
+from .grid import Grid
+from .grid import align as grid_align
 from .run import CellProgram, Env, failed_input, run_cell
 from .uncertain import Uncertain
 from .values import CONTAINERS, Shown, ShownValue, shown
@@ -123,6 +125,11 @@ def run_check(program: CheckProgram, env: Env, failed: set[str]) -> CheckResult:
     try:
         left = _value(program.left, env, failed)
         right = _value(program.right, env, failed)
+        if isinstance(left, Grid) or isinstance(right, Grid):
+            # values on axes: each side's numbers over the grid both span
+            (left, right), _axes = grid_align(left, right)
+        if _dated(left) or _dated(right):
+            return _dates_checked(program, result, left, right)
         lv, rv = _plain(left), _plain(right)
         result.left, result.right = shown(left), shown(right)
         try:
@@ -183,10 +190,37 @@ def run_check(program: CheckProgram, env: Env, failed: set[str]) -> CheckResult:
         return result
 
 
+def _dated(value) -> bool:
+    from ..physics.records import is_date
+
+    return is_date(value) or type(value).__name__ == "UncertainDate"
+
+
+def _dates_checked(program, result, left, right):
+    """A check between dates: an order (`check t1 > t0`) or equality (`==`), nominal dates."""
+    d = program.definition
+    if not (_dated(left) and _dated(right)):
+        raise UnitError("a check compares a date with a date (or a duration with a time)",
+                        d.span, source=program.left.source)
+    if program.kind not in ("order", "exact"):
+        raise UnitError("dates are checked in order or for equality; for a tolerance check "
+                        "the duration between them: `check t1 - t0 < 2 s`", d.span,
+                        source=program.left.source)
+    a = left.nominal_date() if type(left).__name__ == "UncertainDate" else left
+    b = right.nominal_date() if type(right).__name__ == "UncertainDate" else right
+    test = {"<": a < b, "<=": a <= b, ">": a > b, ">=": a >= b, "==": a == b}[d.op]
+    result.passed = bool(np.all(test))
+    result.left, result.right = shown(left), shown(right)
+    return result
+
+
 def _plain(value):
     """The nominal Quantity of a side (records cannot be compared)."""
     if isinstance(value, Uncertain):
         return value.nominal
+    if getattr(value, "flags", None) is not None and not isinstance(value, u.Quantity):
+        raise UnitError("a check compares quantities; a comparison inside it gives truths",
+                        hint="write the comparison as the check itself, e.g. `check y < 10 m`")
     if isinstance(value, CONTAINERS) or not isinstance(value, u.Quantity):
         raise UnitError("a check compares quantities, not records")
     return value

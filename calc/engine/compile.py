@@ -73,6 +73,7 @@ from ..physics.units import (
 from .arrays import axis_op, compare_op, index_op
 from .context import context
 from .datafiles import read_table_call
+from .grid import Grid
 from .run import (
     ADD,
     DIV,
@@ -740,8 +741,15 @@ class _Compiler:
         if effect == "reduce" and spec.variadic and npos > 1:
             effect = "elementwise"   # max(a, b): element by element; max(a): the largest
 
+        takes_dates = spec.date_parameters
+
         def apply(*values):
             for value, pname in zip(values, slots):
+                if pname not in takes_dates and _dated(value):
+                    raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not dates",
+                                        pname, span=arg_spans.get(pname, span),
+                                        hint="subtract a reference date first (`t - t0` is a "
+                                             "duration), or use mjd(t)")
                 if isinstance(value, CONTAINERS) and pname not in takes_records:
                     what = "an array of records" if isinstance(value, RecordList) else "a record"
                     raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not {what}",
@@ -1012,6 +1020,14 @@ def _is_literal(node, scope: Scope, depth: int = 0) -> bool:
     if kind is ArrayLiteral:
         return all(_is_literal(item, scope, depth + 1) for item in node.items)
     return False
+
+
+def _dated(value) -> bool:
+    """Whether a value is dates (on axes or not, uncertain or not)."""
+    if type(value) is Grid:
+        value = value.data
+    return is_date(value) or type(value).__name__ == "UncertainDate" or (
+        type(value) is Samples and is_date(value.data))
 
 
 def fname_of(spec) -> str:

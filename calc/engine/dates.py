@@ -33,6 +33,8 @@ def _time_module():
     # the tables astropy ships, never a download: a date beyond them is an error
     iers.conf.auto_download = False
     iers.conf.auto_max_age = None
+    # UT1 (and polar motion) beyond the table's last entry: an error, never an extrapolation
+    iers.conf.iers_degraded_accuracy = "error"
     return Time, TimeDelta
 
 
@@ -60,11 +62,20 @@ def date_literal(node: DateLiteral | DayNumber):
             else:
                 time = Time(node.text, format="isot" if "T" in node.text else "iso", scale=scale)
     except ValueError as exc:
-        raise DomainError(f"not a valid date: {exc}", node.span) from None
+        detail = str(exc).strip().splitlines()[-1]
+        reason = detail.rsplit('"', 2)[-2] if detail.count('"') >= 2 else detail
+        raise DomainError(f"not a valid date ({reason})", node.span,
+                          hint="write YYYY-MM-DD or YYYY-MM-DDThh:mm:ss with a scale") from None
     except Warning as exc:
+        if "dubious year" in str(exc):
+            raise DomainError("UTC is not known at this date: leap seconds are announced only "
+                              "months ahead, and UTC is defined from 1960 on", node.span,
+                              hint="write future and historical dates in TT or TDB") from None
         raise DomainError(f"the date is outside the range its time scale's tables cover: "
                           f"{exc}", node.span) from None
     if needs_tables:
+        if scale == "ut1":
+            _within_ut1_table(time, node.span)
         checked(lambda: time.tai, node.span)
     return time
 
@@ -84,11 +95,17 @@ def checked(convert, span: Span, strict: bool = True):
     except SheetError:
         raise
     except Warning as exc:
+        if "dubious year" in str(exc):
+            raise DomainError("UTC is not known at this date: leap seconds are announced only "
+                              "months ahead, and UTC is defined from 1960 on", span,
+                              hint="write future and historical dates in TT or TDB") from None
         raise DomainError(f"the date is outside the range of the time-scale tables astropy "
-                          f"ships ({exc})", span,
-                          hint="UTC is defined from 1960 on; UT1 needs the IERS table's range"
-                          ) from None
+                          f"ships ({exc})", span) from None
     except Exception as exc:  # noqa: BLE001 - astropy's IERS range errors and the like
+        if "IERS" in type(exc).__name__ or "IERS" in str(exc):
+            raise DomainError("UT1 is known only within the IERS table astropy ships; this "
+                              "date is outside it", span,
+                              hint="use TT or TDB, or a date the table covers") from None
         raise DomainError(f"the time scale conversion failed: {exc}", span) from None
 
 
@@ -100,8 +117,24 @@ def in_scale(value, scale: str, span: Span):
         raise UnitError(f"`in {scale}` converts dates; this is {describe(value.unit)}", span,
                         hint="time scales apply to dates such as `2031-04-12 TDB`")
     target = scale.lower()
+    if "ut1" in (target, value.scale):
+        _within_ut1_table(value, span)
     return checked(lambda: getattr(value, target), span,
                    strict=target in _TABLED or value.scale in _TABLED)
+
+
+def _within_ut1_table(value, span: Span) -> None:
+    """UT1 − UTC comes from the IERS table astropy ships: a date outside it is an error
+    (astropy would hold the table's last value without a word)."""
+    from astropy.utils import iers
+
+    table = iers.earth_orientation_table.get()
+    first, last = float(table["MJD"][0].value), float(table["MJD"][-1].value)
+    mjd = np.asarray(value.tt.mjd)
+    if np.any(mjd < first) or np.any(mjd > last):
+        raise DomainError(f"UT1 is known only from MJD {first:.0f} to {last:.0f} (the IERS "
+                          "table astropy ships); this date is outside it", span,
+                          hint="use TT or TDB, or a date the table covers")
 
 
 def _duration(value, span: Span):
@@ -152,10 +185,20 @@ def refuse_product(x, y, span: Span) -> DomainError:
                             "mjd(t) or jd(t) for a day number")
 
 
-def iso(value) -> list[str] | str:
-    """A date in ISO form with its scale (``2031-04-12T06:30:00.000 TDB``)."""
+def iso(value, precision: int = 3) -> list[str] | str:
+    """A date in ISO form with its scale (``2031-04-12T06:30:00.000 TDB``); ``precision``
+    digits of the second (9 in JSON: nanoseconds)."""
     scale = value.scale.upper()
-    text = np.asarray(value.isot)
+    if precision != value.precision:
+        value = value.copy()
+        value.precision = precision
+    try:
+        text = np.asarray(value.isot)
+    except Exception:  # noqa: BLE001 - ERFA cannot write years outside its calendar range
+        jd = np.asarray(value.jd)
+        if jd.ndim == 0:
+            return f"JD {float(jd):.6f} {scale}"
+        return [f"JD {float(j):.6f} {scale}" for j in jd.ravel()]
     if text.ndim == 0:
         return f"{text.item()} {scale}"
     return [f"{t} {scale}" for t in text.ravel()]

@@ -11,6 +11,7 @@ the statement's line.
 from __future__ import annotations
 
 from collections.abc import Callable
+from dataclasses import replace
 
 import numpy as np
 
@@ -165,7 +166,14 @@ def evaluate(items: list, lookup: Lookup, source: Source
             if isinstance(item, TableDef):
                 tables.append(table_spec(item, lookup, heading))
             elif isinstance(item, PlotDef):
-                plots.append(plot_spec(item, lookup, heading))
+                spec = plot_spec(item, lookup, heading)
+                taken = {p.name for p in plots}
+                if spec.name in taken:   # `plot y vs t` twice (say once with `log y`)
+                    number = 2
+                    while f"{spec.name}_{number}" in taken:
+                        number += 1
+                    spec = replace(spec, name=f"{spec.name}_{number}")
+                plots.append(spec)
         except SheetError as err:
             errors.append(err.located(item.span, source))
     return tables, plots, errors

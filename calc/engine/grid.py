@@ -48,8 +48,12 @@ def anonymous_axis(length: int) -> Axis:
     return Axis(None, float("inf"), length, next(_anonymous))
 
 
-def _key(axis: Axis) -> tuple:
+def key(axis: Axis) -> tuple:
+    """How axes sort: by rank (file order), anonymous ones after the named."""
     return (axis.rank, axis.token, axis.name or "")
+
+
+_key = key
 
 
 class Grid:

@@ -126,8 +126,9 @@ def _solve_samples(cells, env: Env, out: dict, count: int) -> None:
         try:
             values = solve_sampled(program, cells, env, count)
         except SheetError as err:
+            located = err.located(program.span, program.source).kept()
             for name in unknowns:
-                out[name] = err.kept()
+                out[name] = located
                 env.pop(name, None)
             values = None
         except Exception as exc:  # a bug of ours

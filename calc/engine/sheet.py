@@ -50,6 +50,8 @@ from .cells import Cell, Cells
 from .checks import CheckResult
 from .compile import InputTable
 from .context import EvaluationContext, Progress, entered
+from .grid import Grid
+from .truth import Truth
 from .values import ShownValue, is_record
 
 if TYPE_CHECKING:
@@ -77,6 +79,15 @@ def numeric_context() -> Iterator[None]:
     finally:
         if collecting:
             gc.enable()
+
+
+def _is_dated(value) -> bool:
+    from ..physics.records import is_date
+    from .dates import UncertainDate
+
+    if isinstance(value, Grid):
+        value = value.data
+    return is_date(value) or isinstance(value, UncertainDate)
 
 
 def _merged(first: list[Cell], second: list[Cell]) -> list[Cell]:
@@ -268,6 +279,16 @@ class Sheet:
         except SheetError:
             return  # the cell will show the error of its new expression
         if is_record(new) or is_record(cell.raw):
+            return
+        old_date, new_date = _is_dated(cell.raw), _is_dated(new)
+        if old_date or new_date:
+            if old_date != new_date:
+                raise UnitError(f"`{name}` is a {'date' if old_date else 'quantity'}, the new "
+                                f"value {'a date' if new_date else 'is not a date'}",
+                                line.expr.span, hint="give a value of the same kind",
+                                source=source)
+            return
+        if isinstance(cell.raw, Grid) or isinstance(new, Grid) or isinstance(new, Truth):
             return
         old_unit, new_unit = cell.raw.unit, new.unit  # type: ignore[attr-defined]
         try:

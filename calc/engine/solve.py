@@ -28,7 +28,7 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import DomainError, InternalError, NameResolutionError, SheetError, Source, Span, UnitError
-from ..language.syntax import ArrayLiteral, CellDef, Dotted, SolveDef
+from ..language.syntax import ArrayLiteral, CellDef, Dotted, Name, SolveDef
 from ..physics.units import conversion_scale, describe
 from .grid import Grid
 from .run import CellProgram, Env, run_cell
@@ -65,8 +65,16 @@ def compile_solve(definition: SolveDef, cells, source: Source) -> SolveProgram:
     from .compile import compile_cell
 
     program = SolveProgram(definition, source)
+    # the unknowns first, so that a solve refused below leaves them with its error (never
+    # with their starting values)
+    named = [u.cell.id for u in definition.unknowns if isinstance(u.cell, Name)]
+    program.unknowns = [n for n in dict.fromkeys(named) if n in cells.cells]
     try:
         equations, unknowns = definition.equations, definition.unknowns
+        duplicates = [n for n in dict.fromkeys(named) if named.count(n) > 1]
+        if duplicates:
+            raise DomainError(f"`{duplicates[0]}` is listed twice among the unknowns",
+                              definition.span)
         if len(equations) != len(unknowns):
             raise DomainError(f"{len(equations)} equation{'s' if len(equations) != 1 else ''} "
                               f"for {len(unknowns)} unknown{'s' if len(unknowns) != 1 else ''}",
@@ -81,9 +89,6 @@ def compile_solve(definition: SolveDef, cells, source: Source) -> SolveProgram:
                 raise NameResolutionError(f"no cell `{name}` to solve for", unknown.cell.span,
                                           hint="define it first: its definition is the "
                                                "starting value")
-            if name in program.unknowns:
-                raise DomainError(f"`{name}` is listed twice", unknown.span)
-            program.unknowns.append(name)
             if unknown.bracket is not None:
                 if len(unknowns) != 1:
                     raise DomainError("a bracket `in [lo, hi]` goes with a single unknown",
@@ -198,7 +203,13 @@ class Problem:
                 raise UnitError(f"the sides of equation {k + 1} are {describe(_unit(left))} and "
                                 f"{describe(_unit(right))}", self.program.definition.equations[k].span
                                 ) from None
+            if self.sampled and lv.ndim != rv.ndim:
+                # samples first: a side of single values meets a side on axes per sample
+                lv, rv = _padded(lv, rv.ndim), _padded(rv, lv.ndim)
             rows.append(lv - rv * scale)
+        if self.sampled:
+            widest = max(r.ndim for r in rows)
+            rows = [_padded(r, widest) for r in rows]
         stacked = np.array(np.broadcast_arrays(*rows))
         if self.side_scales is None:
             size = np.array([np.max(np.abs(r)) if np.size(r) else 1.0 for r in rows])
@@ -208,6 +219,13 @@ class Problem:
                                         np.where(size > 0, size, 1.0))
         shape = (len(rows),) + (1,) * (stacked.ndim - 1)
         return stacked / self.side_scales.reshape(shape)
+
+
+def _padded(values: np.ndarray, ndim: int) -> np.ndarray:
+    """Samples (the first axis) with dimensions of length one after it, up to ``ndim``."""
+    if values.ndim >= ndim or values.ndim == 0:
+        return values
+    return values.reshape(values.shape[:1] + (1,) * (ndim - values.ndim) + values.shape[1:])
 
 
 def _unit(value) -> u.UnitBase:
@@ -234,7 +252,7 @@ def solve_nominal(program: SolveProgram, cells) -> list:
     """Solve with every cell at its nominal value; returns the unknowns' values (each a
     Quantity, or a value on the equations' axes)."""
     env = {k: nominal(v) for k, v in cells.values.items()}
-    starts = [nominal(cells.values[name]) for name in program.unknowns]
+    starts = [_start(cells, name, program) for name in program.unknowns]
     problem = _problem(program, cells, env, starts)
     z0 = np.array([float(s.value) for s in (q.data if isinstance(q, Grid) else q
                                              for q in starts)]) / problem.scales
@@ -254,6 +272,14 @@ def solve_nominal(program: SolveProgram, cells) -> list:
     else:
         z = _root(problem, program, z0)
     return problem.values_of(z)
+
+
+def _start(cells, name: str, program: SolveProgram):
+    """An unknown's current value (its starting value, or the last solution)."""
+    if name not in cells.values:
+        raise DomainError(f"the starting value of `{name}` failed", program.span,
+                          hint=f"fix the definition of `{name}`: it is where the solver starts")
+    return nominal(cells.values[name])
 
 
 def _problem(program: SolveProgram, cells, env: Env, starts: list) -> Problem:
@@ -394,7 +420,7 @@ def with_uncertainty(program: SolveProgram, cells, solution: list) -> list:
     if not any(isinstance(v, Uncertain) or (isinstance(v, Grid) and isinstance(v.data, Uncertain))
                for v in env.values()):
         return solution
-    starts = [nominal(cells.values[name]) for name in program.unknowns]
+    starts = [_start(cells, name, program) for name in program.unknowns]
     problem = _problem(program, cells, {k: nominal(v) for k, v in env.items()}, starts)
     axes = next((v.axes for v in solution if isinstance(v, Grid)), ())
     problem.axes = axes
@@ -442,7 +468,7 @@ def with_uncertainty(program: SolveProgram, cells, solution: list) -> list:
 
 def solve_sampled(program: SolveProgram, cells, env: Env, count: int) -> list:
     """Solve every Monte Carlo sample at once (vectorised Newton from the nominal solution)."""
-    current = [nominal(cells.values[name]) for name in program.unknowns]
+    current = [_start(cells, name, program) for name in program.unknowns]
     axes = next((v.axes for v in current if isinstance(v, Grid)), ())
     data = [v.data if isinstance(v, Grid) else v for v in current]
     scales = np.array([float(np.max(np.abs(d.value))) or 1.0 for d in data])

@@ -40,6 +40,7 @@ from .context import context
 from .dates import UncertainDate
 from .grid import Grid, anonymous_axis, expand, move_last, put_back, reshaped, transposed, value_shape
 from .grid import align as grid_align
+from .grid import key as axis_key
 from .grid import union as grid_union
 from .grid import wrap as grid_wrap
 from .samples import Samples, percentiles, value_ndim
@@ -386,7 +387,21 @@ def per_record_point(apply: Callable, values: tuple, shape: tuple[int, ...], axe
         args = tuple(_point_of(v, index, shape) if isinstance(v, Record) else v for v in values)
         results.append(apply(*args))
     stacked = _stacked(results, shape)
-    return map_leaves(lambda leaf: grid_wrap(leaf, axes), stacked) if axes else stacked
+    outer = tuple(axes) if axes else tuple(anonymous_axis(n) for n in shape)
+
+    def place(leaf):
+        # the points' axes first, then the axes each result had of its own; in rank order
+        inner = leaf.axes if isinstance(leaf, Grid) else ()
+        data = leaf.data if isinstance(leaf, Grid) else leaf
+        if not inner and not axes:
+            return data
+        combined = outer + tuple(inner)
+        order = sorted(range(len(combined)), key=lambda i: axis_key(combined[i]))
+        if order != list(range(len(combined))):
+            data = transposed(data, tuple(order))
+        return grid_wrap(data, tuple(combined[i] for i in order))
+
+    return map_leaves(place, stacked)
 
 
 def _point_of(record: Record, index: tuple, shape: tuple):
@@ -408,6 +423,8 @@ def _point_of(record: Record, index: tuple, shape: tuple):
 
 def _stacked(results: list, shape: tuple):
     first = results[0]
+    if isinstance(first, Grid):   # each result on axes of its own: stack the data, keep them
+        return Grid(_stacked([r.data for r in results], shape), first.axes)
     if isinstance(first, Record):
         return Record(first.kind, {k: _stacked([r.fields[k] for r in results], shape)
                                    for k in first.fields}, first.label)
@@ -433,7 +450,11 @@ def _stacked(results: list, shape: tuple):
     if is_date(first):
         from astropy.time import Time
 
-        return Time(results).reshape(shape + first.shape)
+        scale = first.scale
+        jd1 = np.stack([np.asarray(getattr(r, scale).jd1) for r in results])
+        jd2 = np.stack([np.asarray(getattr(r, scale).jd2) for r in results])
+        return Time(jd1.reshape(shape + jd1.shape[1:]), jd2.reshape(shape + jd2.shape[1:]),
+                    format="jd", scale=scale)
     values = np.stack([np.asarray(r.value) for r in results])
     return quantity(values.reshape(shape + values.shape[1:]), first.unit)
 

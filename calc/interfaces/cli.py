@@ -242,7 +242,20 @@ def _exit_code(sheet, monte_carlo: dict | None = None, ok: int = EXIT_OK) -> int
     if sheet.internal_errors() or any(isinstance(v, InternalError)
                                       for v in (monte_carlo or {}).values()):
         return EXIT_INTERNAL
-    return ok if sheet.ok else EXIT_SHEET_ERRORS
+    return ok if sheet.ok and not _sampling_errors(sheet, monte_carlo) else EXIT_SHEET_ERRORS
+
+
+def _sampling_errors(sheet, monte_carlo: dict | None) -> list[SheetError]:
+    """Errors of cells that fail under Monte Carlo only (a solve whose samples do not
+    converge), not those of cells that failed anyway or only because an input failed."""
+    from ..errors import InputFailedError
+
+    found = []
+    for name, value in (monte_carlo or {}).items():
+        if isinstance(value, SheetError) and not isinstance(value, InputFailedError) \
+                and name in sheet and sheet.cell(name).error is None:
+            found.append(value)
+    return found
 
 
 def _report(errors: list[SheetError], debug: bool) -> None:
@@ -316,7 +329,7 @@ def cmd_eval(args) -> int:
 
         print(render_text(sheet, args.digits, monte_carlo, args.mc, rows_shown=args.rows))
     _report_warnings(sheet)
-    _report(sheet.all_errors(), args.debug)
+    _report(sheet.all_errors() + _sampling_errors(sheet, monte_carlo), args.debug)
     return _exit_code(sheet, monte_carlo)
 
 
@@ -471,9 +484,19 @@ def _draw_plots(sheet, names: list[str], folder: str, fmt: str, force: bool) -> 
     if not specs:
         print(f"{sheet.source.label}: no plots to draw", file=sys.stderr)
         return []
+    from pathlib import Path
+
     from ..outputs.plot import write_plots
 
-    return write_plots(specs, folder, fmt, force=force)
+    target = Path(folder)
+    if target.exists() and not target.is_dir():
+        raise UsageError(f"-o {folder}: a file of that name is there; -o names a folder",
+                         hint="give a folder for the figures (it is made if missing)")
+    try:
+        return write_plots(specs, folder, fmt, force=force)
+    except OSError as exc:
+        raise UsageError(f"cannot write the figures into {folder}: {exc.strerror or exc}",
+                         hint="give a folder you can write to") from None
 
 
 def cmd_plot(args) -> int:
@@ -598,21 +621,26 @@ def cmd_funcs(args) -> int:
     own = ""
     if args.sheet:
         sheet = Sheet.load(args.sheet)
-        own = sheet_functions(sheet)
+        own = sheet_functions(sheet, [n for n in args.names if n in sheet.functions])
         if args.names:
             wanted = [n for n in args.names if n not in sheet.functions]
-            print(own + ("\n\n" + entries(wanted) if wanted else ""))
+            mine = [n for n in args.names if n in sheet.functions]
+            print((own if mine else "") + ("\n\n" if mine and wanted else "")
+                  + (entries(wanted) if wanted else ""))
             return EXIT_OK
     print((own + "\n\n" if own else "") + (entries(args.names) if args.names else listing()))
     return EXIT_OK
 
 
-def sheet_functions(sheet) -> str:
-    """The functions a sheet defines, as written, with their lines."""
+def sheet_functions(sheet, names: list[str] | None = None) -> str:
+    """The functions a sheet defines (those of ``names``, or all), as written, with their
+    lines."""
     if not sheet.functions:
         return f"{sheet.source.label} defines no functions"
     lines = [f"Functions of {sheet.source.label}"]
     for function in sheet.functions.values():
+        if names and function.name not in names:
+            continue
         params = ", ".join(name for name, _ in function.params)
         body = sheet.source.between(function.body.span)
         lines.append(f"  {function.name}({params}) = {body}    (line {function.span.line})")

@@ -28,12 +28,10 @@ _BOM = b"\xef\xbb\xbf"
 MARKER = "#→"
 
 
-def marker_text(cell: Cell, digits: int = 6, solved: bool = False) -> str:
+def marker_text(cell: Cell, digits: int = 6) -> str:
     """What follows `#→`: the cell's value (or error) as the report shows it, and for a long
-    array a digest of every element; `(solved)` after an unknown of a `solve` line."""
+    array a digest of every element."""
     text = cell_text(cell, digits)
-    if solved and cell.error is None:
-        text += "  (solved)"
     if cell.error is None:
         digest = array_digest(cell.raw, digits)
         if digest is not None:
@@ -84,7 +82,10 @@ def annotated_text(sheet: Sheet, text: str, digits: int = 6) -> str:
         # only blanks and tabs go before a marker: other characters Python calls white space
         # (U+2029, \x1c…) belong to the line
         keep = (body[:code_end] + _without_marker(body[code_end:])).rstrip(" \t")
-        markers[index] = (keep, marker_text(cell, digits, sheet.solved(cell.name)))
+        marker = marker_text(cell, digits)
+        if cell.error is None and sheet.solved(cell.name):   # an unknown of a `solve` line
+            marker += "  (solved)"
+        markers[index] = (keep, marker)
     out = list(lines)
     indices = sorted(markers)
     group: list[int] = []

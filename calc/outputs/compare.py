@@ -5,6 +5,7 @@ from __future__ import annotations
 import subprocess
 from pathlib import Path
 
+import astropy.units as u
 import numpy as np
 
 from ..engine.cells import Cell
@@ -25,11 +26,14 @@ def _relative(old: Cell | None, new: Cell | None) -> str:
     if old is None or new is None or old.error or new.error or is_record(old.raw) \
             or is_record(new.raw):
         return ""
+    old_value, new_value = _plain(old.value), _plain(new.value)
+    if old_value is None or new_value is None:   # dates, truths: as shown
+        return "0" if _shown(old) == _shown(new) else "changed"
     try:
-        a = np.asarray(old.value.to_value(new.value.unit), dtype=float)
+        a = np.asarray(old_value.to_value(new_value.unit), dtype=float)
     except Exception:
         return "unit changed"
-    b = np.asarray(new.value.value, dtype=float)
+    b = np.asarray(new_value.value, dtype=float)
     if a.shape != b.shape:
         return "shape changed"
     if not np.any(a != b):
@@ -40,6 +44,14 @@ def _relative(old: Cell | None, new: Cell | None) -> str:
     if not np.isfinite(change):
         return "from 0"
     return f"{change:+.3g}"
+
+
+def _plain(value):
+    """The numbers of a value (a value on axes: its data); None for dates and truths."""
+    data = getattr(value, "data", None)
+    if data is not None and hasattr(value, "axes"):
+        value = data
+    return value if isinstance(value, u.Quantity) else None
 
 
 def _same(old: Cell | None, new: Cell | None) -> bool:

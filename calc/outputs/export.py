@@ -128,6 +128,21 @@ def shown_json(s: Shown):
     return json_value(s.value)
 
 
+def _precise_dates(raw, shown_value):
+    """Dates in JSON to the nanosecond (the text shows milliseconds)."""
+    from ..engine.dates import UncertainDate, iso
+    from ..physics.records import is_date
+
+    data = getattr(raw, "data", None) if hasattr(raw, "axes") else None
+    value = data if data is not None else raw
+    if isinstance(value, UncertainDate):
+        value = value.nominal_date()
+    if not is_date(value):
+        return shown_value
+    text = iso(value, 9)
+    return text if isinstance(text, str) else list(text)
+
+
 def _leaf(s: Shown) -> dict:
     out = {"value": shown_json(s), "unit": None if s.kind != "quantity" else unit_string(s.unit)}
     if s.sigma is not None:
@@ -160,6 +175,8 @@ def cell_record(cell: Cell, sampled: ShownValue | None = None, solved: bool = Fa
             else as_shown(cell.raw)
         if isinstance(s, Shown):
             shown_value = shown_json(s)
+            if s.kind == "date":
+                shown_value = _precise_dates(cell.raw, shown_value)
             unit = unit_string(s.unit) if s.kind == "quantity" else None
             if s.axes:
                 axes = {"axes": list(s.axes), "shape": list(np.shape(s.value))}
@@ -171,13 +188,19 @@ def cell_record(cell: Cell, sampled: ShownValue | None = None, solved: bool = Fa
                                "84": json_value(points[2])}
         else:
             shown_value = record_value(s)
+    error = error_text(cell)
+    if error is None and sampled is not None and not isinstance(
+            sampled, (Shown, ShownRecord, ShownRecords)):
+        # failed under Monte Carlo only (a solve whose samples do not converge)
+        error = getattr(sampled, "message", str(sampled))
+        shown_value, sigma, unit = None, None, None
     record = {
         "name": cell.name,
         "line": cell.line,
         "value": shown_value,
         "unit": unit,
         "sigma": sigma,
-        "error": error_text(cell),
+        "error": error,
         "warnings": list(cell.warnings),
     }
     if percentiles is not None:
@@ -207,6 +230,10 @@ def sheet_record(sheet: Sheet, monte_carlo: dict | None = None,
         from .tables import table_record
 
         record["tables"] = [table_record(spec) for spec in tables]
+    # errors of the sheet that no cell carries (a refused correlation, a solve line, a table)
+    own = {id(c.error) for c in sheet.cells if c.error is not None}
+    record["errors"] = [f"{e.location}: {e.message}" + (f" (hint: {e.hint})" if e.hint else "")
+                        for e in sheet.all_errors() if id(e) not in own]
     if monte_carlo is not None:
         record["monte_carlo"] = {"samples": samples}
     return record
@@ -606,6 +633,14 @@ def _tex_leaves(path: str, value: ShownValue):
 
 
 def _tex_macro(s: Shown, declared: dict[str, str]) -> str:
+    if s.kind == "date":   # a date as written, in text (ISO with its scale, escaped)
+        text = s.value if isinstance(s.value, str) else str(s.value)
+        if s.sigma is not None:
+            text += f" ± {float(s.sigma):.2g} s"
+        safe = tex_comment(text).replace("±", "$\\pm$")
+        return "\\text{" + safe + "}"
+    if s.kind == "truth":
+        return "\\text{" + ("true" if bool(s.value) else "false") + "}"
     number = _tex_number(s)
     unit = siunitx_unit(s.unit, declared) if s.unit != u.dimensionless_unscaled else ""
     return f"\\qty{{{number}}}{{{unit}}}" if unit else f"\\num{{{number}}}"

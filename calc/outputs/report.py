@@ -6,7 +6,7 @@ from __future__ import annotations
 import astropy.units as u
 
 from ..engine.cells import Cell
-from ..engine.values import Shown
+from ..engine.values import Shown, ShownRecord, ShownRecords
 from ..language.syntax import Note, TableDef
 from ..physics.units import physical_type, unit_string, unit_text
 from .format import (
@@ -41,6 +41,11 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None,
             sampled = (monte_carlo or {}).get(item.name)
             if item.error is not None:
                 rows.append(("cell", item.name, f"error: {item.error.message}", ""))
+            elif sampled is not None and not isinstance(sampled, (Shown, ShownRecord,
+                                                                  ShownRecords)):
+                # the cell failed under Monte Carlo (a solve whose samples do not converge)
+                rows.append(("cell", item.name, f"error: {getattr(sampled, 'message', sampled)}",
+                             ""))
             elif isinstance(sampled, Shown) and sampled.samples is not None:
                 number, unit = format_quantity(sampled, digits)
                 if sheet.solved(item.name):
@@ -83,7 +88,7 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None,
         elif row[0] == "table":
             from .tables import table_text
 
-            lines += ["", *table_text(row[1], rows_shown).splitlines()]
+            lines += ["", *table_text(row[1], rows_shown, digits).splitlines()]
         elif row[0] == "warning":
             label = "" if row[1].startswith("16 / 50 / 84 %") else "warning: "
             lines.append(f"  {'':<{name_width}}  {label}{row[1]}")

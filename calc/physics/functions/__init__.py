@@ -121,6 +121,14 @@ class FunctionSpec:
         return frozenset(out)
 
     @cached_property
+    def date_parameters(self) -> frozenset[str]:
+        """Parameters that take dates (their kind mentions a date); `span` takes them too."""
+        if self.name == "span":
+            return frozenset({"start", "stop"})
+        return frozenset(name for name, kind in self._kinds.items()
+                         if "date" in kind and name != "return")
+
+    @cached_property
     def record_parameters(self) -> frozenset[str]:
         """Parameters that take orbit records (their kind mentions a record)."""
         if self.topic in ("math", "arrays"):

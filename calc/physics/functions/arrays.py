@@ -25,10 +25,14 @@ _ONE = u.dimensionless_unscaled
 
 
 def _flags(condition, name: str) -> np.ndarray:
+    # truths (what a comparison gives) hold their flags as an array of bools; numpy arrays and
+    # Quantities have a `flags` attribute of another kind
     flags = getattr(condition, "flags", None)
-    if flags is None:
+    if not isinstance(flags, np.ndarray) or flags.dtype != bool:
+        unit = getattr(condition, "unit", None)
+        what = describe(unit) if unit is not None else "a value that is no condition"
         raise ArgumentError(f"`{name}` must be a condition (a comparison such as `x > 3 km`), "
-                            f"got {describe(condition.unit)}", name)
+                            f"got {what}", name)
     return flags
 
 
