@@ -94,8 +94,8 @@ def kepler(mean_anomaly: Angle, e: Dimensionless) -> Angle:
     PPN:       none (Newtonian two-body problem).
     Source:    Danby 1988, Fundamentals of Celestial Mechanics, 2nd ed., §6.6 (starter
                k = 0.85, from memory); Murray & Dermott 1999, Solar System Dynamics,
-               eq. (2.52) (from memory). Checked against scipy.optimize.brentq and against
-               Meeus 1998, Astronomical Algorithms, 2nd ed., Example 30.a (from memory).
+               eq. (2.52) (from memory: a book not available here). Checked against scipy.optimize.brentq and against
+               Meeus 1998, Astronomical Algorithms, 2nd ed., Example 30.a (from memory: a book not available here).
     """
     ecc = _eccentricity_array(e)
     if mean_anomaly.unit.physical_type == "angle":
@@ -238,8 +238,8 @@ def orbit_state(M: Mass, orbit: Orbit, t: Date) -> State:
                periapsis advance. Dates are used in TDB (t − t_peri in TDB seconds).
     PPN:       none (Newtonian).
     Source:    Murray & Dermott 1999, Solar System Dynamics, eqs. (2.41)–(2.42), (2.122)
-               (from memory); Vallado 2013, Fundamentals of Astrodynamics and Applications,
-               4th ed., Algorithm 10 (COE2RV) (from memory).
+               (from memory: a book not available here); Vallado 2013, Fundamentals of Astrodynamics and Applications,
+               4th ed., Algorithm 10 (COE2RV) (from memory: a book not available here).
     """
     dates = check.date(t, "t")
     elements, mu, n, E = orbit_phase(M, orbit, dates)

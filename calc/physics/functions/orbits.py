@@ -299,7 +299,7 @@ def lense_thirring_node_rate(J: AngularMomentum, a: Length, e: Dimensionless,
     Source:    Lense & Thirring 1918, Phys. Z. 19, 156 (from memory: not reachable here);
                re-derived in the tests by averaging the IERS Conventions (2010) ch. 10
                gravitomagnetic acceleration over the orbit with Gauss's equations; LAGEOS,
-               about 31 mas/yr (Ciufolini & Pavlis 2004, Nature 431, 958; from memory).
+               about 31 mas/yr (Ciufolini & Pavlis 2004, Nature 431, 958; from memory: not reachable here).
     """
     G, spin, c, semi, ecc, g = _lense_thirring_arguments(J, a, e, gamma)
     node, _ = lense_thirring_rates(G, spin, c, semi, ecc, 0.0, g)
@@ -400,7 +400,7 @@ def tidal_apsidal_rate(M: Mass, m: Mass, R: Length, k2: Dimensionless, a: Length
                limit are beyond it. The periapsis must lie outside R.
     PPN:       none (Newtonian).
     Source:    {rw09}, eqs. (6)–(7) as reproduced in later work (the paper's full text was
-               not reachable here); Sterne 1939, MNRAS 99, 451 (from memory). The 15/2 and
+               not reachable here); Sterne 1939, MNRAS 99, 451 (from memory: not reachable here). The 15/2 and
                f2(e) are re-derived in the tests by averaging the tidal force over the orbit.
     """
     args = _bulge_arguments(M, m, R, k2, a, e)

@@ -70,7 +70,7 @@ def orbit(a: Length, e: Dimensionless, i: Angle | None = None, node: Angle | Non
     Validity:  osculating or mean elements, as the source gives them; angles in one frame;
                dates are read in TDB by the functions that use them.
     PPN:       none.
-    Source:    Murray & Dermott 1999, Solar System Dynamics, §2.8 (from memory).
+    Source:    Murray & Dermott 1999, Solar System Dynamics, §2.8 (from memory: a book not available here).
     """
     check.length(a, "a")
     ecc = check.eccentricity(e)

@@ -88,7 +88,7 @@ def binary_delays(t: Date, Pb: Time, x: Time, e: Dimensionless, omega: Angle, T0
     Source:    Damour & Deruelle 1986, Ann. Inst. Henri Poincaré (Phys. Théor.) 44, 263,
                §§4–5: Roemer, Einstein and Shapiro delays and the timing formula (equation
                numbers not checked here, from memory); Taylor & Weisberg 1989, ApJ 345,
-               434 (from memory); PSR B1913+16 from Weisberg & Huang 2016, ApJ 829, 55.
+               434 (from memory: not reachable here); PSR B1913+16 from Weisberg & Huang 2016, ApJ 829, 55.
     """
     dates = check.date(t, "t")
     start = check.date(T0, "T0")
@@ -196,7 +196,7 @@ def sagnac_delay(sender: State, receiver: State, omega: AngularRate | None = Non
                2ω π R²/c² ≈ 207.4 ns.
     PPN:       none (kinematic).
     Source:    Ashby 2003, Living Rev. Relativity 6, 1, §2 (Sagnac effect; ω_E, WGS-84)
-               (equation number from memory); IERS Conventions (2010), ch. 10 (from memory).
+               (equation number from memory); IERS Conventions (2010), ch. 10 (from memory: the chapter was not reachable here).
     """
     xs, ys, _ = _positions(sender, "sender")
     xr, yr, _ = _positions(receiver, "receiver")
