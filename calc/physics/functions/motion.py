@@ -238,8 +238,9 @@ def orbit_state(M: Mass, orbit: Orbit, t: Date) -> State:
                periapsis advance. Dates are used in TDB (t − t_peri in TDB seconds).
     PPN:       none (Newtonian).
     Source:    Murray & Dermott 1999, Solar System Dynamics, eqs. (2.41)–(2.42), (2.122)
-               (from memory: a book not available here); Vallado 2013, Fundamentals of Astrodynamics and Applications,
-               4th ed., Algorithm 10 (COE2RV) (from memory: a book not available here).
+               (from memory: a book not available here); Vallado 2013, Fundamentals of
+               Astrodynamics and Applications, 4th ed., Algorithm 10 (COE2RV) (from memory:
+               a book not available here).
     """
     dates = check.date(t, "t")
     elements, mu, n, E = orbit_phase(M, orbit, dates)
