@@ -48,7 +48,8 @@ def deflection(M: Mass, b: Length, gamma: Dimensionless | None = None) -> Angle:
     PPN:       (1 + γ)/2: "the bending and delay are proportional to γ + 1" (Bertotti, Iess
                & Tortora 2003, Nature 425, 374).
     Source:    Einstein 1916, Ann. Phys. 49, 769 (from memory: not reachable here), 1.7512″
-               at the solar limb (from memory: the paper is not reachable here); for an observer at a finite distance it
+               at the solar limb (from memory: the paper is not reachable here); for an
+               observer at a finite distance it
                agrees with ERFA's eraLd through `deflection_at_elongation`.
     """
     gm = check.gravitational_parameter(M)

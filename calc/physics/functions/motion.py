@@ -94,8 +94,9 @@ def kepler(mean_anomaly: Angle, e: Dimensionless) -> Angle:
     PPN:       none (Newtonian two-body problem).
     Source:    Danby 1988, Fundamentals of Celestial Mechanics, 2nd ed., §6.6 (starter
                k = 0.85, from memory); Murray & Dermott 1999, Solar System Dynamics,
-               eq. (2.52) (from memory: a book not available here). Checked against scipy.optimize.brentq and against
-               Meeus 1998, Astronomical Algorithms, 2nd ed., Example 30.a (from memory: a book not available here).
+               eq. (2.52) (from memory: a book not available here). Checked against
+               scipy.optimize.brentq and against Meeus 1998, Astronomical Algorithms, 2nd ed.,
+               Example 30.a (from memory: a book not available here).
     """
     ecc = _eccentricity_array(e)
     if mean_anomaly.unit.physical_type == "angle":

@@ -196,7 +196,8 @@ def sagnac_delay(sender: State, receiver: State, omega: AngularRate | None = Non
                2ω π R²/c² ≈ 207.4 ns.
     PPN:       none (kinematic).
     Source:    Ashby 2003, Living Rev. Relativity 6, 1, §2 (Sagnac effect; ω_E, WGS-84)
-               (equation number from memory); IERS Conventions (2010), ch. 10 (from memory: the chapter was not reachable here).
+               (equation number from memory); IERS Conventions (2010), ch. 10 (from memory:
+               the chapter was not reachable here).
     """
     xs, ys, _ = _positions(sender, "sender")
     xr, yr, _ = _positions(receiver, "receiver")
