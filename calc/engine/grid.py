@@ -24,6 +24,7 @@ from typing import Any, NamedTuple
 import numpy as np
 
 from ..errors import DomainError
+from .operators import WrappedArithmetic
 
 
 class Axis(NamedTuple):
@@ -56,11 +57,10 @@ def key(axis: Axis) -> tuple:
 _key = key
 
 
-class Grid:
+class Grid(WrappedArithmetic):
     """A value on named axes: ``data`` (a leaf) whose last ``len(axes)`` value dimensions are
     ``axes``. Operators align the operands' axes and apply to the data."""
 
-    __array_ufunc__ = None  # numpy and astropy defer to the operators below
     __slots__ = ("data", "axes")
 
     def __init__(self, data: Any, axes: tuple[Axis, ...]) -> None:
@@ -83,41 +83,8 @@ class Grid:
         (a, b), axes = align(self, other)
         return wrap(operation(b, a) if reflected else operation(a, b), axes)
 
-    def __add__(self, other):
-        return self._apply(other, lambda a, b: a + b)
-
-    def __radd__(self, other):
-        return self._apply(other, lambda a, b: a + b, reflected=True)
-
-    def __sub__(self, other):
-        return self._apply(other, lambda a, b: a - b)
-
-    def __rsub__(self, other):
-        return self._apply(other, lambda a, b: a - b, reflected=True)
-
-    def __mul__(self, other):
-        return self._apply(other, lambda a, b: a * b)
-
-    def __rmul__(self, other):
-        return self._apply(other, lambda a, b: a * b, reflected=True)
-
-    def __truediv__(self, other):
-        return self._apply(other, lambda a, b: a / b)
-
-    def __rtruediv__(self, other):
-        return self._apply(other, lambda a, b: a / b, reflected=True)
-
-    def __pow__(self, other):
-        return self._apply(other, lambda a, b: a ** b)
-
-    def __rpow__(self, other):
-        return self._apply(other, lambda a, b: a ** b, reflected=True)
-
     def __neg__(self):
         return Grid(-self.data, self.axes)
-
-    def __pos__(self):
-        return self
 
     def __repr__(self) -> str:
         return f"<Grid over {', '.join(a.label for a in self.axes)}: {self.data!r}>"

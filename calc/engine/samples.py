@@ -23,12 +23,12 @@ import astropy.units as u
 import numpy as np
 
 from ..physics.units import quantity
+from .operators import WrappedArithmetic
 
 
-class Samples:
+class Samples(WrappedArithmetic):
     """N samples of a value: ``data`` has shape (N, *shape)."""
 
-    __array_ufunc__ = None  # numpy and astropy defer to the operators below
     __slots__ = ("data",)
 
     def __init__(self, data: u.Quantity) -> None:
@@ -73,41 +73,12 @@ class Samples:
         a, b = aligned(self, other)
         return wrap(operation(b, a) if reflected else operation(a, b))
 
-    def __add__(self, other):
-        return self._apply(other, lambda a, b: a + b)
-
-    def __radd__(self, other):
-        return self._apply(other, lambda a, b: a + b, reflected=True)
-
-    def __sub__(self, other):
-        return self._apply(other, lambda a, b: a - b)
-
-    def __rsub__(self, other):
-        return self._apply(other, lambda a, b: a - b, reflected=True)
-
-    def __mul__(self, other):
-        return self._apply(other, lambda a, b: a * b)
-
-    def __rmul__(self, other):
-        return self._apply(other, lambda a, b: a * b, reflected=True)
-
-    def __truediv__(self, other):
-        return self._apply(other, lambda a, b: a / b)
-
-    def __rtruediv__(self, other):
-        return self._apply(other, lambda a, b: a / b, reflected=True)
-
-    def __pow__(self, exponent):
-        return self._apply(exponent, _power)
-
-    def __rpow__(self, base):
-        return self._apply(base, _power, reflected=True)
+    @staticmethod
+    def _power(base, exponent):
+        return _power(base, exponent)
 
     def __neg__(self):
         return Samples(-self.data)
-
-    def __pos__(self):
-        return self
 
     def __repr__(self) -> str:
         return f"<Samples {self.count} of shape {self.shape} {self.unit}>"
