@@ -183,3 +183,26 @@ def test_grazing_inside_ten_schwarzschild_radii_warns():
 def test_conjunction_form_far_from_conjunction_warns():
     sheet = evaluate("x = conjunction_delay(1 Msun, 1 AU, 1.52 AU, 0.5 AU)")
     assert "near-conjunction form" in sheet.cell("x").warnings[0]
+
+
+def test_shapiro_delay_with_both_ends_on_one_side_of_the_mass():
+    # inferior-conjunction geometry: the closest point of the path is an end, not the foot of
+    # the perpendicular; reference: the PPN light-time integral along the same segment
+    # (tests/independent.py, by quadrature), with the path from z = d2 to z = d1 beyond the foot
+    from independent import ppn_light_time_excess
+
+    from calc.engine.sheet import Sheet
+
+    au = 1.495978707e11
+    gm = 1.3271244e20
+    r1, r2, sep = 1.0 * au, 0.5 * au, 0.6 * au
+    s = (r1 + r2 + sep) / 2
+    b = 2 * math.sqrt(s * (s - r1) * (s - r2) * (s - sep)) / sep
+    d1, d2 = math.sqrt(r1**2 - b**2), math.sqrt(r2**2 - b**2)
+    expected = ppn_light_time_excess(gm, b, -d2, d1, 1.0)
+    sheet = Sheet.from_text("x = shapiro_delay(1.3271244e20 m^3 / s^2, 1 AU, 0.5 AU, 0.6 AU) in s\n"
+                            "y = shapiro_delay(1.3271244e20 m^3 / s^2, 1 AU, 0.5 AU, 0.5 AU) in s\n")
+    # the integral keeps the (GM/c²r)² terms the first-order formula drops: 1e-8 relative
+    assert sheet["x"].value == pytest.approx(expected, rel=1e-6)
+    # the collinear case (the path points at the mass) is accepted, not refused
+    assert sheet.cell("y").error is None

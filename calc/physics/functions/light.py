@@ -164,7 +164,13 @@ def shapiro_delay(M: Mass, r_emit: Length, r_recv: Length, separation: Length,
     # the ray's closest approach, from the triangle, for the weak-field check
     s = (r1 + r2 + sep) / 2
     area = np.sqrt(np.maximum(s * (s - r1) * (s - r2) * (s - sep), 0))
-    check.weak_field(gm, 2 * area / sep, "closest approach", c)
+    near, far = np.minimum(r1, r2), np.maximum(r1, r2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        height = 2 * area / sep
+    # the segment's closest point to the mass: the foot of the perpendicular, or the nearer end
+    # when the foot falls outside the segment (both ends on one side, as at inferior conjunction)
+    closest = np.where(far**2 >= near**2 + np.asarray(sep) ** 2, near, height)
+    check.weak_field(gm, closest, "closest approach", c)
     delay = (1 + g) * gm / c**3 * np.log((total + sep) / (total - sep))
     return quantity(delay * 1e6, u.us)
 
