@@ -48,7 +48,7 @@ def test_eval_json_schema(sheet_file):
     result = relsheet("eval", str(path), "--format", "json")
     assert result.returncode == 2
     doc = json.loads(result.stdout)
-    assert set(doc) == {"sheet", "constants", "cells", "checks"}
+    assert set(doc) == {"sheet", "constants", "cells", "checks", "errors"}
     assert doc["constants"] == ["codata2022", "iau2015"] and doc["checks"] == []
     cells = {c["name"]: c for c in doc["cells"]}
     assert [c["name"] for c in doc["cells"]] == ["a", "xs", "bad", "r"]   # file order
