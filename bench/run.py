@@ -316,6 +316,9 @@ def p13_editor(repeats: int) -> Figure:
     fig = Figure("P13", "editor: a didChange of one input of a 500-cell sheet to published "
                         "diagnostics and inlay hints vs `relsheet eval` of it in process", 0.2)
     fig.notes.append(f"{incremental} of the edits were evaluated incrementally")
+    return _summarise(fig, ta, tb)
+
+
 def p10_plot(repeats: int, workdir: Path) -> Figure:
     sheet = workdir / "plot.sheet"
     sheet.write_text(workloads.plot_sheet())

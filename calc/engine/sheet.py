@@ -23,6 +23,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -41,7 +42,6 @@ from ..files import read_sheet
 from ..language.parse import parse_expression, parse_line
 from ..language.scope import Scope
 from ..language.syntax import CellDef, CheckDef, Expr, PlotDef, TableDef, UseDef
-from ..outputs.figures import PlotSpec, TableSpec
 from ..physics.constants import ConstantSelection
 from ..physics.units import conversion_scale, physical_type, unit_table, unit_text
 from . import budget, montecarlo
@@ -56,6 +56,9 @@ from .values import ShownValue, is_record
 
 if TYPE_CHECKING:
     from .stream import ChunkEvaluator
+
+if TYPE_CHECKING:
+    from ..outputs.figures import PlotSpec, TableSpec
 
 #: A set of cell names (spelled here because the method `Sheet.set` hides the builtin in
 #: the class body).

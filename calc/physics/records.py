@@ -13,6 +13,8 @@ from __future__ import annotations
 
 import sys
 
+from astropy.units import Quantity
+
 import astropy.units as u
 import numpy as np
 
@@ -104,6 +106,9 @@ class RecordList:
 
 RECORD_TYPES = (Record, RecordList)
 
+#: kinds of value that are never dates (checked first: most values are quantities)
+_NEVER_DATES = frozenset({Quantity, Record, RecordList, float, int, str, type(None)})
+
 
 def is_record(value) -> bool:
     return isinstance(value, RECORD_TYPES)
@@ -112,5 +117,7 @@ def is_record(value) -> bool:
 def is_date(value) -> bool:
     """Whether a value is a date (an astropy Time). astropy.time is imported only by sheets
     that use dates, so a value cannot be one while the module is not loaded."""
+    if type(value) in _NEVER_DATES:   # the common case, without astropy's slower isinstance
+        return False
     module = sys.modules.get("astropy.time")
     return module is not None and isinstance(value, module.Time)
