@@ -23,7 +23,6 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING
-from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np

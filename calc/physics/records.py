@@ -13,10 +13,9 @@ from __future__ import annotations
 
 import sys
 
-from astropy.units import Quantity
-
 import astropy.units as u
 import numpy as np
+from astropy.units import Quantity
 
 from ..errors import DomainError, NameResolutionError
 from .units import close_matches, did_you_mean
