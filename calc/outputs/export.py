@@ -686,6 +686,8 @@ def to_tex(sheet: Sheet) -> str:
             what = "failed" if s is None else "is an array"
             body.append(f"% {tex_comment(cell.name)} {what}: no macro")
             continue
+        if sheet.solved(cell.name):
+            body.append(f"% {tex_comment(cell.name)}: solved (an unknown of a `solve` line)")
         body.append(f"\\newcommand{{{name}}}{{{_tex_macro(s, declared)}}}")
     for spec in _sheet_tables(sheet):
         from .tables import table_latex
