@@ -197,15 +197,16 @@ class Problem:
         rows = []
         for k, (left, right) in enumerate(self.sides(z)):
             lv, rv = _numbers(left, self.program, k), _numbers(right, self.program, k)
+            if self.sampled:
+                # samples first, then the value's own dimensions, on both sides alike
+                width = max(_value_ndim(left, lv), _value_ndim(right, rv))
+                lv, rv = _framed(left, lv, width), _framed(right, rv, width)
             try:
                 scale = conversion_scale(_unit(right), _unit(left))
             except u.UnitConversionError:
                 raise UnitError(f"the sides of equation {k + 1} are {describe(_unit(left))} and "
                                 f"{describe(_unit(right))}", self.program.definition.equations[k].span
                                 ) from None
-            if self.sampled and lv.ndim != rv.ndim:
-                # samples first: a side of single values meets a side on axes per sample
-                lv, rv = _padded(lv, rv.ndim), _padded(rv, lv.ndim)
             rows.append(lv - rv * scale)
         if self.sampled:
             widest = max(r.ndim for r in rows)
@@ -219,6 +220,26 @@ class Problem:
                                         np.where(size > 0, size, 1.0))
         shape = (len(rows),) + (1,) * (stacked.ndim - 1)
         return stacked / self.side_scales.reshape(shape)
+
+
+def _sampled(value) -> bool:
+    if isinstance(value, Grid):
+        value = value.data
+    return isinstance(value, Samples)
+
+
+def _value_ndim(value, numbers: np.ndarray) -> int:
+    """How many dimensions a side has of its own (without the sample axis)."""
+    return numbers.ndim - 1 if _sampled(value) else numbers.ndim
+
+
+def _framed(value, numbers: np.ndarray, width: int) -> np.ndarray:
+    """A side's numbers as (samples or 1, …, value dimensions) with ``width`` value
+    dimensions, so that both sides and every equation broadcast alike."""
+    own = _value_ndim(value, numbers)
+    if _sampled(value):
+        return numbers.reshape(numbers.shape[:1] + (1,) * (width - own) + numbers.shape[1:])
+    return numbers.reshape((1,) + (1,) * (width - own) + numbers.shape)
 
 
 def _padded(values: np.ndarray, ndim: int) -> np.ndarray:

@@ -401,7 +401,16 @@ def per_record_point(apply: Callable, values: tuple, shape: tuple[int, ...], axe
             data = transposed(data, tuple(order))
         return grid_wrap(data, tuple(combined[i] for i in order))
 
-    return map_leaves(place, stacked)
+    def place_all(value):
+        # through records only: a value on axes is placed whole (map_leaves would enter it)
+        if isinstance(value, Record):
+            return Record(value.kind, {k: place_all(v) for k, v in value.fields.items()},
+                          value.label)
+        if isinstance(value, RecordList):
+            return RecordList(tuple(place_all(r) for r in value.items))
+        return place(value)
+
+    return place_all(stacked)
 
 
 def _point_of(record: Record, index: tuple, shape: tuple):

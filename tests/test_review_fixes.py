@@ -1,0 +1,137 @@
+"""What a practitioner's review of axes, dates and solving found: one test per finding."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from calc.engine.grid import Grid
+from calc.engine.sheet import Sheet
+from calc.outputs.export import to_json, to_tex
+
+
+def sheet(text: str) -> Sheet:
+    return Sheet.from_text(text, "t.sheet")
+
+
+def error(s: Sheet, name: str) -> str:
+    err = s.cell(name).error
+    assert err is not None, f"{name} evaluated"
+    return err.message
+
+
+@pytest.mark.parametrize("expr, message", [
+    ("sort(hours)", "sort: `x` takes a quantity, not dates"),
+    ("diff(hours)", "diff: `x` takes a quantity, not dates"),
+    ("min(hours)", "min: `value 1` takes a quantity, not dates"),
+    ("interp(t0, hours, y)", "interp: `x_new` takes a quantity, not dates"),
+])
+def test_functions_of_quantities_refuse_dates_at_the_argument(expr, message):
+    s = sheet("t0 = 2031-07-26T06:00:00 TDB\nhours = axis(span(t0, t0 + 2 d, 3))\n"
+              "y = (hours - t0) / 1 day\nr = " + expr + "\n")
+    assert error(s, "r") == message
+    assert s.cell("r").error.hint.startswith("subtract a reference date")
+
+
+def test_a_what_if_on_a_date_cell():
+    s = sheet("t0 = 2031-01-01T00:00:00 TDB\nlater = t0 + 1 d\n")
+    s.set("t0", "2031-07-28T00:00:00 TDB")
+    assert s.raw("later").isot == "2031-07-29T00:00:00.000"
+    with pytest.raises(Exception, match="is a date, the new value is not a date"):
+        s.set("t0", "4 kg")
+
+
+def test_latex_of_dates_is_text():
+    s = sheet("t0 = 2031-07-26T06:00:00 TDB ± 2 s\n")
+    assert "\\newcommand{\\rsTZero}{\\text{2031-07-26T06:00:00.000 TDB $\\pm$ 2 s}}" in to_tex(s)
+
+
+def test_diff_of_a_sheet_with_itself_on_axes_changes_nothing(tmp_path):
+    path = tmp_path / "g.sheet"
+    path.write_text("el = axis([1, 2, 3] deg)\nr = axis([1, 2] AU)\nz = el * r\n")
+    done = subprocess.run([sys.executable, "-m", "calc", "diff", str(path), str(path)],
+                          capture_output=True, text=True)
+    assert "no cell changed" in done.stdout, done.stdout
+
+
+def test_monte_carlo_through_a_solve_over_an_axis():
+    s = sheet("k = 2 ± 0.1\nm = axis([1, 2, 3])\ny = 1\nsolve y * k == m for y\n")
+    shown = s.monte_carlo(4000, seed=4)["y"]
+    # y = m / k: σ_y = m σ_k / k² (first order), to the few per cent 4000 samples allow
+    np.testing.assert_allclose(shown.sigma, np.array([1, 2, 3]) * 0.1 / 4, rtol=0.08)
+
+
+def test_samples_that_do_not_converge_make_the_unknown_fail_and_the_exit_code_two(tmp_path):
+    path = tmp_path / "s.sheet"
+    path.write_text("a = 0.1 ± 0.2 m^2\ny = 1 m\nsolve y^2 == a for y\n")
+    done = subprocess.run([sys.executable, "-m", "calc", "eval", str(path), "--mc", "500",
+                           "--seed", "1"], capture_output=True, text=True)
+    assert done.returncode == 2
+    assert "Monte Carlo samples did not converge" in done.stdout + done.stderr
+
+
+def test_a_refused_solve_leaves_no_starting_value():
+    s = sheet("w = 1 m\nsolve w^2 == 4 m^2 for w in [0 m, 3 m], w in [0 m, 1 m]\nq = w * 2\n")
+    assert error(s, "w") == "`w` is listed twice among the unknowns"
+    assert s.cell("q").error is not None
+
+
+def test_sigma_budget_of_a_value_on_an_axis():
+    s = sheet("M = 1.0 ± 0.1 Msun\nax = axis([1, 2])\nva = ax * M\n")
+    rows = s.sigma_budget("va")
+    assert len(rows) == 1 and rows[0].share == pytest.approx(1.0)
+
+
+def test_sheet_errors_no_cell_carries_are_in_json():
+    s = sheet("a = 1 ± 0.1\nb = 2 ± 0.2\ncorrelation a, b = 1.5\ne = a + b\n")
+    errors = json.loads(to_json(s))["errors"]
+    assert errors and "from -1 to 1" in errors[0]
+
+
+def test_a_whole_slice_keeps_its_axis():
+    s = sheet("el = axis([1, 2, 3] deg)\nr = axis([1, 2] AU)\nz = el * r\ncol = z[:, 1]\n"
+              "m = max(z[:, 1], along = el)\n")
+    assert isinstance(s.raw("col"), Grid) and s.raw("col").axes[0].name == "el"
+    assert s["m"].value == pytest.approx(6.0)
+
+
+def test_count_of_values_that_are_no_truths_is_refused():
+    s = sheet("y = [1, 2] m\nn = count(y)\na = any(y)\n")
+    assert error(s, "n").startswith("count: `condition` must be a condition")
+    assert error(s, "a").startswith("any: `condition` must be a condition")
+
+
+def test_checks_of_values_on_axes_and_of_dates():
+    s = sheet("t = axis([1, 2, 3] s)\ny = t * 1 m / s\ncheck y < 10 m\ncheck y > 2 m\n"
+              "t0 = 2031-01-01 TDB\nt1 = t0 + 1 d\ncheck t1 > t0\n")
+    assert [r.passed for r in s.checks] == [True, False, True]
+    assert all(r.error is None for r in s.checks)
+
+
+def test_two_plots_of_the_same_cells_get_two_names():
+    s = sheet("t = [1, 2, 3] s\ny = [1, 4, 9] m\nplot y vs t\nplot y vs t log y\n")
+    assert [p.name for p in s.plots()] == ["y_vs_t", "y_vs_t_2"]
+
+
+def test_plot_output_that_is_a_file_is_refused(tmp_path):
+    path = tmp_path / "p.sheet"
+    path.write_text("t = [1, 2, 3] s\ny = [1, 4, 9] m\nplot y vs t\n")
+    target = tmp_path / "afile"
+    target.write_text("")
+    done = subprocess.run([sys.executable, "-m", "calc", "plot", str(path), "-o", str(target)],
+                          capture_output=True, text=True)
+    assert done.returncode == 64 and "-o names a folder" in done.stderr
+
+
+def test_orbit_states_of_an_array_of_orbits_over_an_axis_of_dates():
+    s = sheet("aa = axis([1, 2] AU)\no = orbit(a = aa, e = 0.1, t_peri = 2031-01-01 TDB)\n"
+              "days = axis(span(2031-01-01 TDB, 2031-03-01 TDB, 3))\n"
+              "st = orbit_state(1 Msun, o, days)\nx = st.x\n")
+    x = s.raw("x")
+    assert isinstance(x, Grid) and [a.name for a in x.axes] == ["aa", "days"]
+    # at periapsis (the first date) x = a (1 − e) for each orbit (common practice)
+    np.testing.assert_allclose(x.data.value[:, 0], [0.9, 1.8], rtol=1e-12)
