@@ -135,3 +135,20 @@ def test_orbit_states_of_an_array_of_orbits_over_an_axis_of_dates():
     assert isinstance(x, Grid) and [a.name for a in x.axes] == ["aa", "days"]
     # at periapsis (the first date) x = a (1 − e) for each orbit (common practice)
     np.testing.assert_allclose(x.data.value[:, 0], [0.9, 1.8], rtol=1e-12)
+
+
+def test_the_points_of_integral_and_gradient_name_the_axis():
+    s = sheet("el = axis([1, 2, 3] deg)\nr = axis([1, 2] AU)\nz = el^2 * r / 1 deg\n"
+              "g = gradient(z, el)\ni = integral(z, el)\n")
+    z = np.array([1.0, 4.0, 9.0])[:, None] * np.array([1.0, 2.0])[None, :]
+    # reference: numpy's gradient and scipy's trapezoid along the first axis
+    import scipy.integrate
+
+    np.testing.assert_allclose(s.raw("g").data.value, np.gradient(z, [1, 2, 3], axis=0))
+    np.testing.assert_allclose(s.raw("i").data.value,
+                               scipy.integrate.trapezoid(z, [1, 2, 3], axis=0))
+
+
+def test_an_error_inside_a_sheet_function_names_the_call():
+    s = sheet("ratio(x, y) = x / (x + y)\na = ratio(1 km, 2 km)\nbad = ratio(1 km, 3 s)\n")
+    assert error(s, "bad").startswith("in ratio(x, y), called on line 3: cannot add")

@@ -865,11 +865,25 @@ class _Compiler:
                                 missing[0], span=node.span)
         self.bindings.append(bound)
         self.expanding.append(name)
+        call_line = node.span.line
         try:
-            return self.expr(function.body, depth + 1)
+            code = self.expr(function.body, depth + 1)
+        except SheetError as err:
+            raise _at_call(err, signature, call_line, function.span.line) from None
         finally:
             self.bindings.pop()
             self.expanding.pop()
+        if isinstance(code, Const):
+            return code
+        body_code = code
+
+        def called(env):
+            try:
+                return body_code(env)
+            except SheetError as err:
+                raise _at_call(err, signature, call_line, function.span.line) from None
+
+        return called
 
     def array(self, node: ArrayLiteral, depth: int) -> Code:
         if not node.items:
@@ -1020,6 +1034,18 @@ def _is_literal(node, scope: Scope, depth: int = 0) -> bool:
     if kind is ArrayLiteral:
         return all(_is_literal(item, scope, depth + 1) for item in node.items)
     return False
+
+
+def _at_call(err: SheetError, signature: str, call_line: int, body_line: int) -> SheetError:
+    """An error inside a sheet's function, saying which call it came from (it stays at the
+    function's body, where the operation that failed is written)."""
+    import copy
+
+    if call_line == body_line or err.message.startswith(f"in {signature}"):
+        return err
+    named = copy.copy(err)
+    named.message = f"in {signature}, called on line {call_line}: {err.message}"
+    return named
 
 
 def _dated(value) -> bool:

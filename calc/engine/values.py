@@ -328,6 +328,10 @@ def _over_axes(call: Callable, values: tuple, samplewise: bool, name: str | None
             if along is not None:
                 raise DomainError(f"`along = {along}`: the value is on no axis")
             return _apply_leaves(call, values, samplewise, name)
+        if along is None and len(values) > 1 and isinstance(values[1], Grid) \
+                and len(values[1].axes) == 1 and values[1].axes[0] in first.axes:
+            # integral(y, x), gradient(y, x): the points x name the axis to work along
+            along = values[1].axes[0].name
         data, rest, axis = move_last(first, along)
         others, axes = _aligned_rest(values[1:], (*rest, axis))
         result = _apply_leaves(call, (data, *others), samplewise, name)
