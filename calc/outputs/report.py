@@ -6,7 +6,7 @@ from __future__ import annotations
 import astropy.units as u
 
 from ..engine.cells import Cell
-from ..engine.values import Shown, ShownRecord, ShownRecords
+from ..engine.values import Shown, ShownRecord, ShownRecords, is_record
 from ..language.syntax import Note, TableDef
 from ..physics.units import physical_type, unit_string, unit_text
 from .format import (
@@ -57,7 +57,8 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None,
                 if sheet.solved(item.name):
                     unit = f"{unit}  (solved)" if unit else "(solved)"
                 rows.append(("cell", item.name, number, unit))
-                rows += [("field", *row) for row in record_rows(item.raw, digits)]
+                if is_record(item.raw):   # only records have fields (a shown form costs)
+                    rows += [("field", *row) for row in record_rows(item.raw, digits)]
             rows += [("warning", text) for text in item.warnings]
         elif isinstance(item, Note) and item.heading:
             rows.append(("heading", item.text))
