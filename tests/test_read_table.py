@@ -172,3 +172,16 @@ def test_a_record_of_columns_refuses_arithmetic(tmp_path):
     sheet = Sheet.load(tmp_path / "t.sheet")
     assert "is not a number" in sheet.cell("x").error.message
     assert sheet.cell("y").error.message == "the table record `obs` has no field `c`"
+
+
+def test_a_tables_rows_are_an_axis_named_after_its_cell(tmp_path):
+    # DESIGN §9: the columns are arrays on an axis named after the record's cell
+    (tmp_path / "obs.csv").write_text("flux [Jy],t [d]\n1.0,1\n3.0,2\n2.0,3\n")
+    (tmp_path / "t.sheet").write_text('obs = read_table("obs.csv")\n'
+                                      "m = max(obs.flux, along = obs)\n"
+                                      "el = axis([1, 2] deg)\ng = obs.flux * el\n")
+    sheet = Sheet.load(tmp_path / "t.sheet")
+    assert sheet["m"].value == 3.0
+    g = sheet.raw("g")
+    assert [a.name for a in g.axes] == ["obs", "el"]
+    np.testing.assert_allclose(g.data.value, np.outer([1.0, 3.0, 2.0], [1.0, 2.0]))

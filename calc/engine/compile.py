@@ -686,8 +686,14 @@ class _Compiler:
     def call(self, node: Call, depth: int) -> Code:
         if node.function == "read_table":   # a data file: calc/engine/datafiles.py
             self.looked_up.add(node.function)
-            return Const(read_table_call(node.function_span, node.args, node.keywords,
-                                         node.span, self.source.folder, context().root))
+            table = read_table_call(node.function_span, node.args, node.keywords,
+                                    node.span, self.source.folder, context().root)
+            if self.cell_name and self.cell_name != "_" and not self.bindings:
+                # the rows are an axis named after the cell that reads the table
+                from .datafiles import on_table_axis
+
+                table = on_table_axis(dict(table.fields), self.cell_name, self.rank)
+            return Const(table)
         own = self.scope.functions.get(node.function)
         if own is not None:
             return self.own_function(own, node, depth)

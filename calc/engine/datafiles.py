@@ -117,14 +117,25 @@ def split_header(text: str) -> tuple[str, str | None]:
 # ---- the record -------------------------------------------------------------------------
 
 
-def on_table_axis(columns: dict[str, u.Quantity], cell: str | None = None) -> Record:
+def on_table_axis(columns: dict[str, u.Quantity], cell: str | None = None,
+                  rank: float = 0.0) -> Record:
     """The value of a cell that reads a table: a record of its columns.
 
     This is the one place where a table's columns become a value. Each column is a 1-D
-    Quantity, one element per row; the rows are the table's axis, named after the cell
-    (``cell``) once the engine has named axes.
+    Quantity, one element per row; given the ``cell`` (and its ``rank``, its place in the file),
+    the rows are an axis named after it, so that `max(obs.flux, along = obs)` and a grid of the
+    rows against another axis work like any axis.
     """
-    return Record(TABLE_KIND, columns, cell)
+    if cell is None:
+        return Record(TABLE_KIND, columns, cell)
+    from .grid import Axis, Grid
+
+    placed = {}
+    for name, column in columns.items():
+        rows = int(np.shape(column.value)[0]) if np.ndim(column.value) else 1
+        placed[name] = Grid(column, (Axis(cell, rank, rows),)) if np.ndim(column.value) == 1 \
+            else column
+    return Record(TABLE_KIND, placed, cell)
 
 
 def read_table(path: Path, label: str) -> Record:

@@ -29,6 +29,7 @@ from .cells import Cells
 from .checks import run_check
 from .context import EvaluationContext, entered
 from .datafiles import on_table_axis
+from .grid import Grid
 from .run import Env, run_cell
 from .uncertain import Uncertain
 from .values import is_record, nominal, sigma
@@ -106,6 +107,9 @@ class ChunkEvaluator:
                 self.units[name] = nominal(cell.raw).unit
                 self.uncertain[name] = sigma(cell.raw) is not None
         self.fields = _fields_used(cells, table, self.order, self.checks)
+        span = cells.programs[table].definition.span
+        #: the table cell's place in the file, which orders its axis among the others
+        self.rank = span.line + span.column / 1e4
         self.isolated = 0
 
     # -- one evaluation
@@ -119,7 +123,7 @@ class ChunkEvaluator:
 
     def _evaluate(self, columns: dict[str, u.Quantity]) -> Env:
         env = dict(self.base)
-        env[self.table] = on_table_axis(columns, self.table)
+        env[self.table] = on_table_axis(columns, self.table, self.rank)
         for name in self.order:
             env[name] = run_cell(self.programs[name], env)
         return env
@@ -221,6 +225,10 @@ def _sliced(env: Env, lo: int, hi: int, rows: int) -> Env:
     """The values of an evaluation over ``rows`` rows, cut to rows lo:hi (values that are
     not one a row stay whole)."""
     def cut(value):
+        if isinstance(value, Grid):
+            axes = tuple(a._replace(length=hi - lo) if a.length == rows else a
+                         for a in value.axes)
+            return Grid(cut(value.data), axes)
         if isinstance(value, u.Quantity):
             return value[lo:hi] if value.shape == (rows,) else value
         if isinstance(value, Uncertain):
