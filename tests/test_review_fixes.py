@@ -152,3 +152,18 @@ def test_the_points_of_integral_and_gradient_name_the_axis():
 def test_an_error_inside_a_sheet_function_names_the_call():
     s = sheet("ratio(x, y) = x / (x + y)\na = ratio(1 km, 2 km)\nbad = ratio(1 km, 3 s)\n")
     assert error(s, "bad").startswith("in ratio(x, y), called on line 3: cannot add")
+
+
+def test_large_results_are_still_checked_for_nan_and_infinity():
+    # the scan for nan/inf is skipped only when numpy reported no overflow, invalid operation
+    # or division by zero and every input is finite (common practice: IEEE 754 flags)
+    s = sheet("x = span(1, 2, 10000) * 1e200\ny = x * x\nr = inf\ng = span(1, 2, 10000) * r\n"
+              "d = span(0, 1, 10000) / span(0, 1, 10000)\nok = span(1, 2, 10000) * 3\n")
+    assert "overflows" in error(s, "y")
+    assert np.all(np.isinf(s["g"].value))          # a written infinity carries through
+    assert "not a number" in error(s, "d") or "division by zero" in error(s, "d")
+    assert s["ok"].value[-1] == 6.0
+    s.set("r", "2")
+    assert np.all(np.isfinite(s["g"].value))
+    s.set("r", "inf")
+    assert np.all(np.isinf(s["g"].value))

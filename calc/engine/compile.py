@@ -311,6 +311,8 @@ class _Compiler:
         self.expanding: list[str] = []
         #: the place of the cell in its file (orders the axes a cell opens)
         self.rank = 0.0
+        #: arithmetic and numpy-based math functions on finite constants only (see run_cell)
+        self.trusted = True
 
     # -- helpers
     def text(self, start: Span, end: Span | None = None) -> str:
@@ -355,10 +357,13 @@ class _Compiler:
             else None
         if inputs is not None:
             return _input_code(inputs, resolved.value, inputs[0].sigma)
+        if not np.all(np.isfinite(getattr(resolved.value, "value", 0.0))):
+            self.trusted = False
         return Const(resolved.value)
 
     def imported(self, node: Dotted, depth: int) -> Code:
         """`ns.name` (and `ns.name.field`): a cell of an imported sheet."""
+        self.trusted = False   # its value's finiteness is the other sheet's to know
         namespace, name, *fields = node.parts
         self.looked_up.add(namespace)
         sheet = self.scope.namespaces[namespace]
@@ -481,6 +486,8 @@ class _Compiler:
                              node.span, hint="split it into several cells")
         kind = type(node)
         if kind is Number or kind is Percent:
+            if not np.isfinite(node.value):
+                self.trusted = False
             return Const(quantity(float(node.value)))
         if kind is Name:
             if self.bindings and node.id in self.bindings[-1]:
@@ -686,6 +693,7 @@ class _Compiler:
     def call(self, node: Call, depth: int) -> Code:
         if node.function == "read_table":   # a data file: calc/engine/datafiles.py
             self.looked_up.add(node.function)
+            self.trusted = False
             table = read_table_call(node.function_span, node.args, node.keywords,
                                     node.span, self.source.folder, context().root)
             if self.cell_name and self.cell_name != "_" and not self.bindings:
@@ -701,6 +709,8 @@ class _Compiler:
             return self.axis(node, depth)
         spec = functions.lookup(node.function)
         self.looked_up.add(node.function)
+        if spec is not None and spec.topic != "math":
+            self.trusted = False   # only numpy-based math functions report every nan they make
         if spec is None:
             if node.function in self.scope.cell_names:
                 raise NameResolutionError(f"`{node.function}` is a cell, not a function",
@@ -971,6 +981,8 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
         program.warnings = evaluation.stop_warnings(before)
     program.deps = compiler.deps
     program.looked_up = compiler.looked_up
+    program.trusted = compiler.trusted and (program.constant is None
+                                            or all_finite(program.constant))
     return program
 
 

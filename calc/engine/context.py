@@ -113,6 +113,10 @@ class EvaluationContext(Environment):
         self.sampling = sampling
         #: operations check their results for nan/inf (only while a failing cell re-runs)
         self.checking = False
+        #: floating-point events (overflow, invalid, division by zero) numpy reported so far
+        self.fp_events = 0
+        #: cells whose value holds nan or infinity (a written `inf` that carries through)
+        self.nonfinite: set[str] = set()
         #: the folder data files (`read_table`) must stay in: the sheet's project root
         self.root: Path | None = None
 
@@ -159,3 +163,11 @@ def context() -> EvaluationContext:
 
 
 __all__ = ["EvaluationContext", "Sampling", "context", "entered"]
+
+
+def note_fp_event(kind: str, flag: int) -> None:
+    """numpy's report of a floating-point event (errstate "call"): counted in the context in
+    force, so a cell knows whether its arithmetic met an overflow or an invalid operation."""
+    evaluation = current()
+    if isinstance(evaluation, EvaluationContext):
+        evaluation.fp_events += 1

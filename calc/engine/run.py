@@ -91,6 +91,9 @@ class CellProgram:
     unit_span: Span | None = None
     #: `t in TDB`: the time scale the cell's dates are shown in
     time_scale: str | None = None
+    #: arithmetic and numpy functions only, on finite constants: with no floating-point event
+    #: reported while it runs and no non-finite input, its result needs no scan for nan/inf
+    trusted: bool = False
     #: the cells it uses, each with the place of its first use
     deps: dict[str, Span] = field(default_factory=dict)
     #: every name it looked up (cells, constants, units, unknown names): a new cell of one of
@@ -566,10 +569,15 @@ def unit_range_error(definition: CellDef) -> UnitError:
 
 def run_cell(program: CellProgram, env: Env):
     """Evaluate a compiled cell with its inputs in ``env``; raises SheetError."""
+    evaluation = context()
     if program.constant is not None:
+        if program.trusted:
+            evaluation.nonfinite.discard(program.name)
+        else:
+            evaluation.nonfinite.add(program.name)
         return program.constant
     kernel = program.scalar
-    if kernel is not None and not context().checking:
+    if kernel is not None and not evaluation.checking:
         try:
             value, unit = scalar_value(kernel, env)
         except GIVE_UP:
@@ -577,14 +585,24 @@ def run_cell(program: CellProgram, env: Env):
         else:
             result = finish_scalar(program, value, unit)
             if result is not None:
+                evaluation.nonfinite.discard(program.name)
                 return result
     run = program.run
     if run is None:  # pragma: no cover - a program is a constant or has code to run
         raise InternalError(f"cell `{program.name}` has no code to run")
     try:
+        events = evaluation.fp_events
         value = finish(program, run(env))
+        if program.trusted and evaluation.fp_events == events and evaluation.sampling is None \
+                and not evaluation.nonfinite.intersection(program.deps):
+            # finite inputs and no overflow, invalid operation or division by zero: finite
+            evaluation.nonfinite.discard(program.name)
+            return value
         if not all_finite(value):
             value = checked(lambda: finish(program, run(env)))
+            evaluation.nonfinite.add(program.name)
+        else:
+            evaluation.nonfinite.discard(program.name)
         return value
     except SheetError as err:
         raise err.located(program.definition.span, program.source) from None

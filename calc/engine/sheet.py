@@ -48,7 +48,7 @@ from .build import Built, Imports, build, function_errors, import_sheet
 from .cells import Cell, Cells
 from .checks import CheckResult
 from .compile import InputTable
-from .context import EvaluationContext, Progress, entered
+from .context import EvaluationContext, Progress, entered, note_fp_event
 from .grid import Grid
 from .truth import Truth
 from .values import ShownValue, is_record
@@ -75,7 +75,9 @@ def numeric_context() -> Iterator[None]:
     collecting = gc.isenabled()
     gc.disable()
     try:
-        with np.errstate(all="ignore"), warnings.catch_warnings():
+        # numpy reports overflows and invalid operations to the evaluation context instead of
+        # warning: a cell whose arithmetic met none needs no scan of its result for nan/inf
+        with np.errstate(all="call", call=note_fp_event), warnings.catch_warnings():
             warnings.simplefilter("ignore")
             yield
     finally:
