@@ -167,3 +167,34 @@ def test_large_results_are_still_checked_for_nan_and_infinity():
     assert np.all(np.isfinite(s["g"].value))
     s.set("r", "inf")
     assert np.all(np.isinf(s["g"].value))
+
+
+def test_a_nan_field_of_a_record_is_caught_in_the_cell_that_reads_it(tmp_path):
+    # found by the fuzz campaign (seed 21): a record's fields are not scanned with it, so a
+    # cell reading one is scanned itself
+    import shutil
+    from pathlib import Path
+
+    shutil.copy(Path(__file__).parent.parent / "sheets_demo" / "orvane_system.sheet", tmp_path)
+    (tmp_path / "m.sheet").write_text(
+        'use "orvane_system.sheet" as sys\n'
+        "budget = periapsis_budget(sys.M_star, sys.orvane_b, [sys.orvane_c, sys.orvane_e],\n"
+        "                          sys.J2_star, R = sys.R_star, J = sys.J_star)\n"
+        "newtonian = budget.total - budget.lense_thirring\n")
+    s = Sheet.load(tmp_path / "m.sheet")
+    cell = s.cell("newtonian")
+    assert cell.error is not None or np.all(np.isfinite(cell.value.value))
+
+
+def test_a_scalar_input_beside_an_array_input_has_a_sigma_per_element():
+    # found by the fuzz campaign (seed 21): contributions of different shapes
+    s = sheet("y = 30 ± 0.01 + gravitational_redshift(2.5 kg, 30 ± 0.01 AU, [1.4, 2] au)\n")
+    np.testing.assert_allclose(s.sigma("y").value, [0.01, 0.01], rtol=1e-6)
+
+
+def test_a_marker_escapes_control_characters_an_error_quotes():
+    from calc.outputs.annotate import marker_text
+
+    s = sheet("x = 1 km\r2\n")
+    for cell in s.cells:
+        assert "\r" not in marker_text(cell)

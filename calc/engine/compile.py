@@ -535,7 +535,9 @@ class _Compiler:
             if head in self.scope.namespaces and head not in self.scope.cell_names:
                 return self.imported(node, depth)
             if head in self.scope.cell_names:
-                # fields of a record: `venus.a`, `budget.total`
+                # fields of a record: `venus.a`, `budget.total` (a field's finiteness was not
+                # scanned with its record's: the cell's result is)
+                self.trusted = False
                 self.looked_up.add(head)
                 head_span = Span(node.span.line, node.span.column, node.span.line,
                                  node.span.column + len(head))

@@ -110,7 +110,9 @@ class Uncertain:
         if not parts:
             return np.zeros_like(np.asarray(self.nominal.value, dtype=float))
         # scaled by the largest contribution, so that squares of 1e300 do not overflow
-        scale = np.max([np.abs(p) for p in parts.values()], axis=0)
+        # parts of a scalar input beside parts of an array one: each on the value's shape
+        shape = np.broadcast_shapes(self.shape, *(np.shape(p) for p in parts.values()))
+        scale = np.max([np.broadcast_to(np.abs(p), shape) for p in parts.values()], axis=0)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             safe = np.where(scale > 0, scale, 1.0)
             squares = sum(np.square(np.asarray(p) / safe) for p in parts.values())

@@ -32,6 +32,8 @@ def marker_text(cell: Cell, digits: int = 6) -> str:
     """What follows `#→`: the cell's value (or error) as the report shows it, and for a long
     array a digest of every element."""
     text = cell_text(cell, digits)
+    # a marker is one line: control characters an error message quotes are written escaped
+    text = "".join(ch if ch.isprintable() else repr(ch)[1:-1] for ch in text)
     if cell.error is None:
         digest = array_digest(cell.raw, digits)
         if digest is not None:
