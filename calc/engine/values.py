@@ -680,11 +680,13 @@ def same(a, b) -> bool:
 
 
 def all_finite(value) -> bool:
-    """No nan or infinity in a quantity (records were checked field by field when made)."""
+    """No nan or infinity in a value (a record: in any field)."""
     kind = type(value)
     if kind is Grid:
         return all_finite(value.data)
-    if kind in CONTAINERS or kind is Truth or kind is UncertainDate or is_date(value):
+    if kind in CONTAINERS:   # a record is finite when every field is
+        return all(all_finite(leaf) for leaf in leaves(value))
+    if kind is Truth or kind is UncertainDate or is_date(value):
         return True
     if kind is Uncertain:
         value = value.nominal
