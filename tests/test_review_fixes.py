@@ -190,3 +190,12 @@ def test_a_marker_escapes_control_characters_an_error_quotes():
     s = sheet("x = 1 km\r2\n")
     for cell in s.cells:
         assert "\r" not in marker_text(cell)
+
+
+def test_fuzz_seed_22_findings():
+    # a constant folded to nan beside an uncertain input; an array literal of values on an axis
+    s = sheet("km = ((0.92 ± 1e-5)) (0/0)\nt0 = 2031-07-26T06:00:00 TDB\n"
+              "hours = axis(span(t0, t0 + 10 d, 241))\nb = [hours]\nc = [t0, t0 + 1 d]\n")
+    assert error(s, "km")
+    assert error(s, "b") == "an array `[…]` holds single quantities, not values on an axis"
+    assert error(s, "c") == "an array `[…]` holds single quantities, not dates"

@@ -910,6 +910,13 @@ class _Compiler:
         spans = [i.span for i in node.items]
 
         def build(*values):
+            for value, item_span in zip(values, spans):
+                if isinstance(value, Grid) or _dated(value) or type(value).__name__ == "Truth":
+                    what = "values on an axis" if isinstance(value, Grid) else \
+                        "dates" if _dated(value) else "truths"
+                    raise DomainError(f"an array `[…]` holds single quantities, not {what}",
+                                      item_span, hint="use the value itself, or span(…) and "
+                                                      "axis(…) for new arrays")
             if any(isinstance(v, CONTAINERS) for v in values):
                 return _record_list(values, spans)
             if any(isinstance(v, Uncertain) for v in values):
@@ -977,10 +984,13 @@ def compile_cell(definition: CellDef, scope: Scope, source: Source,
     program.literal = _is_literal(definition.expr, scope)
     evaluation = context()
     before = evaluation.collect_warnings()
+    events = evaluation.fp_events
     try:
         _compile_into(program, compiler, definition, display_unit)
     finally:
         program.warnings = evaluation.stop_warnings(before)
+    if evaluation.fp_events != events:
+        compiler.trusted = False   # a folded constant met a nan, an overflow or 0/0
     program.deps = compiler.deps
     program.looked_up = compiler.looked_up
     program.trusted = compiler.trusted and (program.constant is None
