@@ -199,3 +199,11 @@ def test_fuzz_seed_22_findings():
     assert error(s, "km")
     assert error(s, "b") == "an array `[…]` holds single quantities, not values on an axis"
     assert error(s, "c") == "an array `[…]` holds single quantities, not dates"
+
+
+def test_minus_dates_on_an_axis_is_refused():
+    # found by the fuzz campaign (seed 24)
+    s = sheet("t0 = 2031-07-26T06:00:00 TDB\nhours = axis(span(t0, t0 + 1 d, 3))\nm = -hours\n"
+              "k = -axis([1, 2] s)\n")
+    assert error(s, "m").startswith("a date cannot be multiplied, divided or raised")
+    np.testing.assert_allclose(s.raw("k").data.value, [-1, -2])

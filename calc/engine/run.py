@@ -266,6 +266,8 @@ def neg_op(span: Span):
     def apply(x):
         if _plain(x):
             return quantity(-x.value, x.unit)
+        if type(x) is Grid:   # on the data, so that dates on an axis are refused too
+            return Grid(apply(x.data), x.axes)
         if is_date(x) or type(x) is UncertainDate:
             from . import dates
 
