@@ -106,18 +106,21 @@ _UNITS = ["m", "km", "s", "kg", "AU", "d", "yr", "deg", "arcsec", "W", "J", "Msu
        st.floats(1e-6, 1e6))
 def test_chain_units_agree_with_astropy(factors, number):
     text = f"{number!r}"
-    expected = u.Quantity(number)
     for name, power, divide in factors:
         piece = f"{name}^{power}" if power != 1 else name
         if divide:
             text += f" / {piece}"
-            expected = expected / getattr(u, name) ** power
         else:
             text += f" {piece}" if " / " not in text else f" / {name}^{-power}"
-            expected = expected * getattr(u, name) ** power
     try:
+        expected = u.Quantity(number)
+        for name, power, divide in factors:
+            expected = (expected / getattr(u, name) ** power if divide
+                        else expected * getattr(u, name) ** power)
         expected.unit.decompose()
-    except u.UnitScaleError:  # e.g. Msun^-11: the SI scale underflows a float
+    except (u.UnitScaleError, OverflowError):
+        # e.g. Msun^-11: the SI scale underflows a float (astropy 8 raises OverflowError while
+        # it builds such a unit, earlier versions UnitScaleError when decomposing it)
         assert "outside the range a float can hold" in only_error(
             evaluate(f"x = {text}"), "x").message
         return
