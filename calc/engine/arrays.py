@@ -25,6 +25,7 @@ from .grid import wrap as grid_wrap
 from .samples import Samples
 from .truth import Truth
 from .uncertain import Uncertain
+from .values import central
 
 _COMPARE: dict[str, Callable] = {"<": operator.lt, "<=": operator.le, ">": operator.gt,
                                  ">=": operator.ge, "==": operator.eq}
@@ -59,17 +60,6 @@ def axis_op(name: str, rank: float, span: Span) -> Callable:
 # ---- comparisons ----------------------------------------------------------------------------
 
 
-def _central(value):
-    """What a comparison reads: nominal values; the median of Monte Carlo samples."""
-    if type(value).__name__ == "UncertainDate":
-        return value.nominal_date()
-    if isinstance(value, Uncertain):
-        return value.nominal
-    if isinstance(value, Samples):
-        return u.Quantity(np.median(value.data.value, axis=0), value.unit)
-    return value
-
-
 def compare_op(op: str, span: Span, right_span: Span) -> Callable:
     """``a < b`` (``<= > >= ==``): truths, element by element (over the grid of both)."""
     test = _COMPARE[op]
@@ -87,7 +77,7 @@ def compare_op(op: str, span: Span, right_span: Span) -> Callable:
             if isinstance(side, Truth):
                 raise DomainError("truths cannot be compared", span,
                                   hint="combine conditions with where(…), or count them")
-        a, b = _central(a), _central(b)
+        a, b = central(a), central(b)
         if is_date(a) or is_date(b):
             return _compare_dates(a, b, test, span, right_span)
         try:

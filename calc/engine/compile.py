@@ -736,10 +736,10 @@ class _Compiler:
         values = [*node.args, *(k.value for k in node.keywords)]
         arg_spans = {slot: value.span for slot, value in zip(slots, values)}
         texts = spec.text_parameters
-        arg_codes = [self.argument(a, depth, slot in texts, fname_of(spec), slot)
+        arg_codes = [self.argument(a, depth, slot in texts, spec.name, slot)
                      for a, slot in zip(node.args, slots)]
         names = list(keywords)
-        kw_codes = [self.argument(keywords[k].value, depth, k in texts, fname_of(spec), k)
+        kw_codes = [self.argument(keywords[k].value, depth, k in texts, spec.name, k)
                     for k in names]
         for parameter in PPN_PARAMETERS:
             # an omitted gamma or beta takes the sheet's `ppn` value (else 1)
@@ -1084,10 +1084,6 @@ def _dated(value) -> bool:
         value = value.data
     return is_date(value) or type(value).__name__ == "UncertainDate" or (
         type(value) is Samples and is_date(value.data))
-
-
-def fname_of(spec) -> str:
-    return spec.name
 
 
 def _constant(code: Code):

@@ -54,9 +54,6 @@ def key(axis: Axis) -> tuple:
     return (axis.rank, axis.token, axis.name or "")
 
 
-_key = key
-
-
 class Grid(WrappedArithmetic):
     """A value on named axes: ``data`` (a leaf) whose last ``len(axes)`` value dimensions are
     ``axes``. Operators align the operands' axes and apply to the data."""
@@ -132,13 +129,13 @@ def union(*groups: tuple[Axis, ...]) -> tuple[Axis, ...]:
     seen: dict[tuple, Axis] = {}
     for axes in groups:
         for axis in axes:
-            key = (axis.name, axis.token) if axis.name is None else (axis.name,)
-            earlier = seen.get(key)
+            ident = (axis.name, axis.token) if axis.name is None else (axis.name,)
+            earlier = seen.get(ident)
             if earlier is not None and earlier.length != axis.length:
                 raise DomainError(f"axis `{axis.label}` has {earlier.length} values in one operand "
                                   f"and {axis.length} in the other")
-            seen[key] = axis
-    return tuple(sorted(seen.values(), key=_key))
+            seen[ident] = axis
+    return tuple(sorted(seen.values(), key=key))
 
 
 def _placed(value, axes: tuple[Axis, ...]):
@@ -212,7 +209,7 @@ def move_last(grid: Grid, name: str | None) -> tuple[Any, tuple[Axis, ...], Axis
 def put_back(data, rest: tuple[Axis, ...], axis: Axis):
     """The inverse of :func:`move_last` for a result that kept the moved axis (or a new axis
     in its place) last: on the axes in rank order again."""
-    axes = tuple(sorted((*rest, axis), key=_key))
+    axes = tuple(sorted((*rest, axis), key=key))
     index = axes.index(axis)
     if index == len(axes) - 1:
         return wrap(data, axes)

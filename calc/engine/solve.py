@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
-from ..errors import DomainError, InternalError, NameResolutionError, SheetError, Source, Span, UnitError
+from ..errors import DomainError, NameResolutionError, SheetError, Source, Span, UnitError
 from ..language.syntax import ArrayLiteral, CellDef, Dotted, Name, SolveDef
 from ..physics.units import conversion_scale, describe
 from .grid import Grid
@@ -506,8 +506,3 @@ def solve_sampled(program: SolveProgram, cells, env: Env, count: int) -> list:
                           program.span, hint="the statistics of the others would be biased; "
                                              "check the inputs' spreads")
     return problem.values_of(z)
-
-
-def internal(exc: Exception, program: SolveProgram) -> InternalError:
-    return InternalError.wrapping(exc, "solving", program.span, program.source)
-

@@ -530,7 +530,9 @@ def _date_samples(leaf):
     return leaf
 
 
-def _central_leaf(leaf):
+def central(leaf):
+    """What comparisons and index-finding read of a value: nominal values (an uncertain date's
+    nominal date); the median of Monte Carlo samples."""
     if isinstance(leaf, Uncertain):
         return leaf.nominal
     if type(leaf) is UncertainDate:
@@ -543,7 +545,7 @@ def _central_leaf(leaf):
 def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | None):
     """A function on values whose axes are settled: uncertain, sampled or plain."""
     if name in CENTRAL_ONLY:
-        return call(*(map_leaves(_central_leaf, v) for v in values))
+        return call(*(map_leaves(central, v) for v in values))
     values = tuple(map_leaves(_date_samples, v) for v in values)
     uncertain_args = False
     sampled_args = False
