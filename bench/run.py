@@ -337,7 +337,7 @@ def p10_plot(repeats: int, workdir: Path) -> Figure:
     return _summarise(fig, ta, tb)
 def p14_map(repeats: int, workdir: Path, quick: bool) -> list[Figure]:
     """`relsheet map` over 10^7 rows (10^6 with --quick) vs pyarrow + numpy by hand; its
-    peak memory at 10^6 and 10^7 rows; the dask engine on a 2-worker local cluster."""
+    peak memory at 10^6 and 10^7 rows; the dask engine on a local cluster of 2 worker threads."""
     folder = workdir / "map"
     folder.mkdir()
     (folder / "sample.csv").write_text(workloads.MAP_SAMPLE)
@@ -377,7 +377,7 @@ def p14_map(repeats: int, workdir: Path, quick: bool) -> list[Figure]:
         figures.append(growth)
     n = 1 if quick else max(2, repeats // 4)
     ta, tb, _, _ = paired_processes(relsheet(top, "dask"), relsheet(top), n, ROOT)
-    figures.append(_summarise(Figure("P14d", "map --engine dask (local cluster, 2 workers, "
+    figures.append(_summarise(Figure("P14d", "map --engine dask (local cluster of 2 worker threads, "
                                              "start-up included) vs the local engine", 2.0),
                               ta, tb))
     return figures

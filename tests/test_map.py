@@ -221,20 +221,14 @@ def test_peak_memory_does_not_grow_with_rows(tmp_path):
 # ---- dask -------------------------------------------------------------------------------
 
 
-def test_dask_engine_matches_local_row_for_row(project, capsys, monkeypatch):
+def test_dask_engine_matches_local_row_for_row(project, capsys):
     pytest.importorskip("distributed")
-    from calc.interfaces import map as mapping
-
     folder, _ = project
     # a folder of Parquet files: dask partitions it its own way
     (folder / "parts").mkdir()
     whole = pq.read_table(folder / "big.parquet")
     for index, start in enumerate(range(0, whole.num_rows, 1200)):
         pq.write_table(whole.slice(start, 1200), folder / "parts" / f"p{index:02d}.parquet")
-    real = mapping.run_dask
-    # threads instead of processes: the same code path, a faster start for the test
-    monkeypatch.setattr(mapping, "run_dask",
-                        lambda *a, **k: real(*a, **k, local_processes=False))
     code = run(folder / "s.sheet", "--table", f"stars={folder / 'parts'}", "--cells",
                "shift,tilt", "-o", folder / "dask_out", "--engine", "dask", "--chunk", "500")
     dask_printed = capsys.readouterr().out
@@ -250,3 +244,100 @@ def test_dask_engine_matches_local_row_for_row(project, capsys, monkeypatch):
                                       local.column(name).to_numpy())
     assert dask_printed.split("first failing rows:")[1] == \
         local_printed.split("first failing rows:")[1]
+
+
+def test_dask_partitions_of_one_file_keep_the_row_order(project, capsys, monkeypatch):
+    """One file of many row groups, cut into partitions of whole row groups (two groups of
+    1,500 rows each here): the partitions' files read back in the input's order."""
+    pytest.importorskip("distributed")
+    from calc.interfaces import map as mapping
+
+    folder, _ = project
+    monkeypatch.setattr(mapping, "PARTITION_ROWS", 3000)
+    big = folder / "big.parquet"
+    assert pq.ParquetFile(big).metadata.num_row_groups > 2
+    run(folder / "s.sheet", "--table", f"stars={big}", "--cells", "shift",
+        "-o", folder / "dask_out", "--engine", "dask")
+    run(folder / "s.sheet", "--table", f"stars={big}", "--cells", "shift",
+        "-o", folder / "local.parquet")
+    capsys.readouterr()
+    parts = sorted((folder / "dask_out").glob("*.parquet"))
+    assert len(parts) == -(-pq.ParquetFile(big).metadata.num_row_groups // 2)
+    np.testing.assert_array_equal(pq.read_table(folder / "dask_out").column("shift").to_numpy(),
+                                  pq.read_table(folder / "local.parquet").column("shift")
+                                  .to_numpy())
+
+
+# ---- the local engine's reader and writer threads ----------------------------------------
+
+
+def _leftovers(folder: Path, output: str) -> list[str]:
+    return sorted(p.name for p in folder.iterdir() if p.name.startswith((output, f".{output}")))
+
+
+def test_a_bad_value_far_into_a_csv_stops_the_run_cleanly(project, capsys):
+    """The reader thread meets a value that is no number after several chunks: the
+    command says so (no traceback), exits 2 and leaves no output or temporary file."""
+    folder, data = project
+    rows = [f"{float(b)!r},{float(w)!r}" for b, w in zip(data["b"], data["w"])]
+    rows[4321] = "seven,0.5"
+    (folder / "bad.csv").write_text("b [AU],w\n" + "\n".join(rows) + "\n")
+    code = run(folder / "s.sheet", "--table", f"stars={folder / 'bad.csv'}", "--cells",
+               "shift", "-o", folder / "out.parquet", "--chunk", "500")
+    err = capsys.readouterr().err
+    assert code == 2
+    assert "bad.csv" in err and "seven" in err and "Traceback" not in err
+    assert _leftovers(folder, "out.parquet") == []
+
+
+def test_a_failing_write_stops_the_run_cleanly(project, capsys, monkeypatch):
+    """The writer thread's disk fills at the third chunk: the error is the command's
+    (exit 2, the file and the reason), the reader and the evaluation stop, nothing is
+    left behind."""
+    import errno
+
+    folder, _ = project
+    real = pq.ParquetWriter.write_batch
+    written = []
+
+    def write_batch(self, batch, *args, **kwargs):
+        if len(written) == 2:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        written.append(batch.num_rows)
+        return real(self, batch, *args, **kwargs)
+
+    monkeypatch.setattr(pq.ParquetWriter, "write_batch", write_batch)
+    code = run(folder / "s.sheet", "--table", f"stars={folder / 'big.parquet'}", "--cells",
+               "shift", "-o", folder / "out.parquet", "--chunk", "500")
+    err = capsys.readouterr().err
+    assert code == 2
+    assert "out.parquet" in err and os.strerror(errno.ENOSPC) in err
+    assert "Traceback" not in err
+    assert _leftovers(folder, "out.parquet") == []
+
+
+def test_a_bug_in_evaluation_is_an_internal_error_and_the_threads_stop(project, capsys,
+                                                                          monkeypatch):
+    """An error of ours in the middle of the run exits 70 and says so, with the reader
+    and writer threads ended (the test would hang otherwise) and nothing left behind."""
+    import threading
+
+    from calc.engine import stream
+
+    folder, _ = project
+    real = stream.ChunkEvaluator.chunk
+    calls = []
+
+    def chunk(self, *args, **kwargs):
+        calls.append(1)
+        if len(calls) == 4:
+            raise KeyError("injected")
+        return real(self, *args, **kwargs)
+
+    monkeypatch.setattr(stream.ChunkEvaluator, "chunk", chunk)
+    code = run(folder / "s.sheet", "--table", f"stars={folder / 'big.parquet'}", "--cells",
+               "shift", "-o", folder / "out.parquet", "--chunk", "500")
+    err = capsys.readouterr().err
+    assert code == 70 and "internal error" in err.lower()
+    assert not [t for t in threading.enumerate() if t.name.startswith("relsheet-map")]
+    assert _leftovers(folder, "out.parquet") == []

@@ -173,7 +173,7 @@ def build_parser() -> argparse.ArgumentParser:
                     help="local (default) or dask (pip install 'relsheet[cluster]')")
     mp.add_argument("--scheduler", metavar="ADDRESS",
                     help="a dask scheduler such as tcp://host:8786 (default: a local cluster "
-                         "of 2 workers)")
+                         "of 2 worker threads)")
     mp.add_argument("--force", action="store_true", help="replace OUT if it exists")
     _sheet_options(mp)
 

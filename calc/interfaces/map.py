@@ -15,11 +15,15 @@ the first chunk: an unknown cell, a table cell not read with `read_table`, a col
 file lacks, a unit that does not convert, an output that exists (without ``--force``).
 A row out of a function's domain gets nulls and is counted; checks are judged per chunk.
 
+The local engine reads, evaluates and writes at once (a reader and a writer thread beside
+the evaluation, a couple of chunks apart).
+
 ``--engine dask`` runs the same per-chunk function on a dask cluster (``--scheduler
-ADDRESS``, or a local cluster of two workers): dask.dataframe partitions the Parquet input,
-each partition is evaluated (in chunks) and written as one Parquet file of the output
-folder, in the input's order. Workers must see the sheet, its files and the input at the
-same paths (a shared file system).
+ADDRESS``, or a local cluster of two worker threads): dask.dataframe partitions the Parquet
+input (whole row groups, about a million rows a partition), ``map_partitions`` evaluates each
+partition (in chunks) and writes it as one Parquet file of the output folder, in the input's
+order. Workers must see the sheet, its files and the input at the same paths (a shared file
+system).
 """
 
 from __future__ import annotations
@@ -441,6 +445,119 @@ class Progress:
             sys.stderr.write("\n")
 
 
+class _Stopped(Exception):
+    """The other side of a pipeline's hand-over gave up (its error is the one raised)."""
+
+
+class _Pipeline:
+    """Reading, evaluating and writing chunks at once: the reader and the writer are
+    threads (pyarrow reads and writes Parquet without holding the GIL), each a couple of
+    chunks ahead or behind, so a run costs about its slowest stage rather than the sum of
+    the three. At most ``DEPTH`` chunks wait at each hand-over: memory stays bounded by
+    the chunk size. The first error of either thread ends the run and is raised in the
+    calling thread; ``stop`` ends and joins both threads."""
+
+    DEPTH = 2
+
+    def __init__(self) -> None:
+        import threading
+
+        self.stopping = threading.Event()
+        self.failure: BaseException | None = None
+        self._threads: list[threading.Thread] = []
+
+    def _thread(self, target, name: str) -> None:
+        import threading
+
+        thread = threading.Thread(target=target, name=f"relsheet-map-{name}", daemon=True)
+        self._threads.append(thread)
+        thread.start()
+
+    def _fail(self, exc: BaseException) -> None:
+        self.failure = self.failure or exc
+        self.stopping.set()
+
+    def _put(self, channel, item) -> None:
+        import queue
+
+        while not self.stopping.is_set():
+            try:
+                channel.put(item, timeout=0.1)
+                return
+            except queue.Full:
+                continue
+        raise _Stopped()
+
+    def _get(self, channel):
+        import queue
+
+        while True:
+            try:
+                return channel.get(timeout=0.1)
+            except queue.Empty:
+                if self.stopping.is_set():
+                    raise _Stopped() from None
+
+    def read_ahead(self, chunks: Iterator[dict[str, np.ndarray]]) -> Iterator[dict]:
+        """``chunks`` produced by a thread, DEPTH ahead of the consumer."""
+        import queue
+
+        channel: queue.Queue = queue.Queue(self.DEPTH)
+        end = object()
+
+        def produce() -> None:
+            try:
+                for chunk in chunks:
+                    self._put(channel, chunk)
+                self._put(channel, end)
+            except _Stopped:
+                return
+            except BaseException as exc:   # raised in the consumer's thread
+                self._fail(exc)
+
+        self._thread(produce, "read")
+        while True:
+            chunk = self._get(channel)
+            if chunk is end:
+                return
+            yield chunk
+
+    def write_behind(self, write) -> tuple[Any, Any]:
+        """A thread calling ``write(item)`` for each item handed to the returned ``give``;
+        ``finish()`` waits for the last write."""
+        import queue
+
+        channel: queue.Queue = queue.Queue(self.DEPTH)
+        end = object()
+
+        def consume() -> None:
+            try:
+                while (item := self._get(channel)) is not end:
+                    write(item)
+            except _Stopped:
+                return
+            except BaseException as exc:   # raised in the producer's thread
+                self._fail(exc)
+
+        self._thread(consume, "write")
+
+        def finish() -> None:
+            self._put(channel, end)
+            self.join()
+
+        return (lambda item: self._put(channel, item)), finish
+
+    def join(self) -> None:
+        for thread in self._threads:
+            thread.join()
+
+    def stop(self) -> None:
+        """End both threads, their work abandoned, and wait for them (the file they write
+        is closed only after)."""
+        self.stopping.set()
+        self.join()
+
+
 def run_local(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator,
               output: Path) -> Summary:
     import pyarrow.parquet as pq
@@ -449,14 +566,25 @@ def run_local(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator,
     temporary = temporary_beside(output)
     summary = Summary()
     progress = Progress(stream.rows)
+    pipeline = _Pipeline()
     try:
         with pq.ParquetWriter(temporary, schema) as writer:
-            for chunk in stream.chunks([c for c, _, _ in spec.columns], spec.chunk):
-                rows = len(next(iter(chunk.values()))) if chunk else 0
-                result = evaluator.chunk(quantities(spec, chunk), rows)
-                writer.write_batch(batch_of(result, spec, schema))
-                summary.add(result, summary.rows)
-                progress(summary.rows)
+            give, finish = pipeline.write_behind(writer.write_batch)
+            try:
+                chunks = stream.chunks([c for c, _, _ in spec.columns], spec.chunk)
+                for chunk in pipeline.read_ahead(chunks):
+                    rows = len(next(iter(chunk.values()))) if chunk else 0
+                    result = evaluator.chunk(quantities(spec, chunk), rows)
+                    give(batch_of(result, spec, schema))
+                    summary.add(result, summary.rows)
+                    progress(summary.rows)
+                finish()
+            except _Stopped:   # a thread failed: its error is raised below
+                pass
+            finally:
+                pipeline.stop()
+            if pipeline.failure is not None:
+                raise pipeline.failure
         put_in_place(temporary, output)
     except BaseException:
         temporary.unlink(missing_ok=True)
@@ -470,67 +598,124 @@ def run_local(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator,
 
 
 @lru_cache(maxsize=8)
-def _worker_evaluator(spec: MapSpec) -> tuple[ChunkEvaluator, Any]:
-    """A worker's compiled sheet, made once per worker process, with a lock: a sheet's
-    evaluation context is not shared by two threads at once (workers of a local cluster
-    without processes are threads of one process)."""
+def _worker_evaluator(spec: MapSpec) -> tuple[ChunkEvaluator, Any, Any]:
+    """A worker's compiled sheet and output schema, made once per worker process, with a
+    lock: a sheet's evaluation context is not shared by two threads at once (workers of a
+    local cluster without processes are threads of one process)."""
     import threading
 
     sheet = load_sheet(spec.sheet, spec.root)
-    return sheet.chunk_evaluator(spec.table, list(spec.cells)), threading.Lock()
+    evaluator = sheet.chunk_evaluator(spec.table, list(spec.cells))
+    return evaluator, threading.Lock(), output_schema(spec, evaluator)
 
 
-def map_partition(frame, spec: MapSpec, folder: str, index: int) -> Summary:
+class LocalClusterStart:
+    """A local dask cluster of two workers, started in a thread while the command compiles
+    the sheet and checks the table. The workers are threads of this process: on one
+    machine that saves starting processes and moving chunks between them, and the heavy
+    parts of a chunk (reading, arithmetic on arrays, writing) run without the GIL. A
+    cluster of processes or machines is given with ``--scheduler``."""
+
+    def __init__(self) -> None:
+        import threading
+
+        self.cluster: Any = None
+        self.failure: BaseException | None = None
+        self._thread = threading.Thread(target=self._start, name="relsheet-map-cluster",
+                                        daemon=True)
+        self._thread.start()
+
+    def _start(self) -> None:
+        try:
+            from distributed import LocalCluster
+
+            self.cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                                        dashboard_address=":0")
+        except ImportError:
+            self.failure = UsageError("--engine dask needs dask and distributed",
+                                      hint="pip install 'relsheet[cluster]'")
+        except BaseException as exc:
+            self.failure = exc
+
+    def result(self) -> Any:
+        self._thread.join()
+        if self.failure is not None:
+            raise self.failure
+        return self.cluster
+
+    def close(self) -> None:
+        self._thread.join()
+        if self.cluster is not None:
+            self.cluster.close()
+            self.cluster = None
+
+
+#: rows a dask partition holds, about (whole row groups of the input)
+PARTITION_ROWS = 1_000_000
+
+
+def row_groups_per_partition(stream: TableStream) -> int:
+    """Whole row groups to about PARTITION_ROWS rows: a partition's memory does not grow
+    with the table, and there are few enough partitions for the scheduler's cost per task
+    to stay small."""
+    metadata = stream.files[0].metadata
+    group_rows = metadata.row_group(0).num_rows if metadata.num_row_groups else 0
+    return max(1, PARTITION_ROWS // max(group_rows, 1))
+
+
+def map_partition(frame, spec: MapSpec, folder: str, partition_info: dict | None = None):
     """One dask partition (a pandas DataFrame of the input's columns): evaluated in chunks
-    of ``spec.chunk`` rows and written as ``part.INDEX.parquet`` in ``folder``; returns its
-    summary (rows counted from the partition's start)."""
+    of ``spec.chunk`` rows and written as ``part.NUMBER.parquet`` in ``folder``; returns a
+    one-row frame holding its summary (rows counted from the partition's start)."""
+    import pandas as pd
     import pyarrow.parquet as pq
 
-    evaluator, lock = _worker_evaluator(spec)
-    schema = output_schema(spec, evaluator)
     summary = Summary()
-    path = Path(folder) / f"part.{index:05d}.parquet"
+    if partition_info is None:   # dask's look at an empty frame, to learn the output's form
+        return pd.DataFrame({"summary": pd.Series([summary], dtype=object)})
+    evaluator, lock, schema = _worker_evaluator(spec)
+    path = Path(folder) / f"part.{partition_info['number']:05d}.parquet"
+    columns = {c: frame[c].to_numpy(dtype=float, na_value=np.nan) for c, _, _ in spec.columns}
+    rows = len(frame)
     with lock, pq.ParquetWriter(path, schema) as writer:
-        rows = len(frame)
         for start in range(0, max(rows, 1), spec.chunk):
             stop = min(start + spec.chunk, rows)
-            chunk = {c: frame[c].to_numpy(dtype=float, na_value=np.nan)[start:stop]
-                     for c, _, _ in spec.columns}
+            chunk = {c: values[start:stop] for c, values in columns.items()}
             result = evaluator.chunk(quantities(spec, chunk), stop - start)
             writer.write_batch(batch_of(result, spec, schema))
             summary.add(result, summary.rows)
-    return summary
+    return pd.DataFrame({"summary": pd.Series([summary], dtype=object)})
 
 
 def run_dask(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator, output: Path,
-             scheduler: str | None, local_processes: bool = True) -> Summary:
+             scheduler: str | None, starting: LocalClusterStart | None = None) -> Summary:
     if stream.kind != "parquet":
         raise UsageError("--engine dask reads Parquet input (a file or a folder of files)",
                          hint="convert the table to Parquet, or use --engine local")
     try:
-        import dask
         import dask.dataframe as dd
-        from distributed import Client, LocalCluster
+        import pandas as pd
+        from distributed import Client
     except ImportError:
         raise UsageError("--engine dask needs dask and distributed",
                          hint="pip install 'relsheet[cluster]'") from None
     temporary = temporary_beside(output)
     temporary.unlink()
     temporary.mkdir()
-    cluster = None
+    if scheduler is None and starting is None:
+        starting = LocalClusterStart()
     try:
         if scheduler is None:
-            cluster = LocalCluster(n_workers=2, threads_per_worker=1,
-                                   processes=local_processes, dashboard_address=":0")
-            client = Client(cluster)
+            assert starting is not None
+            client = Client(starting.result())
         else:
             client = Client(scheduler)
         with client:
-            frame = dd.read_parquet(str(stream.path), columns=[c for c, _, _ in spec.columns])
-            parts = frame.to_delayed()
-            tasks = [dask.delayed(map_partition)(part, spec, str(temporary), index)
-                     for index, part in enumerate(parts)]
-            summaries = dask.compute(*tasks)
+            frame = dd.read_parquet(str(stream.path), columns=[c for c, _, _ in spec.columns],
+                                    split_row_groups=row_groups_per_partition(stream))
+            meta = pd.DataFrame({"summary": pd.Series([], dtype=object)})
+            summaries = frame.map_partitions(map_partition, spec, str(temporary),
+                                             meta=meta).compute()["summary"]
         summary = Summary()
         for part in summaries:
             summary.merge(part)
@@ -539,8 +724,8 @@ def run_dask(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator, outp
         shutil.rmtree(temporary, ignore_errors=True)
         raise
     finally:
-        if cluster is not None:
-            cluster.close()
+        if starting is not None:
+            starting.close()
     return summary
 
 
@@ -573,6 +758,19 @@ def report(summary: Summary, spec: MapSpec, output: Path, seconds: float) -> Non
 
 
 def cmd_map(args) -> int:
+    starting = None
+    if args.engine == "dask" and args.scheduler is None and \
+            (args.force or not Path(args.output).exists()):
+        # started now, it is ready about when the sheet is compiled and the table checked
+        starting = LocalClusterStart()
+    try:
+        return _map(args, starting)
+    finally:
+        if starting is not None:
+            starting.close()
+
+
+def _map(args, starting: LocalClusterStart | None) -> int:
     from .cli import EXIT_CHECK_FAILED, EXIT_INTERNAL, EXIT_OK, EXIT_SHEET_ERRORS
 
     started = time.monotonic()
@@ -588,7 +786,8 @@ def cmd_map(args) -> int:
     output = Path(args.output)
     try:
         if args.engine == "dask":
-            summary = run_dask(spec, stream, evaluator, output, args.scheduler)
+            summary = run_dask(spec, stream, evaluator, output, args.scheduler,
+                               starting=starting)
         else:
             if args.scheduler is not None:
                 raise UsageError("--scheduler goes with --engine dask")
