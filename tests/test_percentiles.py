@@ -99,3 +99,25 @@ def test_interpolation_from_the_upper_neighbour_as_numpy_does():
     expected = np.percentile(data, [16])  # rank 799.84: between a and b, t = 0.84
     assert expected[0] != a + (b - a) * 0.8400000000000318
     assert np.array_equal(samples._points(data, (16,)), expected)
+
+
+def test_a_missed_bracket_falls_back_to_the_whole_partition(monkeypatch):
+    """The probe of every (n / 2048)-th sample is made unrepresentative (those samples are
+    moved far up): its brackets miss the ranks, the count says so, and the whole sample is
+    partitioned instead; ordinary samples never need that."""
+    calls: list[int] = []
+    whole = samples._partitioned
+
+    def counted(x, ranks):
+        calls.append(1)
+        return whole(x, ranks)
+
+    monkeypatch.setattr(samples, "_partitioned", counted)
+    rng = np.random.default_rng(23)
+    ordinary = rng.standard_normal(100_000)
+    assert np.array_equal(samples._points(ordinary, POINTS), _numpy(ordinary))
+    assert calls == []
+    skewed = rng.standard_normal(100_000)
+    skewed[::100_000 // samples._PROBE] += 50.0
+    assert np.array_equal(samples._points(skewed, POINTS), _numpy(skewed))
+    assert calls == [1]
