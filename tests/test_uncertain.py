@@ -187,3 +187,39 @@ def test_units_after_the_uncertainty_may_be_a_quotient():
     s = evaluate("w = 1.8052 ± 0.0004 deg / yr")
     assert s["w"].to_value("deg / yr") == pytest.approx(1.8052)
     assert s.sigma("w").to_value("deg / yr") == pytest.approx(0.0004)
+
+
+def test_moved_calls_in_one_call_and_one_by_one_at_a_domain_edge(monkeypatch):
+    """The central differences of a function of single numbers are taken in one call on
+    arrays of the moved arguments; where a moved argument leaves the domain (e = 0 moved
+    below 0) the call fails as a whole and the moves are made one by one, one-sided there.
+    Both against hand-derived partials: ω̇ ∝ (m1 + m2)^(2/3) (1 − e²)^(−1)."""
+    from calc.engine import values
+
+    outcomes: list[bool] = []
+    real = values._at_once
+
+    def watched(call):
+        several = real(call)
+
+        def counted(tuples):
+            result = several(tuples)
+            outcomes.append(result is not None)
+            return result
+        return counted
+
+    monkeypatch.setattr(values, "_at_once", watched)
+    base = "m1 = 1.438 ± 0.01 Msun\nm2 = 1.390 ± 0.02 Msun\nPb = 0.322997448918 day\n"
+    mtot = 2.828
+    s = evaluate(base + "e = 0.617134 ± 0.001\nw = periastron_rate(m1, m2, Pb, e)")
+    e = 0.617134
+    expected = math.sqrt((2 / (3 * mtot) * 0.01) ** 2 + (2 / (3 * mtot) * 0.02) ** 2
+                         + (2 * e / (1 - e**2) * 0.001) ** 2)
+    assert sigma(s, "w") / s["w"].value == pytest.approx(expected, rel=1e-5)
+    assert outcomes == [True]
+    outcomes.clear()
+    # at e = 0 the derivative in e is 0; the step below 0 is refused
+    s = evaluate(base + "e = 0 ± 0.001\nw = periastron_rate(m1, m2, Pb, e)")
+    expected = math.hypot(2 / (3 * mtot) * 0.01, 2 / (3 * mtot) * 0.02)
+    assert sigma(s, "w") / s["w"].value == pytest.approx(expected, rel=1e-5)
+    assert outcomes == [False]

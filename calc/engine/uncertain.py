@@ -312,7 +312,8 @@ STEP = 1e-6
 
 
 def through(function: Callable, values: tuple, *, inputs_of: Callable, shifted: Callable,
-            relative_size: Callable, difference: Callable, assemble: Callable):
+            relative_size: Callable, difference: Callable, assemble: Callable,
+            several: Callable | None = None):
     """Call ``function`` on uncertain arguments: the nominal result, and contributions by
     numerical differentiation (central differences; one-sided where the other side leaves the
     domain). The value protocol (:mod:`calc.engine.values`) supplies how each kind is moved and
@@ -321,17 +322,30 @@ def through(function: Callable, values: tuple, *, inputs_of: Callable, shifted: 
     Each contribution comes with a bound on its error (``assemble`` receives (contribution,
     bound)): the rounding of the function values, 4ε|f| over the step, and the truncation
     of the difference, 1e-6 of the contribution for central differences (the step is 1e-6
-    of the argument; the error goes with its square) and 1e-3 for one-sided ones."""
+    of the argument; the error goes with its square) and 1e-3 for one-sided ones.
+
+    ``several``, when given, calls the function on a list of argument tuples at once (or
+    gives None): every moved call is tried that way first, and one by one only if it fails
+    (one-sided differences near a domain's edge)."""
     nominals = tuple(shifted(v, None, 0.0) for v in values)
     result = function(*nominals)
     keys: dict[Input, None] = {}
     for v in values:
         for key in inputs_of(v):
             keys[key] = None
-    parts_by_key: dict[Input, Any] = {}
+    steps = {}
     for key in keys:
         relative = max(relative_size(v, key) for v in values)
-        t = STEP / relative if relative and math.isfinite(relative) else STEP
+        steps[key] = STEP / relative if relative and math.isfinite(relative) else STEP
+    if several is not None and keys:
+        moved = several([tuple(shifted(v, key, sign * t) for v in values)
+                         for key, t in steps.items() for sign in (1.0, -1.0)])
+        if moved is not None:
+            return assemble(result, {key: (difference(moved[2 * i], moved[2 * i + 1],
+                                                      1 / (2 * t)), 1e-6, t)
+                                     for i, (key, t) in enumerate(steps.items())})
+    parts_by_key: dict[Input, Any] = {}
+    for key, t in steps.items():
         plus = minus = None
         try:
             plus = function(*(shifted(v, key, t) for v in values))

@@ -32,7 +32,7 @@ from typing import Any, Union
 import astropy.units as u
 import numpy as np
 
-from ..errors import DomainError
+from ..errors import ArgumentError, DomainError
 from ..physics.records import Record, RecordList, is_date
 from ..physics.units import quantity
 from . import uncertain
@@ -316,7 +316,8 @@ def apply_function(call: Callable, values: tuple, samplewise: bool = False,
     if along is not None or any(isinstance(v, Grid) or (isinstance(v, Record) and axes_of(v))
                                 for v in values):
         return _over_axes(call, values, samplewise, name, effect, along)
-    return _apply_leaves(call, values, samplewise, name)
+    return _apply_leaves(call, values, samplewise, name,
+                         stackable=effect == "elementwise" and not samplewise)
 
 
 def _over_axes(call: Callable, values: tuple, samplewise: bool, name: str | None,
@@ -542,8 +543,11 @@ def central(leaf):
     return leaf
 
 
-def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | None):
-    """A function on values whose axes are settled: uncertain, sampled or plain."""
+def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | None,
+                  stackable: bool = False):
+    """A function on values whose axes are settled: uncertain, sampled or plain.
+    ``stackable``: the function works element by element, so that single values may be
+    given as arrays of several at once."""
     if name in CENTRAL_ONLY:
         return call(*(map_leaves(central, v) for v in values))
     values = tuple(map_leaves(_date_samples, v) for v in values)
@@ -569,9 +573,10 @@ def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | N
                 return rule(values[0])
             except LookupError:
                 pass
+        several = _at_once(call) if stackable and all(_single(v) for v in values) else None
         return uncertain.through(call, values, inputs_of=inputs_of, shifted=_shifted,
                                  relative_size=_relative_size, difference=_difference,
-                                 assemble=_assemble)
+                                 assemble=_assemble, several=several)
     if sampled_args:
         return (per_sample if samplewise else vectorised)(call, values)
     return call(*values)
@@ -579,6 +584,42 @@ def _apply_leaves(call: Callable, values: tuple, samplewise: bool, name: str | N
 
 def _shifted(value, key: Input | None, t: float):
     return map_leaves(lambda leaf: _moved(leaf, key, t), value)
+
+
+def _single(value) -> bool:
+    """A single number: a 0-d Quantity, or an uncertain one."""
+    kind = type(value)
+    if kind is Uncertain:
+        value = value.nominal
+    elif kind is not u.Quantity:
+        return False
+    return value.ndim == 0
+
+
+def _at_once(call: Callable) -> Callable:
+    """``call`` on several argument tuples of single numbers in one call: each argument
+    position as an array (an argument the same in every tuple stays single). Returns the
+    results, or None when the call fails for any of them or does not give one number per
+    tuple (the caller then calls once per tuple)."""
+    def several(tuples: list[tuple]) -> list | None:
+        count = len(tuples)
+        arguments = []
+        for column in zip(*tuples):
+            first = column[0]
+            if all(a is first for a in column):
+                arguments.append(first)
+                continue
+            unit = first.unit
+            arguments.append(quantity(np.array([a.to_value(unit) for a in column]), unit))
+        try:
+            result = call(*arguments)
+        except (ArgumentError, DomainError):
+            return None
+        if type(result) is not u.Quantity or result.shape != (count,):
+            return None
+        return [result[i] for i in range(count)]
+
+    return several
 
 
 def vectorised(call: Callable, values: tuple):
