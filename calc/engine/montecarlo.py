@@ -17,7 +17,7 @@ import numpy as np
 from ..errors import InternalError, SheetError, UsageError
 from .context import Progress, Sampling, entered, memory_budget
 from .run import Env, failed_input, run_cell
-from .values import ShownValue, is_uncertain, leaves, shown
+from .values import ShownValue, is_uncertain, leaves, points_ahead, shown
 
 if TYPE_CHECKING:
     from .sheet import Sheet
@@ -47,17 +47,28 @@ def imports_first(sheet: Sheet) -> list[Sheet]:
     return order
 
 
-def run(sheet, samples: int, seed: int | None, progress: Progress | None = None
-        ) -> dict[str, ShownValue | SheetError]:
+def run(sheet, samples: int, seed: int | None, progress: Progress | None = None,
+        points: bool = False) -> dict[str, ShownValue | SheetError]:
     """Per cell of ``sheet``: its shown form under Monte Carlo (sample mean and standard
     deviation, percentiles on request; cells that depend on no input as they are), or its
-    error."""
+    error. ``points``: the percentiles will be asked for; they are found in a thread beside
+    the evaluation as each cell's samples are ready."""
     _check_memory(sheet, samples)
     sampling = Sampling(samples, seed, progress)
     out: dict[str, ShownValue | SheetError] = {}
-    for each in imports_first(sheet):
-        env, out = _evaluate(each, sampling, progress if each is sheet else None)
-        sampling.results[each] = env
+    ahead = None
+    if points:
+        from concurrent.futures import ThreadPoolExecutor
+
+        ahead = ThreadPoolExecutor(1, thread_name_prefix="relsheet-points")
+    try:
+        for each in imports_first(sheet):
+            env, out = _evaluate(each, sampling, progress if each is sheet else None,
+                                 ahead if each is sheet else None)
+            sampling.results[each] = env
+    finally:
+        if ahead is not None:
+            ahead.shutdown(wait=False)   # what is queued still runs; Shown waits for it
     return out
 
 
@@ -79,7 +90,7 @@ def _check_memory(sheet, samples: int) -> None:
                          hint=f"use --mc {largest:,} or fewer")
 
 
-def _evaluate(sheet, sampling: Sampling, progress: Progress | None
+def _evaluate(sheet, sampling: Sampling, progress: Progress | None, ahead=None
               ) -> tuple[Env, dict[str, ShownValue | SheetError]]:
     """One pass over a sheet's cells in order, with its inputs drawn."""
     cells = sheet.engine
@@ -107,6 +118,8 @@ def _evaluate(sheet, sampling: Sampling, progress: Progress | None
                 continue
             env[name] = value
             out[name] = shown(value)
+            if ahead is not None:
+                points_ahead(out[name], ahead)
             if progress is not None:
                 progress(index + 1, len(cells.order))
         if cells.solves:

@@ -540,12 +540,14 @@ class Sheet:
             return budget.rows(cell.raw)
 
     def monte_carlo(self, samples: int, seed: int | None = None,
-                    progress: Progress | None = None) -> dict[str, ShownValue | SheetError]:
+                    progress: Progress | None = None, points: bool = False
+                    ) -> dict[str, ShownValue | SheetError]:
         """Evaluate every cell with its inputs drawn from their distributions, ``samples`` at
         once; returns per cell its shown form (sample mean, standard deviation, percentiles),
-        or the error."""
+        or the error. ``points``: the percentiles of every cell will be asked for (they are
+        then found beside the evaluation, in a thread)."""
         with numeric_context():
-            return montecarlo.run(self, samples, seed, progress)
+            return montecarlo.run(self, samples, seed, progress, points)
 
     # -- access
     @property

@@ -763,6 +763,8 @@ class Shown:
     #: "quantity", "truth" (true/false values) or "date" (ISO strings with a time scale)
     kind: str = "quantity"
     _points: np.ndarray | None = field(default=None, repr=False)
+    #: the points being found in the background (a Future), when asked for ahead
+    _pending: Any = field(default=None, repr=False)
 
     @property
     def uncertain(self) -> bool:
@@ -777,9 +779,33 @@ class Shown:
         if self.samples is None:
             return None
         if self._points is None:
-            with np.errstate(all="ignore"):   # samples with inf or nan give nan points
-                self._points = percentiles(self.samples)
+            self._points = self._pending.result() if self._pending is not None else \
+                _points_of(self.samples)
+            self._pending = None
         return self._points
+
+    def points_ahead(self, executor) -> None:
+        """Start finding the percentiles on ``executor`` (a thread: numpy's selection runs
+        without the GIL, beside the evaluation of the next cells)."""
+        if self.samples is not None and self._points is None and self._pending is None:
+            self._pending = executor.submit(_points_of, self.samples)
+
+
+def _points_of(samples: np.ndarray) -> np.ndarray:
+    with np.errstate(all="ignore"):   # samples with inf or nan give nan points
+        return percentiles(samples)
+
+
+def points_ahead(value, executor) -> None:
+    """:meth:`Shown.points_ahead` for every leaf of a shown value."""
+    if isinstance(value, Shown):
+        value.points_ahead(executor)
+    elif isinstance(value, ShownRecord):
+        for each in value.fields.values():
+            points_ahead(each, executor)
+    elif isinstance(value, ShownRecords):
+        for item in value.items:
+            points_ahead(item, executor)
 
 
 @dataclass

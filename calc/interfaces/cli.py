@@ -305,7 +305,9 @@ def cmd_eval(args) -> int:
     if args.mc is not None:
         progress = _Progress()
         try:
-            monte_carlo = sheet.monte_carlo(args.mc, args.seed, progress)
+            # text and JSON show every cell's 16/50/84 % points
+            monte_carlo = sheet.monte_carlo(args.mc, args.seed, progress,
+                                            points=args.format in ("text", "json"))
         finally:
             progress.close()
     if args.format == "json":
