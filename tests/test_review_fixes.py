@@ -207,3 +207,16 @@ def test_minus_dates_on_an_axis_is_refused():
               "k = -axis([1, 2] s)\n")
     assert error(s, "m").startswith("a date cannot be multiplied, divided or raised")
     np.testing.assert_allclose(s.raw("k").data.value, [-1, -2])
+
+
+def test_fuzz_seed_31_a_power_of_a_large_unit_in_a_single_value_cell():
+    # found by the fuzz campaign (seed 31): cells of single values run a fast path of their
+    # own, whose unit step met astropy's overflow (Msun^11 ~ 1e331 kg^11 in SI, beyond a
+    # float: IEEE 754, common practice) as an internal error; so did a check of such a power
+    s = sheet("m = 1 Msun\nd = m ^ 11\nx = 2.5 Mjup\ny = x ** 36525\n"
+              "check x ** 36525 >= 2.867 arcsec / century\n")
+    for name in ("d", "y"):
+        assert error(s, name) == "a unit's size in SI is outside the range a float can hold"
+        assert not s.internal_errors()
+    (check,) = s.checks
+    assert check.error is not None and "outside the range a float can hold" in check.error.message

@@ -579,20 +579,20 @@ def run_cell(program: CellProgram, env: Env):
             evaluation.nonfinite.add(program.name)
         return program.constant
     kernel = program.scalar
-    if kernel is not None and not evaluation.checking:
-        try:
-            value, unit = scalar_value(kernel, env)
-        except GIVE_UP:
-            pass
-        else:
-            result = finish_scalar(program, value, unit)
-            if result is not None:
-                evaluation.nonfinite.discard(program.name)
-                return result
-    run = program.run
-    if run is None:  # pragma: no cover - a program is a constant or has code to run
-        raise InternalError(f"cell `{program.name}` has no code to run")
     try:
+        if kernel is not None and not evaluation.checking:
+            try:
+                value, unit = scalar_value(kernel, env)
+            except GIVE_UP:
+                pass
+            else:
+                result = finish_scalar(program, value, unit)
+                if result is not None:
+                    evaluation.nonfinite.discard(program.name)
+                    return result
+        run = program.run
+        if run is None:  # pragma: no cover - a program is a constant or has code to run
+            raise InternalError(f"cell `{program.name}` has no code to run")
         events = evaluation.fp_events
         value = finish(program, run(env))
         if program.trusted and evaluation.fp_events == events and evaluation.sampling is None \
