@@ -64,18 +64,46 @@ def _summarise(fig: Figure, a: list[float], b: list[float]) -> Figure:
     return fig
 
 
-def run_process(argv: list[str], cwd: Path) -> tuple[float, int]:
-    """Wall time (s) and peak resident memory (KiB) of one whole process."""
+#: Runs the measured processes and reports (wall time, peak RSS). Linux keeps a process's
+#: peak RSS across exec, so a process forked from this one (large after the in-process
+#: figures and the P14 inputs) would report this one's size as its own peak; forked from
+#: the launcher, a small Python started first, it reports its own.
+_LAUNCHER = r"""
+import json, os, subprocess, sys, time
+for line in sys.stdin:
+    job = json.loads(line)
     start = time.perf_counter()
-    proc = subprocess.Popen(argv, cwd=cwd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    proc = subprocess.Popen(job["argv"], cwd=job["cwd"], stdout=subprocess.DEVNULL,
+                            stderr=subprocess.PIPE)
+    err = proc.stderr.read().decode(errors="replace")
     _, status, usage = os.wait4(proc.pid, 0)
     elapsed = time.perf_counter() - start
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
-    proc.stderr.close()
-    if proc.returncode not in (0,):
-        raise RuntimeError(f"{' '.join(argv)} exited {proc.returncode}: {err[-500:]}")
-    return elapsed, usage.ru_maxrss
+    print(json.dumps({"elapsed": elapsed, "maxrss": usage.ru_maxrss,
+                      "code": os.waitstatus_to_exitcode(status), "err": err[-500:]}),
+          flush=True)
+"""
+_launcher: subprocess.Popen | None = None
+
+
+def start_launcher() -> subprocess.Popen:
+    """The launcher (started on first use: main starts it before anything grows)."""
+    global _launcher
+    if _launcher is None:
+        _launcher = subprocess.Popen([PY, "-c", _LAUNCHER], stdin=subprocess.PIPE,
+                                     stdout=subprocess.PIPE, text=True)
+    return _launcher
+
+
+def run_process(argv: list[str], cwd: Path) -> tuple[float, int]:
+    """Wall time (s) and peak resident memory (KiB) of one whole process."""
+    launcher = start_launcher()
+    assert launcher.stdin is not None and launcher.stdout is not None
+    launcher.stdin.write(json.dumps({"argv": [str(a) for a in argv], "cwd": str(cwd)}) + "\n")
+    launcher.stdin.flush()
+    result = json.loads(launcher.stdout.readline())
+    if result["code"] != 0:
+        raise RuntimeError(f"{' '.join(map(str, argv))} exited {result['code']}: {result['err']}")
+    return result["elapsed"], result["maxrss"]
 
 
 def paired_processes(a: list[str], b: list[str], repeats: int, cwd: Path):
@@ -434,6 +462,7 @@ def main(argv: list[str] | None = None) -> int:
                         help="comma-separated figures to run (P1,…,P14; P2 gives P5 too, "
                              "P7 gives P7b too, P14 gives P14m, P14g and P14d)")
     args = parser.parse_args(argv)
+    start_launcher()
     process_repeats, call_repeats = (3, 5) if args.quick else (11, 21)
     wanted = args.only or set(FIGURES)
     compile_bytecode()

@@ -181,14 +181,17 @@ def test_refusals(project, capsys):
 # ---- bounded memory --------------------------------------------------------------------
 
 def write_pattern(path: Path, rows: int) -> None:
-    """``rows`` rows of impact parameters, written a million at a time (a repeating pattern:
-    Parquet's dictionary encoding keeps the file small on disk)."""
+    """``rows`` rows of impact parameters, written a million at a time: random numbers, which
+    Parquet cannot encode smaller (a repeating pattern compressed so well that a reader
+    holding on to what it read went unnoticed), and ``w`` a repeating pattern."""
+    rng = np.random.default_rng(19)
     block = np.linspace(0.1, 5.0, 1000)
     schema = pa.schema([("b [AU]", pa.float64()), ("w", pa.float64())])
     with pq.ParquetWriter(path, schema) as writer:
-        part = np.tile(block, 1000)
-        for _ in range(rows // part.size):
-            writer.write_table(pa.table({"b [AU]": part, "w": part}, schema=schema),
+        pattern = np.tile(block, 1000)
+        for _ in range(rows // pattern.size):
+            writer.write_table(pa.table({"b [AU]": rng.uniform(0.1, 5.0, pattern.size),
+                                         "w": pattern}, schema=schema),
                                row_group_size=50_000)
 
 
@@ -198,12 +201,18 @@ def peak_of_map(folder: Path, rows: int) -> int:
     argv = [sys.executable, "-m", "calc", "map", str(folder / "s.sheet"), "--table",
             f"stars={folder / f'in{rows}.parquet'}", "--cells", "shift", "-o",
             str(folder / f"out{rows}.parquet"), "--chunk", "50000"]
-    process = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-                               env={**os.environ, "PYTHONPATH": str(ROOT)})
-    _, status, usage = os.wait4(process.pid, 0)
-    assert os.waitstatus_to_exitcode(status) == 0, process.stderr.read()
-    process.stderr.close()
-    return usage.ru_maxrss
+    # Linux keeps a process's peak RSS across exec: a process forked from this one (large
+    # after the tests before) would report this one's size as its peak. A small Python
+    # launches it instead and reports its peak (KiB, wait4's ru_maxrss).
+    launcher = ("import os, subprocess, sys\n"
+                "p = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL)\n"
+                "_, status, usage = os.wait4(p.pid, 0)\n"
+                "print(os.waitstatus_to_exitcode(status), usage.ru_maxrss)\n")
+    done = subprocess.run([sys.executable, "-c", launcher, *argv], capture_output=True,
+                          text=True, env={**os.environ, "PYTHONPATH": str(ROOT)})
+    code, peak = done.stdout.split()
+    assert code == "0", done.stderr
+    return int(peak)
 
 
 def test_peak_memory_does_not_grow_with_rows(tmp_path):

@@ -151,10 +151,15 @@ class TableStream:
         self.rows = sum(f.metadata.num_rows for f in self.files)
 
     def _chunks_parquet(self, columns: list[str], size: int) -> Iterator[dict[str, np.ndarray]]:
-        for each in self.files:
-            for batch in each.iter_batches(batch_size=size, columns=columns, use_threads=False):
-                if batch.num_rows:
-                    yield {c: _floats(batch.column(c)) for c in columns}
+        # row group by row group: one reader over a whole file holds on to what it read
+        # (its peak memory grew with the file: 156 MB at 10^6 rows, 331 MB at 10^7)
+        def batches():
+            for each in self.files:
+                for group in range(each.metadata.num_row_groups):
+                    yield from each.iter_batches(batch_size=size, row_groups=[group],
+                                                 columns=columns, use_threads=False)
+
+        yield from _rebatched(batches(), columns, size)
 
     # -- CSV and ECSV through pyarrow's streaming CSV reader
     def _open_csv(self) -> None:
@@ -219,19 +224,7 @@ class TableStream:
             convert_options=pcsv.ConvertOptions(include_columns=columns,
                                                 column_types={c: pa.float64() for c in columns}))
         try:
-            pending: list = []
-            held = 0
-            for batch in reader:
-                pending.append(batch)
-                held += batch.num_rows
-                while held >= size:
-                    table = pa.Table.from_batches(pending)
-                    yield {c: _floats(table.column(c).slice(0, size)) for c in columns}
-                    rest = table.slice(size)
-                    pending, held = rest.to_batches(), rest.num_rows
-            if held:
-                table = pa.Table.from_batches(pending)
-                yield {c: _floats(table.column(c)) for c in columns}
+            yield from _rebatched(reader, columns, size)
         except pa.ArrowInvalid as exc:
             raise InputError(f"{self.label}: {exc}") from None
 
@@ -260,6 +253,28 @@ class TableStream:
     def chunks(self, columns: list[str], size: int) -> Iterator[dict[str, np.ndarray]]:
         kind = "csv" if self.kind == "ecsv" else self.kind
         return getattr(self, f"_chunks_{kind}")(columns, size)
+
+
+def _rebatched(batches, columns: list[str], size: int) -> Iterator[dict[str, np.ndarray]]:
+    """Record batches of any lengths as chunks of ``size`` rows (the last one shorter)."""
+    import pyarrow as pa
+
+    pending: list = []
+    held = 0
+    for batch in batches:
+        if batch.num_rows == size and not pending:   # the common case: as it comes
+            yield {c: _floats(batch.column(c)) for c in columns}
+            continue
+        pending.append(batch)
+        held += batch.num_rows
+        while held >= size:
+            table = pa.Table.from_batches(pending)
+            yield {c: _floats(table.column(c).slice(0, size)) for c in columns}
+            rest = table.slice(size)
+            pending, held = rest.to_batches(), rest.num_rows
+    if held:
+        table = pa.Table.from_batches(pending)
+        yield {c: _floats(table.column(c)) for c in columns}
 
 
 def _floats(column) -> np.ndarray:
