@@ -308,6 +308,12 @@ def test_cli_plot_by_name_and_unknown_name(with_plots, tmp_path, capsys):
     assert (tmp_path / "shift_map.png").exists() and not (tmp_path / "delay_vs_days.png").exists()
     assert main(["plot", str(with_plots), "shift_mop"]) == 64
     assert "did you mean `shift_map`?" in capsys.readouterr().err
+    # names after the options too
+    later = tmp_path / "later"
+    assert main(["plot", str(with_plots), "-o", str(later), "delay_vs_days"]) == 0
+    assert [p.name for p in later.iterdir()] == ["delay_vs_days.png"]
+    assert main(["plot", str(with_plots), "-o", str(later), "delay_vs_days", "--bogus"]) == 64
+    assert "unrecognized arguments" in capsys.readouterr().err
 
 
 def test_cli_export_with_plots(with_plots, tmp_path):

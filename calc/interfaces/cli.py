@@ -196,7 +196,13 @@ def main(argv: list[str] | None = None) -> int:
     debug = "--debug" in args_list
     try:
         parser = build_parser()
-        args = parser.parse_args(args_list)
+        args, extra = parser.parse_known_args(args_list)
+        if extra and args.command == "plot" and not any(e.startswith("-") for e in extra):
+            # plot names after the options too (`plot FILE -o DIR NAME`): argparse gives
+            # the names list only the words before the first option
+            args.names = [*args.names, *extra]
+        elif extra:
+            parser.parse_args(args_list)   # argparse's own message for what it does not know
         if args.command is None:
             parser.print_help(sys.stderr)
             return EXIT_USAGE
