@@ -220,3 +220,32 @@ def test_fuzz_seed_31_a_power_of_a_large_unit_in_a_single_value_cell():
         assert not s.internal_errors()
     (check,) = s.checks
     assert check.error is not None and "outside the range a float can hold" in check.error.message
+
+
+def test_fuzz_seed_31_dates_far_beyond_any_calendar(tmp_path):
+    # found by the fuzz campaign (seed 31): `t0 + 1e308 d` (infinite in seconds) and
+    # `t0 + 1e303 d` (astropy's two doubles of days overflow: nan) made dates that printed as
+    # nonsense with a stray RuntimeWarning from ERFA's eraD2dtf; now they are errors, and a
+    # date outside ERFA's calendar (eraJd2cal: JD −68569.5 to 1e9) prints as a Julian date
+    s = sheet("t0 = 2031-07-26T06:00:00 TDB\nhours = axis(span(t0, t0 + 1e308 d, 241))\n"
+              "h = t0 + 1e303 d\nfar = t0 + 1e12 d\nm = MJD 1e303 TT\n")
+    assert error(s, "hours") == "a duration added to a date must be finite in seconds"
+    assert error(s, "h") == "the date falls beyond what a time scale can hold"
+    path = tmp_path / "far.sheet"
+    path.write_text("t0 = 2031-07-26T06:00:00 TDB\nfar = t0 + 1e12 d\nm = MJD 1e303 TT\n")
+    done = subprocess.run([sys.executable, "-m", "calc", "eval", str(path)],
+                          capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    assert "JD 1000002463073.750000 TDB" in done.stdout
+    assert "JD 1.000000000e+303 TT" in done.stdout
+    assert "Warning" not in done.stderr
+
+
+def test_fuzz_seed_31_a_record_as_a_units_exponent():
+    # found by the fuzz campaign (seed 31): `0.92 / s ^ orbit(…)` read the record as the
+    # unit's exponent and failed inside the compiler (exit 70)
+    s = sheet("y = 0.92 / s ^ orbit(1 AU, 0.1)\nz = 3 m^2 / s ** orbit(30 pc, 0.1)\n"
+              "w = 3 s^(1 < 2)\n")
+    for name in ("y", "z", "w"):
+        assert error(s, name) == "a unit's exponent must be a number"
+    assert not s.internal_errors()

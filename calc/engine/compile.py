@@ -467,6 +467,9 @@ class _Compiler:
         if not isinstance(code, Const):
             raise UnitError("a unit's exponent must be a number written in the sheet", node.span)
         value = code.value
+        if type(value) is not u.Quantity:   # a record, a date, a truth, a unit
+            raise UnitError("a unit's exponent must be a number", node.span,
+                            hint="write the power as a number, as in `s^-2`")
         try:
             e = value_in(value, _ONE)
         except u.UnitConversionError:

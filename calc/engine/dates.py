@@ -145,10 +145,15 @@ def _duration(value, span: Span):
                         hint="add the uncertainty to the result instead, or to the date "
                              "as a number of days")
     try:
-        return TimeDelta(value.to(u.s))
+        seconds = value.to(u.s)
     except u.UnitConversionError:
         raise UnitError(f"a date and {describe(value.unit)} cannot be added; only a duration "
                         "can", span) from None
+    if not np.all(np.isfinite(seconds.value)):
+        # (1e308 d is infinite in seconds: the date would have no day and no time)
+        raise DomainError("a duration added to a date must be finite in seconds", span,
+                          hint="the largest float is 1.8e308 s (about 2e303 days)")
+    return TimeDelta(seconds)
 
 
 def add(x, y, subtract: bool, span: Span) -> Any:
@@ -169,9 +174,14 @@ def add(x, y, subtract: bool, span: Span) -> Any:
         x, y = y, x
     step = _duration(y, span)
     try:
-        return checked(lambda: x - step if subtract else x + step, span, strict=_tabled(x))
+        moved = checked(lambda: x - step if subtract else x + step, span, strict=_tabled(x))
     except ValueError:
         raise DomainError("arrays of dates and durations of different lengths", span) from None
+    if not np.all(np.isfinite(moved.jd1 + moved.jd2)):
+        # (astropy keeps a date as two doubles of days; a sum far beyond them is nan)
+        raise DomainError("the date falls beyond what a time scale can hold", span,
+                          hint="keep durations well below 1e300 days")
+    return moved
 
 
 def _tabled(*dates) -> bool:
@@ -185,20 +195,35 @@ def refuse_product(x, y, span: Span) -> DomainError:
                             "mjd(t) or jd(t) for a day number")
 
 
+#: The Julian dates ERFA's calendar takes (eraJd2cal: from 4800 BC to JD 1e9).
+CALENDAR_JD = (-68569.5, 1e9)
+
+
+def _julian_date(jd: float, scale: str) -> str:
+    """A date outside the calendar as a Julian date (in powers of ten where a day's
+    fraction no longer shows)."""
+    return f"JD {jd:.6f} {scale}" if abs(jd) < 1e15 else f"JD {jd:.9e} {scale}"
+
+
 def iso(value, precision: int = 3) -> list[str] | str:
     """A date in ISO form with its scale (``2031-04-12T06:30:00.000 TDB``); ``precision``
     digits of the second (9 in JSON: nanoseconds)."""
     scale = value.scale.upper()
+    jd = np.asarray(value.jd)
+    if not np.all((jd >= CALENDAR_JD[0]) & (jd <= CALENDAR_JD[1])):
+        # outside ERFA's calendar (eraJd2cal; beyond it eraD2dtf writes nonsense, or fails)
+        if jd.ndim == 0:
+            return _julian_date(float(jd), scale)
+        return [_julian_date(float(j), scale) for j in jd.ravel()]
     if precision != value.precision:
         value = value.copy()
         value.precision = precision
     try:
         text = np.asarray(value.isot)
     except Exception:  # noqa: BLE001 - ERFA cannot write years outside its calendar range
-        jd = np.asarray(value.jd)
         if jd.ndim == 0:
-            return f"JD {float(jd):.6f} {scale}"
-        return [f"JD {float(j):.6f} {scale}" for j in jd.ravel()]
+            return _julian_date(float(jd), scale)
+        return [_julian_date(float(j), scale) for j in jd.ravel()]
     if text.ndim == 0:
         return f"{text.item()} {scale}"
     return [f"{t} {scale}" for t in text.ravel()]
