@@ -12,6 +12,20 @@ def evaluate(text: str, label: str = "t.sheet") -> Sheet:
     return Sheet.from_text(text if text.endswith("\n") else text + "\n", label)
 
 
+def count_calls(monkeypatch, owner, name: str) -> list[int]:
+    """Calls of ``owner.name`` from now on (one entry each), the function still doing its
+    work."""
+    calls: list[int] = []
+    original = getattr(owner, name)
+
+    def counted(*args, **kwargs):
+        calls.append(1)
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(owner, name, counted)
+    return calls
+
+
 def only_error(sheet: Sheet, name: str):
     cell = sheet.cell(name)
     assert cell.error is not None, f"{name} = {cell.value} (expected an error)"

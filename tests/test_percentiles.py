@@ -11,6 +11,7 @@ from hypothesis import strategies as st
 from calc import Sheet
 from calc.engine import samples
 from calc.engine.samples import POINTS, percentiles
+from conftest import count_calls
 
 
 def _numpy(data, points=POINTS):
@@ -105,14 +106,7 @@ def test_a_missed_bracket_falls_back_to_the_whole_partition(monkeypatch):
     """The probe of every (n / 2048)-th sample is made unrepresentative (those samples are
     moved far up): its brackets miss the ranks, the count says so, and the whole sample is
     partitioned instead; ordinary samples never need that."""
-    calls: list[int] = []
-    whole = samples._partitioned
-
-    def counted(x, ranks):
-        calls.append(1)
-        return whole(x, ranks)
-
-    monkeypatch.setattr(samples, "_partitioned", counted)
+    calls = count_calls(monkeypatch, samples, "_partitioned")
     rng = np.random.default_rng(23)
     ordinary = rng.standard_normal(100_000)
     assert np.array_equal(samples._points(ordinary, POINTS), _numpy(ordinary))

@@ -16,6 +16,7 @@ from hypothesis import strategies as st
 from calc import Sheet
 from calc.engine import run
 from calc.engine.values import Shown, shown
+from conftest import count_calls
 
 
 def _without_kernels(monkeypatch) -> None:
@@ -47,14 +48,7 @@ def _both(text: str, monkeypatch) -> tuple[dict, dict]:
 
 
 def test_kernels_run_for_arithmetic_cells(monkeypatch):
-    calls: list[int] = []
-    original = run.scalar_value
-
-    def counted(kernel, env):
-        calls.append(1)
-        return original(kernel, env)
-
-    monkeypatch.setattr(run, "scalar_value", counted)
+    calls = count_calls(monkeypatch, run, "scalar_value")
     sheet = Sheet.from_text("a = 1 AU\nb = a * 1.0001 + 1500 km\nc = -(b / 2 s)^2 in km^2 / s^2\n")
     assert calls, "no cell ran on floats"
     # 1 AU = 149 597 870.7 km (IAU 2012 Resolution B2)
