@@ -131,6 +131,9 @@ def test_a_function_of_the_sheet_checks_units_per_call_and_carries_uncertainty()
     ("f(x, y) = x + y\na = f(1)\n", "f(x, y): missing `y`"),
     ("f(x) = x\na = f(1, 2)\n", "f(x) takes 1 argument, got 2"),
     ("f(x) = x\na = f(z = 1)\n", "f(x): no argument is called `z`"),
+    # a definition that does not parse still names its function
+    ("f(x) = x * * 2\na = f(3)\n", "function `f` failed: its definition on line 1 does not "
+                                   "parse"),
 ])
 def test_function_errors(text, message):
     s = sheet(text)

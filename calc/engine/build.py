@@ -10,6 +10,7 @@ other statement is a cell. A name defined twice is an error on both lines.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -73,9 +74,14 @@ class Built:
     tables: list[TableDef] = field(default_factory=list)
     plots: list[PlotDef] = field(default_factory=list)
     functions: dict[str, FunctionDef] = field(default_factory=dict)
+    #: functions whose definition line does not parse, by name: that line's number
+    failed_functions: dict[str, int] = field(default_factory=dict)
     solves: list[SolveDef] = field(default_factory=list)
     correlations: list[CorrelationDef] = field(default_factory=list)
     ephemeris: EphemerisDef | None = None
+
+
+_FUNCTION_START = re.compile(r"\s*([^\W\d]\w*)\s*\(([^()=]*)\)\s*=(?!=)")
 
 
 def build(source: Source, constants: list[str] | None,
@@ -87,6 +93,14 @@ def build(source: Source, constants: list[str] | None,
     on_cells = {id(s.syntax_error) for s in parsed.statements if isinstance(s, CellDef)}
     # a syntax error on a line that names a cell is reported with that cell
     out.errors.extend(e for e in parsed.errors if id(e) not in on_cells)
+    lines = source.text.splitlines()
+    for error in parsed.errors:
+        # a line `name(x, y) = …` that does not parse still names a function, failed, so
+        # that the calls of it say so instead of "unknown function"
+        line = error.span.line if error.span is not None else 0
+        match = _FUNCTION_START.match(lines[line - 1]) if 0 < line <= len(lines) else None
+        if match is not None:
+            out.failed_functions.setdefault(match.group(1), line)
     pinned: ConstantsDef | None = None
     if constants is not None:
         pinned = ConstantsDef(tuple((w, Span(1, 1, 1, 1)) for w in constants), Span(1, 1, 1, 1))

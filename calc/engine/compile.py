@@ -717,6 +717,11 @@ class _Compiler:
         if spec is not None and spec.topic != "math":
             self.trusted = False   # only numpy-based math functions report every nan they make
         if spec is None:
+            failed_line = self.scope.failed_functions.get(node.function)
+            if failed_line is not None:
+                raise InputFailedError(f"function `{node.function}` failed: its definition on "
+                                       f"line {failed_line} does not parse", [node.function],
+                                       span=node.function_span)
             if node.function in self.scope.cell_names:
                 raise NameResolutionError(f"`{node.function}` is a cell, not a function",
                                           node.function_span,

@@ -171,6 +171,7 @@ class Sheet:
         #: the sheet's own functions (`ratio(x, y) = …`) by name
         self.functions = built.functions
         scope.functions = built.functions
+        scope.failed_functions = built.failed_functions
         self.errors += function_errors(built, self.source)
         self._cells = Cells(scope, InputTable(self.uncertain_constants, self.prefix,
                                               self.imports.inputs))

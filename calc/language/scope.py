@@ -74,6 +74,8 @@ class Scope:
         self.suggestions_left = MAX_SUGGESTIONS
         #: namespaces whose `use` line failed, with the line's span
         self.failed_namespaces: dict = failed_namespaces or {}
+        #: the sheet's functions whose definition does not parse, with its line number
+        self.failed_functions: dict[str, int] = {}
         self.selection = selection
         self.units: UnitTable = unit_table(selection)
         self.constants: dict[str, ConstantEntry] = constant_table(selection)
