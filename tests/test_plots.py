@@ -353,3 +353,16 @@ def test_repl_plot_mistakes_are_messages(with_plots, line, message):
 
 def test_plot_error_is_a_sheet_error():
     assert issubclass(PlotError, SheetError)
+
+
+def test_lines_on_one_y_axis_share_its_unit():
+    """`plot a, b vs t` with a in km and b in m draws b in km (1 km = 1000 m, SI); a line of
+    another kind of quantity cannot share the axis and is refused at its name."""
+    s = Sheet.from_text("t = span(0 d, 10 d, 11)\na = t * 1 km / d\nb = t * 300 m / d\n"
+                        "c = t * 2 s / d\nplot a, b vs t\nplot a, c vs t\n")
+    (spec,) = s.plots()
+    assert [y.unit for y in spec.y] == ["km", "km"]
+    np.testing.assert_allclose(spec.y[1].values, np.arange(11) * 0.3)
+    (error,) = s.figure_errors()
+    assert error.message == "`c` is `s` (time) and `a` `km` (length): one y axis cannot show both"
+    assert (error.span.line, error.span.column) == (6, 9)

@@ -13,13 +13,20 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import replace
 
+import astropy.units as u
 import numpy as np
 
 from ..errors import DomainError, InputFailedError, NameResolutionError, SheetError, Source, Span
 from ..language.syntax import Name, Note, PlotDef, TableDef
 from ..outputs.figures import PlotSpec, Series, TableSpec
 from ..physics.records import Record, RecordList, is_date
-from ..physics.units import close_matches, did_you_mean, unit_text
+from ..physics.units import (
+    close_matches,
+    conversion_scale,
+    describe,
+    did_you_mean,
+    unit_text,
+)
 from .grid import Grid
 from .samples import Samples
 from .truth import Truth
@@ -103,9 +110,48 @@ def _repeated(series: Series, rows: int) -> Series:
     return Series(series.name, series.unit, values, sigma, texts)
 
 
+def _unit(value) -> u.UnitBase | None:
+    """The unit a value is plotted in (None for dates and truths)."""
+    if isinstance(value, Grid):
+        value = value.data
+    if isinstance(value, Uncertain):
+        value = value.nominal
+    elif isinstance(value, Samples):
+        value = value.data
+    return value.unit if isinstance(value, u.Quantity) else None
+
+
+def _on_one_axis(ys: list, values: list, nodes) -> list:
+    """Lines that share the y axis, in the first one's unit (a line of another kind of
+    quantity is refused: one axis has one scale)."""
+    first, first_unit = ys[0][0], _unit(values[0])
+    out = [ys[0]]
+    for (y, axes), value, node in zip(ys[1:], values[1:], nodes[1:]):
+        unit = _unit(value)
+        if unit == first_unit:
+            out.append((y, axes))
+            continue
+        try:
+            scale = conversion_scale(unit, first_unit) if unit is not None and \
+                first_unit is not None else None
+        except u.UnitConversionError:
+            scale = None
+        if scale is None:
+            def kind(of):
+                return describe(of) if of is not None else "dates"
+
+            raise DomainError(f"`{y.name}` is {kind(unit)} and `{first.name}` "
+                              f"{kind(first_unit)}: one y axis cannot show both", node.span,
+                              hint="plot them in two plots")
+        out.append((replace(y, unit=first.unit, values=y.values * scale,
+                            sigma=None if y.sigma is None else y.sigma * scale), axes))
+    return out
+
+
 def plot_spec(definition: PlotDef, lookup: Lookup, heading: str) -> PlotSpec:
     xs = [_series(_name(n), lookup(_name(n), n.span), n.span) for n in definition.xs]
-    ys = [_series(_name(n), lookup(_name(n), n.span), n.span) for n in definition.ys]
+    y_values = [lookup(_name(n), n.span) for n in definition.ys]
+    ys = [_series(_name(n), v, n.span) for n, v in zip(definition.ys, y_values)]
     y_names = "_".join(_name(n) for n in definition.ys)
     x_names = "_".join(_name(n) for n in definition.xs)
     file_name = f"{y_names}_vs_{x_names}".replace(".", "_")
@@ -124,6 +170,8 @@ def plot_spec(definition: PlotDef, lookup: Lookup, heading: str) -> PlotSpec:
                 raise DomainError(f"`{y.name}` has {y.values.size} values and `{x.name}` "
                                   f"{x.values.size}", node.span,
                                   hint="plot values against the axis they were computed on")
+        if len(ys) > 1:
+            ys = _on_one_axis(ys, y_values, definition.ys)
     else:
         if len(ys) != 1:
             raise DomainError("a map shows one value over two axes", definition.span,
