@@ -145,3 +145,20 @@ def test_uncertain_dates_propagate():
     assert cell_text(s.cell("later")) == "2031-04-22T06:30:00.000 TDB ± 2 s"
     sampled = s.monte_carlo(20000, seed=2)
     assert float(sampled["dt"].sigma) == pytest.approx(np.sqrt(13), rel=0.03)
+
+
+def test_min_max_sort_diff_and_argmax_of_dates():
+    """Arrays of dates through the functions of one array: min, max and sort give dates,
+    diff durations, argmin and argmax places; on an axis too. diff across the 2016 leap second
+    counts it (erfa.dat: TAI − UTC from 36 s to 37 s at 2017-01-01T00:00:00 UTC)."""
+    s = sheet("t0 = 2031-07-26T06:00:00 TT\nt1 = t0 + 1 day\nhours = axis(span(t0, t1, 5))\n"
+              "last = max(hours)\ndown = span(t1, t0, 5)\nup = sort(down)\ngaps = diff(up)\n"
+              "i = argmax(down)\nfirst = min(down)\n"
+              "a = 2016-12-31T23:59:58 UTC\nb = 2017-01-01T00:00:01 UTC\nleap = diff(span(a, b, 2))\n")
+    assert s.raw("last").isot == "2031-07-27T06:00:00.000" and s.raw("last").scale == "tt"
+    assert s.raw("first").isot == "2031-07-26T06:00:00.000"
+    assert list(s.raw("up").isot) == list(s.raw("down").isot[::-1])
+    np.testing.assert_allclose(s.raw("gaps").to_value(u.h), [6, 6, 6, 6], rtol=1e-12)
+    assert int(s["i"].value) == 0
+    assert s.raw("leap").to_value(u.s) == pytest.approx([4.0], abs=1e-6)   # 3 s + the leap second
+    assert erfa.dat(2016, 12, 31, 0.5) == 36.0 and erfa.dat(2017, 1, 1, 0.0) == 37.0

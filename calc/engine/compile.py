@@ -14,6 +14,7 @@ context says at run time.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from operator import itemgetter
 
@@ -768,8 +769,11 @@ class _Compiler:
             effect = "elementwise"   # max(a, b): element by element; max(a): the largest
 
         takes_dates = spec.date_parameters
+        on_dates = ON_DATES.get(fname) if npos == 1 and not kw_codes else None
 
         def apply(*values):
+            if on_dates is not None and _exact_dates(values[0]):
+                return _of_dates(apply, values[0], on_dates, span)
             for value, pname in zip(values, slots):
                 if pname not in takes_dates and _dated(value):
                     raise ArgumentError(f"{fname}: `{pname}` takes a quantity, not dates",
@@ -1084,6 +1088,38 @@ def _at_call(err: SheetError, signature: str, call_line: int, body_line: int) ->
     named = copy.copy(err)
     named.message = f"in {signature}, called on line {call_line}: {err.message}"
     return named
+
+
+#: Functions of one array that also take dates: the dates are given to them as durations
+#: since the first date, and what they return is read back as ("date") dates, ("duration")
+#: durations in days, or ("index") as it is.
+ON_DATES = {"min": "date", "max": "date", "sort": "date", "diff": "duration",
+            "argmin": "index", "argmax": "index"}
+
+
+def _exact_dates(value) -> bool:
+    """Dates without an uncertainty (on axes or not)."""
+    return is_date(value.data if type(value) is Grid else value)
+
+
+def _of_dates(apply: Callable, dates, returns: str, span: Span):
+    """``apply`` on dates given as seconds since the first of them (astropy's differences of
+    dates keep nanoseconds), its result read back as ``returns`` says."""
+    from .dates import add
+
+    data = dates.data if type(dates) is Grid else dates
+    first = data.ravel()[0] if data.shape else data
+    seconds = u.Quantity((data - first).to_value(u.s), u.s)
+    result = apply(Grid(seconds, dates.axes) if type(dates) is Grid else seconds)
+    if returns == "index":
+        return result
+
+    def back(leaf):
+        if returns == "duration":
+            return leaf.to(u.d)
+        return add(first, leaf, False, span)
+
+    return Grid(back(result.data), result.axes) if type(result) is Grid else back(result)
 
 
 def _dated(value) -> bool:
