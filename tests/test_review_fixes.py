@@ -25,9 +25,10 @@ def error(s: Sheet, name: str) -> str:
 
 
 @pytest.mark.parametrize("expr, message", [
-    ("sort(hours)", "sort: `x` takes a quantity, not dates"),
-    ("diff(hours)", "diff: `x` takes a quantity, not dates"),
-    ("min(hours)", "min: `value 1` takes a quantity, not dates"),
+    # (min, max, sort, diff, argmin and argmax take dates: tests/test_dates.py)
+    ("cumsum(hours)", "cumsum: `x` takes a quantity, not dates"),
+    ("gradient(y, hours)", "gradient: `x` takes a quantity, not dates"),
+    ("min(hours, 1 s)", "min: `value 1` takes a quantity, not dates"),
     ("interp(t0, hours, y)", "interp: `x_new` takes a quantity, not dates"),
 ])
 def test_functions_of_quantities_refuse_dates_at_the_argument(expr, message):
