@@ -84,3 +84,22 @@ def test_funcs_command():
     bad = subprocess.run(run + ["shapiro"], cwd=ROOT, capture_output=True, text=True)
     assert bad.returncode == 64
     assert bad.stderr.startswith("relsheet: no function `shapiro`\n  hint: did you mean")
+
+
+def test_a_summary_is_the_whole_first_paragraph_and_long_calls_stand_alone():
+    """interp's summary runs over two lines of its docstring: the listing and the entry show
+    it whole, once, before the arguments; a call too long for the column (periapsis_budget)
+    stands on its own line with its summary under the column."""
+    spec = functions.lookup("interp")
+    assert spec.summary.endswith("is an error, not an extrapolation.")
+    assert "extrapolation" not in spec.documentation()
+    text = entry("interp", caution=False)
+    assert text.count("not an extrapolation") == 1
+    assert text.index("not an extrapolation") < text.index("x_new  quantity")
+    lines = listing().splitlines()
+    at = next(i for i, line in enumerate(lines) if line.startswith("  periapsis_budget("))
+    assert lines[at + 1].strip().startswith("Everything that moves a periapsis")
+    widths = {line.index(functions.lookup(n).summary[:20])
+              for n in ("interp", "clock_rate", "sort") for line in lines
+              if line.startswith(f"  {n}(")}
+    assert len(widths) == 1

@@ -31,12 +31,16 @@ CAUTION = (
 
 _ORDER = list(TOPIC_TITLES)
 
+#: The longest call written beside its summary in the listing.
+WIDEST_CALL = 44
+
 
 def listing() -> str:
     """Every function, by topic, with its signature and one-line summary."""
     specs = sorted(functions.all_functions(),
                    key=lambda f: (_ORDER.index(f.topic) if f.topic in _ORDER else 99, f.name))
-    width = max(len(f.name + f.display_signature()) for f in specs)
+    # summaries start in one column; a longer call than that stands on a line of its own
+    width = min(WIDEST_CALL, max(len(f.name + f.display_signature()) for f in specs))
     lines: list[str | None] = []
     topic = None
     for spec in specs:
@@ -44,7 +48,10 @@ def listing() -> str:
             topic = spec.topic
             lines += ["" if lines else None, TOPIC_TITLES.get(topic, topic)]
         call = spec.name + spec.display_signature()
-        lines.append(f"  {call:<{width}}  {spec.summary}")
+        if len(call) > width:
+            lines += [f"  {call}", f"  {'':<{width}}  {spec.summary}"]
+        else:
+            lines.append(f"  {call:<{width}}  {spec.summary}")
     lines += ["", "`relsheet funcs NAME` shows an entry: arguments, formula, validity, PPN, source.",
               "", CAUTION]
     return "\n".join(line for line in lines if line is not None)

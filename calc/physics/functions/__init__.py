@@ -137,9 +137,9 @@ class FunctionSpec:
                          if "record" in kind and name != "return")
 
     def documentation(self) -> str:
-        """The docstring without its one-line summary."""
+        """The docstring without its summary (its first paragraph)."""
         doc = inspect.getdoc(self.implementation) or ""
-        return doc.split("\n", 1)[1].strip() if "\n" in doc else ""
+        return doc.split("\n\n", 1)[1].strip() if "\n\n" in doc else ""
 
     def __call__(self, *args, **kwargs):
         bound = self.bind(args, kwargs)
@@ -178,7 +178,8 @@ def register(name: str, topic: str, samplewise: bool = False,
 
     def decorate(fn: Callable) -> Callable:
         doc = inspect.getdoc(fn) or ""
-        summary = doc.splitlines()[0] if doc else name
+        # the first paragraph, which may run over several lines
+        summary = " ".join(doc.split("\n\n", 1)[0].split()) if doc else name
         _REGISTRY[name] = FunctionSpec(name, topic, fn, inspect.signature(fn), summary,
                                        samplewise, effect)
         return fn

@@ -85,13 +85,15 @@ def all_of(condition) -> u.Quantity:
 
 @register("argmin", TOPIC, effect="reduce")
 def argmin(x: u.Quantity) -> u.Quantity:
-    """Index (from 0) of the smallest element along the last or the named axis."""
+    """Index (from 0) of the smallest element along the last or the named axis (of dates:
+    the earliest)."""
     return quantity(np.argmin(_along(x, "x"), axis=-1).astype(float), _ONE)
 
 
 @register("argmax", TOPIC, effect="reduce")
 def argmax(x: u.Quantity) -> u.Quantity:
-    """Index (from 0) of the largest element along the last or the named axis."""
+    """Index (from 0) of the largest element along the last or the named axis (of dates:
+    the latest)."""
     return quantity(np.argmax(_along(x, "x"), axis=-1).astype(float), _ONE)
 
 
@@ -106,7 +108,8 @@ def length(x) -> u.Quantity:
 
 @register("sort", TOPIC, effect="keep")
 def sort(x: u.Quantity) -> u.Quantity:
-    """The elements in increasing order along the last or the named axis."""
+    """The elements in increasing order along the last or the named axis (dates: in time
+    order)."""
     return quantity(np.sort(_along(x, "x"), axis=-1), x.unit)
 
 
@@ -118,7 +121,8 @@ def cumsum(x: u.Quantity) -> u.Quantity:
 
 @register("diff", TOPIC, effect="shorten")
 def diff(x: u.Quantity) -> u.Quantity:
-    """Differences of neighbours, x[i+1] − x[i] (one element fewer)."""
+    """Differences of neighbours, x[i+1] − x[i] (one element fewer; of dates: the durations
+    between them, in days)."""
     value = _along(x, "x")
     if value.shape[-1] < 2:
         raise ArgumentError("`x` needs at least 2 elements", "x")

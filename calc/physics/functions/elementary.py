@@ -147,13 +147,15 @@ def _extreme(values: tuple[u.Quantity, ...], reduce, pairwise, what: str) -> u.Q
 
 @register("min", TOPIC, effect="reduce")
 def minimum(*values: u.Quantity) -> u.Quantity:
-    """Smallest element of an array, or the element-wise smallest of several values."""
+    """Smallest element of an array (of dates: the earliest), or the element-wise smallest
+    of several values."""
     return _extreme(values, np.min, np.minimum, "min")
 
 
 @register("max", TOPIC, effect="reduce")
 def maximum(*values: u.Quantity) -> u.Quantity:
-    """Largest element of an array, or the element-wise largest of several values."""
+    """Largest element of an array (of dates: the latest), or the element-wise largest of
+    several values."""
     return _extreme(values, np.max, np.maximum, "max")
 
 
