@@ -148,6 +148,11 @@ def test_expression_input_for_set():
     ("x = 1 km in\n",
      "t.sheet:1:12: unexpected end of line: a unit is missing after `in`\n  x = 1 km in\n             ^\n"
      "  hint: write for example `in km / s`"),
+    ("b = (a in km) * 2\n",
+     "t.sheet:1:8: `in` stands at the end of a cell only: it chooses the unit the cell's result "
+     "is shown in\n  b = (a in km) * 2\n         ^~\n"
+     "  hint: move `in …` to the end of the line; inside an expression units convert by "
+     "themselves"),
     ("plot y vs\n",
      "t.sheet:1:10: unexpected end of line in a `plot` statement\n  plot y vs\n           ^\n"
      "  hint: write it as `plot y vs x` (`plot y1, y2 vs x`, `plot z vs x, y`, then `log x`, `log y`)"),

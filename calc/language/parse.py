@@ -252,6 +252,12 @@ def _syntax_error(err: UnexpectedInput, text: str, joiner: SheetLexer,
         return SheetSyntaxError(f"unexpected {_describe_token(tok)}: an expression is missing", span)
     if tok.type in ("RPAR", "RSQB"):
         return SheetSyntaxError(f"`{tok.value}` closes no open bracket", span)
+    if tok.type == "IN":
+        # `(a in km) * 2`, `f(x) = x in km`, `max(a in km, b)`
+        return SheetSyntaxError("`in` stands at the end of a cell only: it chooses the unit the "
+                                "cell's result is shown in", span,
+                                hint="move `in …` to the end of the line; inside an expression "
+                                     "units convert by themselves")
     return SheetSyntaxError(f"unexpected {_describe_token(tok)}", span,
                             hint=_expected_words(expected))
 
