@@ -223,3 +223,16 @@ def test_moved_calls_in_one_call_and_one_by_one_at_a_domain_edge(monkeypatch):
     expected = math.hypot(2 / (3 * mtot) * 0.01, 2 / (3 * mtot) * 0.02)
     assert sigma(s, "w") / s["w"].value == pytest.approx(expected, rel=1e-5)
     assert outcomes == [False]
+
+
+def test_a_records_fields_under_monte_carlo_show_their_samples():
+    """Under --mc a record's fields show their sample mean and σ, as cells do: `o.a` is the
+    input `a` itself, so its row reads as `a`'s (0.999 ± 0.099 here, not the first-order
+    1.00 ± 0.10)."""
+    from calc.outputs.report import render_text
+
+    s = Sheet.from_text("a = 1 ± 0.1 AU\no = orbit(a, 0.3 ± 0.05)\n")
+    text = render_text(s, 6, s.monte_carlo(20_000, seed=1), 20_000)
+    rows = {line.split()[0]: line.split()[1:4] for line in text.splitlines()[1:] if line.strip()}
+    assert rows["a"] == rows[".a"]
+    assert rows[".a"] != ["1.00", "±", "0.10"]

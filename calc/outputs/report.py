@@ -57,7 +57,10 @@ def render_text(sheet, digits: int, monte_carlo: dict | None = None,
                 if sheet.solved(item.name):
                     unit = f"{unit}  (solved)" if unit else "(solved)"
                 rows.append(("cell", item.name, number, unit))
-                if is_record(item.raw):   # only records have fields (a shown form costs)
+                if isinstance(sampled, (ShownRecord, ShownRecords)):
+                    # a record's fields under Monte Carlo: their sample statistics
+                    rows += [("field", *row) for row in record_rows(sampled, digits)]
+                elif is_record(item.raw):   # only records have fields (a shown form costs)
                     rows += [("field", *row) for row in record_rows(item.raw, digits)]
             rows += [("warning", text) for text in item.warnings]
         elif isinstance(item, Note) and item.heading:
