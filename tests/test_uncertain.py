@@ -236,3 +236,16 @@ def test_a_records_fields_under_monte_carlo_show_their_samples():
     rows = {line.split()[0]: line.split()[1:4] for line in text.splitlines()[1:] if line.strip()}
     assert rows["a"] == rows[".a"]
     assert rows[".a"] != ["1.00", "±", "0.10"]
+
+
+def test_monte_carlo_of_a_cell_the_inputs_cancel_out_of_is_exact():
+    """m / m is 1 in every sample but for rounding: exact, as in first order (a σ of a few
+    float roundings of the value is no uncertainty); so is a solve whose inputs are exact."""
+    s = Sheet.from_text("m = 1 ± 0.1 kg\nr = m / m\nz = [1, 2] * m / m\na = 2 km\nx = 1 km\n"
+                        "solve x^2 == a * 1 km for x in [0.1 km, 10 km]\n")
+    mc = s.monte_carlo(1000, seed=2)
+    for name in ("r", "z", "x"):
+        assert mc[name].sigma is None and mc[name].samples is None, name
+    assert mc["r"].value == pytest.approx(1.0, rel=1e-15)
+    assert mc["x"].value == pytest.approx(math.sqrt(2), rel=1e-12)   # √2 km
+    assert mc["m"].sigma == pytest.approx(0.1, rel=0.1)

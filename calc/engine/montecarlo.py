@@ -136,8 +136,15 @@ def _solve_samples(cells, env: Env, out: dict, count: int) -> None:
         if program.error is not None or any(isinstance(cells.solved.get(n), SheetError)
                                             for n in unknowns):
             continue
+        solutions = [cells.cells[name].raw for name in unknowns]
         try:
-            values = solve_sampled(program, cells, env, count)
+            if any(is_uncertain(value) for value in solutions):
+                values = solve_sampled(program, cells, env, count)
+            else:
+                # a solution that no uncertain input moves (to first order, through every
+                # cell the equations read) is exact: solving each sample again would only
+                # add the solver's rounding, ~1e-16, as a spread
+                values = solutions
         except SheetError as err:
             located = err.located(program.span, program.source).kept()
             for name in unknowns:

@@ -882,8 +882,12 @@ def shown(value) -> ShownValue:
                      value.unit)
     if isinstance(value, Samples):
         data = np.asarray(value.data.value)
-        return Shown(np.mean(data, axis=0), np.std(data, axis=0, ddof=1) if value.count > 1
-                     else np.zeros(data.shape[1:]), value.unit, samples=data)
+        mean = np.mean(data, axis=0)
+        spread = np.std(data, axis=0, ddof=1) if value.count > 1 else np.zeros(data.shape[1:])
+        if value.count > 1 and rounding_free(mean, spread) is None:
+            # every sample the same but for rounding (a cell the inputs cancel out of): exact
+            return Shown(mean, None, value.unit)
+        return Shown(mean, spread, value.unit, samples=data)
     if isinstance(value, u.Quantity):
         return Shown(value.value, None, value.unit)
     raise DomainError(f"a value of an unknown kind: {type(value).__name__}")
