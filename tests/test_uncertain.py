@@ -249,3 +249,13 @@ def test_monte_carlo_of_a_cell_the_inputs_cancel_out_of_is_exact():
     assert mc["r"].value == pytest.approx(1.0, rel=1e-15)
     assert mc["x"].value == pytest.approx(math.sqrt(2), rel=1e-12)   # √2 km
     assert mc["m"].sigma == pytest.approx(0.1, rel=0.1)
+
+
+def test_monte_carlo_samples_a_solve_whose_chain_reads_an_uncertain_input():
+    """`solve y == a for x` with y = x · m: m is read through the chain cell y, not by the
+    solve line itself; the solution x = a / m is still sampled (its median is a / median m)."""
+    s = Sheet.from_text("m = 2 ± 0.2\nx = 1 km\ny = x * m\na = 4 km\n"
+                        "solve y == a for x in [0.1 km, 10 km]\n")
+    mc = s.monte_carlo(4000, seed=1)
+    assert mc["x"].samples is not None
+    np.testing.assert_allclose(mc["x"].samples, 4.0 / mc["m"].samples, rtol=1e-9)
