@@ -202,8 +202,8 @@ def test_moved_calls_in_one_call_and_one_by_one_at_a_domain_edge(monkeypatch):
     def watched(call):
         several = real(call)
 
-        def counted(tuples):
-            result = several(tuples)
+        def counted(*args):
+            result = several(*args)
             outcomes.append(result is not None)
             return result
         return counted

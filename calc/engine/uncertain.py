@@ -324,9 +324,9 @@ def through(function: Callable, values: tuple, *, inputs_of: Callable, shifted: 
     of the difference, 1e-6 of the contribution for central differences (the step is 1e-6
     of the argument; the error goes with its square) and 1e-3 for one-sided ones.
 
-    ``several``, when given, calls the function on a list of argument tuples at once (or
-    gives None): every moved call is tried that way first, and one by one only if it fails
-    (one-sided differences near a domain's edge)."""
+    ``several``, when given, makes every moved call at once: ``several(values, steps,
+    result)`` gives each input's central difference (in ``result``'s unit), or None when
+    that call fails; then the calls are made one by one (one-sided near a domain's edge)."""
     nominals = tuple(shifted(v, None, 0.0) for v in values)
     result = function(*nominals)
     keys: dict[Input, None] = {}
@@ -338,12 +338,10 @@ def through(function: Callable, values: tuple, *, inputs_of: Callable, shifted: 
         relative = max(relative_size(v, key) for v in values)
         steps[key] = STEP / relative if relative and math.isfinite(relative) else STEP
     if several is not None and keys:
-        moved = several([tuple(shifted(v, key, sign * t) for v in values)
-                         for key, t in steps.items() for sign in (1.0, -1.0)])
-        if moved is not None:
-            return assemble(result, {key: (difference(moved[2 * i], moved[2 * i + 1],
-                                                      1 / (2 * t)), 1e-6, t)
-                                     for i, (key, t) in enumerate(steps.items())})
+        differences = several(values, steps, result)
+        if differences is not None:
+            return assemble(result, {key: (differences[key], 1e-6, t)
+                                     for key, t in steps.items()})
     parts_by_key: dict[Input, Any] = {}
     for key, t in steps.items():
         plus = minus = None

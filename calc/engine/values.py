@@ -597,27 +597,42 @@ def _single(value) -> bool:
 
 
 def _at_once(call: Callable) -> Callable:
-    """``call`` on several argument tuples of single numbers in one call: each argument
-    position as an array (an argument the same in every tuple stays single). Returns the
-    results, or None when the call fails for any of them or does not give one number per
-    tuple (the caller then calls once per tuple)."""
-    def several(tuples: list[tuple]) -> list | None:
-        count = len(tuples)
+    """The central differences of ``call`` at single numbers, all inputs in one call: each
+    argument as an array of its moved values (input k's step up, then down, for every k; an
+    argument no input moves stays single), moved exactly as :func:`_moved` moves it. Gives
+    each input's difference in the unit of ``result`` (the call at the nominal values), or
+    None when the call fails or does not give one number per move (the caller then makes
+    the moves one by one)."""
+    def several(values: tuple, steps: dict, result) -> dict | None:
+        keys = list(steps)
+        count = 2 * len(keys)
         arguments = []
-        for column in zip(*tuples):
-            first = column[0]
-            if all(a is first for a in column):
-                arguments.append(first)
+        for v in values:
+            if type(v) is not Uncertain:
+                arguments.append(v)
                 continue
-            unit = first.unit
-            arguments.append(quantity(np.array([a.to_value(unit) for a in column]), unit))
+            nominal = float(v.nominal.value)
+            column = np.full(count, nominal)
+            for i, key in enumerate(keys):
+                part = v.parts.get(key)
+                if part is not None:
+                    shift = steps[key] * float(part)
+                    column[2 * i] = nominal + shift
+                    column[2 * i + 1] = nominal + -shift
+            arguments.append(quantity(column, v.unit))
         try:
-            result = call(*arguments)
+            moved = call(*arguments)
         except (ArgumentError, DomainError):
             return None
-        if type(result) is not u.Quantity or result.shape != (count,):
+        if type(moved) is not u.Quantity or moved.shape != (count,) \
+                or type(result) is not u.Quantity:
             return None
-        return [result[i] for i in range(count)]
+        try:
+            numbers = moved.to_value(result.unit)
+        except u.UnitConversionError:
+            return None
+        return {key: (numbers[2 * i] - numbers[2 * i + 1]) * (1 / (2 * steps[key]))
+                for i, key in enumerate(keys)}
 
     return several
 
