@@ -168,6 +168,13 @@ def test_refusals(project, capsys):
     assert main(["map", str(folder / "plain.sheet"), "--table", f"stars={big}",
                  "--cells", "x", "-o", str(out)]) == 2
     assert "`stars` is not read with read_table" in capsys.readouterr().err
+    # a cell that combines the rows (a sum over them) would differ from chunk to chunk
+    (folder / "total.sheet").write_text(SHEET + "total = sum(stars.w)\nshare = stars.w / total\n")
+    assert main(["map", str(folder / "total.sheet"), "--table", f"stars={big}",
+                 "--cells", "share", "-o", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "total.sheet:7:1: `total` combines rows of the table `stars`" in err
+    assert not out.exists()
     out.write_bytes(b"keep")
     assert main(["map", str(sheet), "--table", f"stars={big}", "--cells", "shift",
                  "-o", str(out)]) == 64

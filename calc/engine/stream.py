@@ -21,7 +21,7 @@ from typing import Any
 import astropy.units as u
 import numpy as np
 
-from ..errors import SheetError
+from ..errors import DomainError, SheetError
 from ..language.syntax import Dotted, Name
 from ..physics.records import Record
 from ..physics.units import conversion_scale, describe
@@ -72,6 +72,33 @@ class ChunkResult:
     checks: dict[int, CheckTally]
 
 
+def _on_axis(value, axis: str) -> bool:
+    """Whether a value (a record: any of its fields) is on the axis named ``axis``."""
+    if type(value) is Grid:
+        return any(a.name == axis for a in value.axes)
+    if isinstance(value, Record):
+        return any(_on_axis(field, axis) for field in value.fields.values())
+    return False
+
+
+def _refuse_across_rows(cells: Cells, table: str, name: str) -> None:
+    """A cell the table reaches must hold one value a row (it is on the table's axis, as the
+    sheet evaluated it on its own small table): a sum, a mean, an element or a count over
+    the rows would come out differently in each chunk."""
+    cell = cells.cells[name]
+    if cell.error is not None:
+        return
+    if _on_axis(cell.raw, table):
+        return
+    program = cells.programs[name]
+    raise DomainError(f"`{name}` combines rows of the table `{table}` (it is not one value a "
+                      "row); `relsheet map` evaluates the rows in chunks, and it would come "
+                      "out differently in each", program.definition.span,
+                      hint="map the cells that work row by row; a total over all rows needs "
+                           "`relsheet eval` of a table that fits in memory",
+                      source=program.source)
+
+
 class ChunkEvaluator:
     """The cells that a table reaches, evaluated once per chunk of rows (see the module).
 
@@ -97,6 +124,10 @@ class ChunkEvaluator:
                     for dep in side.deps:
                         needed |= {dep} | cells.graph.upstream(dep)
         self.order = [n for n in cells.order if n in needed and n in reached]
+        for name in self.outputs:
+            for each in [name, *cells.graph.upstream(name)]:
+                if each in reached:
+                    _refuse_across_rows(cells, table, each)
         self.programs = {n: cells.programs[n] for n in self.order}
         self.base: Env = {k: v for k, v in cells.values.items() if k not in reached}
         self.units: dict[str, u.UnitBase] = {}
