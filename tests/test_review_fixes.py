@@ -250,3 +250,13 @@ def test_fuzz_seed_31_a_record_as_a_units_exponent():
     for name in ("y", "z", "w"):
         assert error(s, name) == "a unit's exponent must be a number"
     assert not s.internal_errors()
+
+
+def test_fuzz_seed_31_a_product_of_units_of_one_unknown_kind():
+    # found by the fuzz campaign (seed 31): `mag adu` — astropy gives both the physical type
+    # "unknown", so the simplification of a product of one kind tried to convert one into
+    # the other and failed inside the compiler; the product stays as written
+    s = sheet("x = 36525 mag adu * 1.\ny = 3 mag adu\n")
+    assert not s.all_errors()
+    assert s["y"].value == 3
+    assert {str(b) for b in s["y"].unit.bases} == {"mag", "adu"}

@@ -332,7 +332,12 @@ def simplified(unit: u.UnitBase) -> u.UnitBase | None:
         total = 0.0
         for base, power in members:
             if base is not keep:
-                factor *= base.to(keep) ** power
+                try:
+                    factor *= base.to(keep) ** power
+                except u.UnitsError:
+                    # one physical type yet no conversion (`mag` and `adu`: both counts of
+                    # no dimension to astropy): the product stays as written
+                    return None
             total += power
         if total:
             kept.append((keep, total))
