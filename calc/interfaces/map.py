@@ -692,11 +692,12 @@ def map_partition(frame, spec: MapSpec, folder: str, partition_info: dict | None
     path = Path(folder) / f"part.{partition_info['number']:05d}.parquet"
     columns = {c: frame[c].to_numpy(dtype=float, na_value=np.nan) for c, _, _ in spec.columns}
     rows = len(frame)
-    with lock, pq.ParquetWriter(path, schema) as writer:
+    with pq.ParquetWriter(path, schema) as writer:
         for start in range(0, max(rows, 1), spec.chunk):
             stop = min(start + spec.chunk, rows)
             chunk = {c: values[start:stop] for c, values in columns.items()}
-            result = evaluator.chunk(quantities(spec, chunk), stop - start)
+            with lock:   # the evaluation only: the other worker reads and writes meanwhile
+                result = evaluator.chunk(quantities(spec, chunk), stop - start)
             writer.write_batch(batch_of(result, spec, schema))
             summary.add(result, summary.rows)
     return pd.DataFrame({"summary": pd.Series([summary], dtype=object)})
