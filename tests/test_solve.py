@@ -134,6 +134,9 @@ def test_a_function_of_the_sheet_checks_units_per_call_and_carries_uncertainty()
     # a definition that does not parse still names its function
     ("f(x) = x * * 2\na = f(3)\n", "function `f` failed: its definition on line 1 does not "
                                    "parse"),
+    # lines as the lexer counts them: a form feed in a note ends no line
+    ("# a note \x0c page\nf(x) = x * * 2\na = f(3)\n",
+     "function `f` failed: its definition on line 2 does not parse"),
 ])
 def test_function_errors(text, message):
     s = sheet(text)

@@ -10,7 +10,6 @@ other statement is a cell. A name defined twice is an error on both lines.
 
 from __future__ import annotations
 
-import re
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -18,7 +17,7 @@ from typing import TYPE_CHECKING
 
 from ..errors import DuplicateCellError, InputError, NameResolutionError, SheetError, Source, Span
 from ..files import label_in, read_sheet, resolve_import
-from ..language.parse import parse_sheet
+from ..language.parse import broken_functions, parse_sheet
 from ..language.scope import PPN_PARAMETERS, ppn_cell
 from ..language.syntax import (
     CellDef,
@@ -81,9 +80,6 @@ class Built:
     ephemeris: EphemerisDef | None = None
 
 
-_FUNCTION_START = re.compile(r"\s*([^\W\d]\w*)\s*\(([^()=]*)\)\s*=(?!=)")
-
-
 def build(source: Source, constants: list[str] | None,
           load: Callable[[UseDef, Built], Sheet | None]) -> Built:
     """Sort a sheet's statements; ``load`` evaluates the sheet a `use` line names (or
@@ -93,14 +89,7 @@ def build(source: Source, constants: list[str] | None,
     on_cells = {id(s.syntax_error) for s in parsed.statements if isinstance(s, CellDef)}
     # a syntax error on a line that names a cell is reported with that cell
     out.errors.extend(e for e in parsed.errors if id(e) not in on_cells)
-    lines = source.text.splitlines()
-    for error in parsed.errors:
-        # a line `name(x, y) = …` that does not parse still names a function, failed, so
-        # that the calls of it say so instead of "unknown function"
-        line = error.span.line if error.span is not None else 0
-        match = _FUNCTION_START.match(lines[line - 1]) if 0 < line <= len(lines) else None
-        if match is not None:
-            out.failed_functions.setdefault(match.group(1), line)
+    out.failed_functions = broken_functions(source.text, parsed.errors)
     pinned: ConstantsDef | None = None
     if constants is not None:
         pinned = ConstantsDef(tuple((w, Span(1, 1, 1, 1)) for w in constants), Span(1, 1, 1, 1))

@@ -210,20 +210,22 @@ def iso(value, precision: int = 3) -> list[str] | str:
     digits of the second (9 in JSON: nanoseconds)."""
     scale = value.scale.upper()
     jd = np.asarray(value.jd)
-    if not np.all((jd >= CALENDAR_JD[0]) & (jd <= CALENDAR_JD[1])):
-        # outside ERFA's calendar (eraJd2cal; beyond it eraD2dtf writes nonsense, or fails)
+
+    def julian_dates() -> list[str] | str:
         if jd.ndim == 0:
             return _julian_date(float(jd), scale)
         return [_julian_date(float(j), scale) for j in jd.ravel()]
+
+    if not np.all((jd >= CALENDAR_JD[0]) & (jd <= CALENDAR_JD[1])):
+        # outside ERFA's calendar (eraJd2cal; beyond it eraD2dtf writes nonsense, or fails)
+        return julian_dates()
     if precision != value.precision:
         value = value.copy()
         value.precision = precision
     try:
         text = np.asarray(value.isot)
     except Exception:  # noqa: BLE001 - ERFA cannot write years outside its calendar range
-        if jd.ndim == 0:
-            return _julian_date(float(jd), scale)
-        return [_julian_date(float(j), scale) for j in jd.ravel()]
+        return julian_dates()
     if text.ndim == 0:
         return f"{text.item()} {scale}"
     return [f"{t} {scale}" for t in text.ravel()]

@@ -110,6 +110,10 @@ def _repeated(series: Series, rows: int) -> Series:
     return Series(series.name, series.unit, values, sigma, texts)
 
 
+def _dated(value) -> bool:
+    return is_date(value.data if isinstance(value, Grid) else value)
+
+
 def _unit(value) -> u.UnitBase | None:
     """The unit a value is plotted in (None for dates and truths)."""
     if isinstance(value, Grid):
@@ -119,6 +123,14 @@ def _unit(value) -> u.UnitBase | None:
     elif isinstance(value, Samples):
         value = value.data
     return value.unit if isinstance(value, u.Quantity) else None
+
+
+def _kind(value) -> str:
+    """What a line is, in words, for a message."""
+    unit = _unit(value)
+    if unit is not None:
+        return describe(unit)
+    return "dates" if _dated(value) else "true/false values"
 
 
 def _on_one_axis(ys: list, values: list, nodes) -> list:
@@ -137,11 +149,8 @@ def _on_one_axis(ys: list, values: list, nodes) -> list:
         except u.UnitConversionError:
             scale = None
         if scale is None:
-            def kind(of):
-                return describe(of) if of is not None else "dates"
-
-            raise DomainError(f"`{y.name}` is {kind(unit)} and `{first.name}` "
-                              f"{kind(first_unit)}: one y axis cannot show both", node.span,
+            raise DomainError(f"`{y.name}` is {_kind(value)} and `{first.name}` "
+                              f"{_kind(values[0])}: one y axis cannot show both", node.span,
                               hint="plot them in two plots")
         out.append((replace(y, unit=first.unit, values=y.values * scale,
                             sigma=None if y.sigma is None else y.sigma * scale), axes))

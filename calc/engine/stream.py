@@ -124,10 +124,12 @@ class ChunkEvaluator:
                     for dep in side.deps:
                         needed |= {dep} | cells.graph.upstream(dep)
         self.order = [n for n in cells.order if n in needed and n in reached]
+        wanted: set[str] = set()
         for name in self.outputs:
-            for each in [name, *cells.graph.upstream(name)]:
-                if each in reached:
-                    _refuse_across_rows(cells, table, each)
+            wanted |= {name} | cells.graph.upstream(name)
+        for name in self.order:   # the first offender in evaluation order
+            if name in wanted:
+                _refuse_across_rows(cells, table, name)
         self.programs = {n: cells.programs[n] for n in self.order}
         self.base: Env = {k: v for k, v in cells.values.items() if k not in reached}
         self.units: dict[str, u.UnitBase] = {}

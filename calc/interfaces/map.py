@@ -624,6 +624,11 @@ def _worker_evaluator(spec: MapSpec) -> tuple[ChunkEvaluator, Any, Any]:
     return evaluator, threading.Lock(), output_schema(spec, evaluator)
 
 
+def _without_dask() -> UsageError:
+    return UsageError("--engine dask needs dask and distributed",
+                      hint="pip install 'relsheet[cluster]'")
+
+
 class LocalClusterStart:
     """A local dask cluster of two workers, started in a thread while the command compiles
     the sheet and checks the table. The workers are threads of this process: on one
@@ -647,8 +652,7 @@ class LocalClusterStart:
             self.cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
                                         dashboard_address=":0")
         except ImportError:
-            self.failure = UsageError("--engine dask needs dask and distributed",
-                                      hint="pip install 'relsheet[cluster]'")
+            self.failure = _without_dask()
         except BaseException as exc:
             self.failure = exc
 
@@ -713,8 +717,7 @@ def run_dask(spec: MapSpec, stream: TableStream, evaluator: ChunkEvaluator, outp
         import pandas as pd
         from distributed import Client
     except ImportError:
-        raise UsageError("--engine dask needs dask and distributed",
-                         hint="pip install 'relsheet[cluster]'") from None
+        raise _without_dask() from None
     temporary = temporary_beside(output)
     temporary.unlink()
     temporary.mkdir()

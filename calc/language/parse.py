@@ -339,6 +339,20 @@ def logical_lines(text: str, start: int = 1) -> list[tuple[int, int]]:
 
 
 _CELL_START = re.compile(r"\s*([^\W\d]\w*)\s*=(?!=)")
+_FUNCTION_START = re.compile(r"\s*([^\W\d]\w*)\s*\(([^()=]*)\)\s*=(?!=)")
+
+
+def broken_functions(text: str, errors: list[SheetError]) -> dict[str, int]:
+    """The functions named by lines `name(x, y) = …` that do not parse, with their line
+    numbers: the calls of them can then say so instead of "unknown function"."""
+    lines = split_lines(text)
+    named: dict[str, int] = {}
+    for error in errors:
+        line = error.span.line if error.span is not None else 0
+        match = _FUNCTION_START.match(lines[line - 1]) if 0 < line <= len(lines) else None
+        if match is not None:
+            named.setdefault(match.group(1), line)
+    return named
 
 
 def _broken_cell(line: str, first: int, last: int, lines: list[str], err: SheetError
