@@ -56,6 +56,24 @@ def test_kernels_run_for_arithmetic_cells(monkeypatch):
     assert sheet["c"].value == pytest.approx(-((b / 2) ** 2) / 1e6, rel=1e-15)
 
 
+def test_operations_are_made_only_when_something_runs_them(monkeypatch):
+    """A cell that runs on its kernel never needs its operations' closures (making them was a
+    third of compiling such a cell); when its input becomes uncertain, they are made and
+    give the propagated value."""
+    from calc.engine import compile as compiler
+
+    made = count_calls(monkeypatch, compiler, "mul_op")
+    made += count_calls(monkeypatch, compiler, "add_op")
+    sheet = Sheet.from_text("a = 1 AU\nb = a * 1.0001 + 1500 km\n")
+    assert made == [], "closures were made for a cell that ran on floats"
+    sheet.set("a", "1 ± 0.001 AU")
+    assert made, "the uncertain input did not run the operations"
+    b = sheet.raw("b")
+    # 1 AU = 149 597 870.7 km (IAU 2012 Resolution B2); σ scales by the factor 1.0001
+    assert b.nominal.to_value("km") == pytest.approx(149_597_870.7 * 1.0001 + 1500, rel=1e-15)
+    assert b.sigma.to_value("km") == pytest.approx(149_597_870.7e-3 * 1.0001, rel=1e-12)
+
+
 @pytest.mark.parametrize("text", [
     "a = 3 km\nb = a / 0 s\n",                        # division by zero: the ordinary error
     "a = 3 km\nb = a + 2 s\n",                        # dimensions that do not add

@@ -17,6 +17,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from operator import itemgetter
+from typing import cast
 
 import astropy.units as u
 import numpy as np
@@ -119,8 +120,40 @@ _ONE = u.dimensionless_unscaled
 # ---- compiling ----------------------------------------------------------------
 
 
+class _Deferred:
+    """An arithmetic operation whose closure is made on first use.
+
+    Most cells of single quantities run on their scalar kernel (run.py) and never call their
+    operations' closures; making them anyway was a third of compiling such a cell. The
+    operation keeps what it needs to make its closure (``make(*args)`` applied to its
+    operands, as :func:`_lift` does) and makes it, with its operands', the first time it runs.
+    """
+
+    __slots__ = ("make", "args", "codes", "made")
+
+    def __init__(self, make: Callable, args: tuple, codes: tuple) -> None:
+        self.make = make
+        self.args = args
+        self.codes = codes
+        self.made: Callable | None = None
+
+    def real(self) -> Callable:
+        made = self.made
+        if made is None:
+            # an operand is not a constant (or it would have been folded): _lift makes a closure
+            made = self.made = cast(Callable, _lift(self.make(*self.args), *self.codes))
+            self.codes = ()   # the closure holds the operands now
+        return made
+
+    def __call__(self, env):
+        made = self.made
+        return (made if made is not None else self.real())(env)
+
+
 def _lift(fn, *codes: Code) -> Code:
-    """Apply ``fn`` to compiled operands: folded now when all are constants."""
+    """Apply ``fn`` to compiled operands: folded now when all are constants. (A deferred
+    operand is made here: its consumer then calls it without the indirection.)"""
+    codes = tuple(c.real() if type(c) is _Deferred else c for c in codes)
     if len(codes) == 2:
         a, b = codes
         if isinstance(a, Const):
@@ -331,23 +364,32 @@ class _Compiler:
             return scalar_constant(code.value)
         return self.kernels.get(id(code))
 
-    def with_kernel(self, code: Code, op: int, a: Code, b: Code | None = None) -> Code:
-        """``code``, with the kernel (op, kernels of a and b) when they both have one."""
-        if type(code) is Const:
-            return code
+    def arithmetic(self, op: int, make: Callable, args: tuple, a: Code,
+                   b: Code | None = None) -> Code:
+        """The operation ``make(*args)`` (mul_op, add_op, neg_op, power_op) of ``a`` (and
+        ``b``): folded now when its operands are constants; with its scalar kernel when they
+        have one, its closure then deferred until something runs it."""
+        codes = (a,) if b is None else (a, b)
+        if all(type(c) is Const for c in codes):
+            return _lift(make(*args), *codes)
+        kernel = self.operation_kernel(op, a, b)
+        if kernel is None:
+            return _lift(make(*args), *codes)
+        code = _Deferred(make, args, codes)
+        self.kernels[id(code)] = kernel
+        return code
+
+    def operation_kernel(self, op: int, a: Code, b: Code | None) -> Kernel | None:
+        """The kernel (op, kernels of a and b) when they both have one."""
         ka = scalar_constant(a.value) if type(a) is Const else self.kernels.get(id(a))
         if ka is None:
-            return code
+            return None
         if b is None:
-            self.kernels[id(code)] = (op, ka)
-            return code
+            return (op, ka)
         kb = scalar_constant(b.value) if type(b) is Const else self.kernels.get(id(b))
         if kb is None:
-            return code
-        kernel = scalar_power(ka, kb) if op == POW else (op, ka, kb)
-        if kernel is not None:
-            self.kernels[id(code)] = kernel
-        return code
+            return None
+        return scalar_power(ka, kb) if op == POW else (op, ka, kb)
 
     def resolved(self, resolved, span: Span) -> Code:
         if resolved.kind == "unit":
@@ -504,25 +546,23 @@ class _Compiler:
             left = self.expr(node.left, depth + 1)
             right = self.expr(node.right, depth + 1)
             if node.op == "*":
-                return self.with_kernel(_lift(mul_op(node.span, divide=False), left, right),
-                                        MUL, left, right)
+                return self.arithmetic(MUL, mul_op, (node.span, False), left, right)
             subtract = node.op == "-"
-            return self.with_kernel(_lift(add_op(node.span, subtract=subtract), left, right),
-                                    SUB if subtract else ADD, left, right)
+            return self.arithmetic(SUB if subtract else ADD, add_op, (node.span, subtract),
+                                   left, right)
         if kind is Chain:
             return self.chain(node, depth)[0]
         if kind is UnaryOp:
             operand = self.expr(node.operand, depth + 1)
             if node.op == "+":
                 return operand
-            return self.with_kernel(_lift(neg_op(node.span), operand), NEG, operand)
+            return self.arithmetic(NEG, neg_op, (node.span,), operand)
         if kind is PlusMinus:
             return self.plus_minus(node, depth)
         if kind is Power:
             base = self.expr(node.base, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
-            return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
-                                    POW, base, exponent)
+            return self.arithmetic(POW, power_op, (node.span, node.exponent.span), base, exponent)
         if kind is Group:
             return self.expr(node.inner, depth + 1)
         if kind is Call:
@@ -553,8 +593,7 @@ class _Compiler:
         if kind is NamePower:
             base = self.expr(node.name, depth + 1)
             exponent = self.expr(node.exponent, depth + 1)
-            return self.with_kernel(_lift(power_op(node.span, node.exponent.span), base, exponent),
-                                    POW, base, exponent)
+            return self.arithmetic(POW, power_op, (node.span, node.exponent.span), base, exponent)
         if kind is Compare:
             left = self.expr(node.left, depth + 1)
             right = self.expr(node.right, depth + 1)
@@ -605,8 +644,7 @@ class _Compiler:
                 # a number and its unit (`1500 km`), folded at once
                 code = Const(quantity(code.value.value, unit_product(_ONE, item_code.value)))
                 continue
-            code = self.with_kernel(_lift(mul_op(node.span, divide=False), code, item_code),
-                                    MUL, code, item_code)
+            code = self.arithmetic(MUL, mul_op, (node.span, False), code, item_code)
         return code, is_open
 
     # The two spellings an ambiguous name's hint shows, built only when needed.
@@ -652,8 +690,8 @@ class _Compiler:
                 return Const(resolved.unit ** self.exponent_number(item.exponent, depth)), True
             base = self.resolved(resolved, name.span)
             exponent = self.expr(item.exponent, depth + 1)
-            code = _lift(power_op(item.span, item.exponent.span), base, exponent)
-            return self.with_kernel(code, POW, base, exponent), False
+            return self.arithmetic(POW, power_op, (item.span, item.exponent.span), base,
+                                   exponent), False
         if isinstance(item, Name):
             self.looked_up.add(item.id)
             resolved = self.scope.in_chain(item, spellings)
@@ -679,21 +717,19 @@ class _Compiler:
                 right, is_open = self.chain_item(node.right, depth, self._divided(node))
             else:
                 right, is_open = self.expr(node.right, depth + 1), False
-            code = _lift(mul_op(node.span, divide=True), left, right)
-            return self.with_kernel(code, DIV, left, right), is_open
+            return self.arithmetic(DIV, mul_op, (node.span, True), left, right), is_open
         if kind is BinaryOp and node.op == "*":
             # `x * 3 km / s` reads as `x * (3 km / s)`: the chain of the right factor stays
             # open, as it would at the start of an expression (the number is the same)
             left = self.expr(node.left, depth + 1)
             right, is_open = self.chainable(node.right, depth + 1, False)
-            code = _lift(mul_op(node.span, divide=False), left, right)
-            return self.with_kernel(code, MUL, left, right), is_open
+            return self.arithmetic(MUL, mul_op, (node.span, False), left, right), is_open
         if kind is UnaryOp:
             # `-2 km / s`: the minus does not hide the number from the chain
             operand, is_open = self.chainable(node.operand, depth + 1, False)
             if node.op == "+":
                 return operand, is_open
-            return self.with_kernel(_lift(neg_op(node.span), operand), NEG, operand), is_open
+            return self.arithmetic(NEG, neg_op, (node.span,), operand), is_open
         return self.expr(node, depth), False
 
     def call(self, node: Call, depth: int) -> Code:
