@@ -73,6 +73,8 @@ HELD_LIMIT = 1_000_000
 
 def held_size(value) -> int:
     """How many numbers a value holds: its elements, and as many again per contribution."""
+    if type(value) is u.Quantity:   # most cells: no leaves to walk
+        return value.size
     total = 0
     for leaf in leaves(value):
         if is_date(leaf):   # its `.value` would format every date as text

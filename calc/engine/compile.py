@@ -78,6 +78,7 @@ from .datafiles import read_table_call
 from .grid import Grid
 from .run import (
     ADD,
+    CONST,
     DIV,
     MUL,
     NEG,
@@ -127,21 +128,30 @@ class _Deferred:
     operations' closures; making them anyway was a third of compiling such a cell. The
     operation keeps what it needs to make its closure (``make(*args)`` applied to its
     operands, as :func:`_lift` does) and makes it, with its operands', the first time it runs.
+    A constant operand is kept as its kernel's float and unit only (a literal's Quantity,
+    remade from them, is the same to the last bit): a sheet of many literals holds a third
+    less.
     """
 
-    __slots__ = ("make", "args", "codes", "made")
+    __slots__ = ("make", "args", "codes", "kernel", "made")
 
-    def __init__(self, make: Callable, args: tuple, codes: tuple) -> None:
+    def __init__(self, make: Callable, args: tuple, codes: tuple, kernel: Kernel) -> None:
         self.make = make
         self.args = args
+        if kernel[0] != POW:   # (op, kernel of a, kernel of b): each operand's kernel is there
+            codes = tuple(None if type(c) is Const and k[0] == CONST else c
+                          for c, k in zip(codes, kernel[1:]))
         self.codes = codes
+        self.kernel = kernel
         self.made: Callable | None = None
 
     def real(self) -> Callable:
         made = self.made
         if made is None:
+            codes = tuple(Const(quantity(k[1], k[2])) if c is None else c
+                          for c, k in zip(self.codes, self.kernel[1:]))
             # an operand is not a constant (or it would have been folded): _lift makes a closure
-            made = self.made = cast(Callable, _lift(self.make(*self.args), *self.codes))
+            made = self.made = cast(Callable, _lift(self.make(*self.args), *codes))
             self.codes = ()   # the closure holds the operands now
         return made
 
@@ -375,7 +385,7 @@ class _Compiler:
         kernel = self.operation_kernel(op, a, b)
         if kernel is None:
             return _lift(make(*args), *codes)
-        code = _Deferred(make, args, codes)
+        code = _Deferred(make, args, codes, kernel)
         self.kernels[id(code)] = kernel
         return code
 

@@ -391,27 +391,13 @@ _QUANTITY = u.Quantity
 CONST, UNIT, REF, MUL, DIV, ADD, SUB, NEG, POW = range(9)
 Kernel = tuple
 
-#: operand forms of constants by the constant's id (constants are shared: literal numbers and
-#: units); each entry keeps its constant alive so that the id stays its own. Bounded.
-_OPERANDS: dict[int, tuple[object, Kernel]] = {}
-_KEPT = 4096
-
-
 def scalar_constant(value) -> Kernel | None:
     """The kernel of a constant: a plain single quantity or a unit; None for anything else."""
-    hit = _OPERANDS.get(id(value))
-    if hit is not None:
-        return hit[1]
     if type(value) is _QUANTITY and value.ndim == 0:
-        kernel: Kernel = (CONST, _item(value), value.unit)
-    elif isinstance(value, u.UnitBase):
-        kernel = (UNIT, value)
-    else:
-        return None
-    if len(_OPERANDS) >= _KEPT:
-        _OPERANDS.clear()
-    _OPERANDS[id(value)] = (value, kernel)
-    return kernel
+        return (CONST, _item(value), value.unit)
+    if isinstance(value, u.UnitBase):
+        return (UNIT, value)
+    return None
 
 
 def scalar_power(base: Kernel, exponent: Kernel) -> Kernel | None:
