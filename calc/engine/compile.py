@@ -148,11 +148,13 @@ class _Deferred:
     def real(self) -> Callable:
         made = self.made
         if made is None:
-            codes = tuple(Const(quantity(k[1], k[2])) if c is None else c
-                          for c, k in zip(self.codes, self.kernel[1:]))
+            # (two threads may both get here: each makes the same closure, and one is kept)
+            codes = self.codes
+            if self.kernel[0] != POW:
+                codes = tuple(Const(quantity(k[1], k[2])) if c is None else c
+                              for c, k in zip(codes, self.kernel[1:]))
             # an operand is not a constant (or it would have been folded): _lift makes a closure
             made = self.made = cast(Callable, _lift(self.make(*self.args), *codes))
-            self.codes = ()   # the closure holds the operands now
         return made
 
     def __call__(self, env):
