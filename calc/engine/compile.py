@@ -97,7 +97,6 @@ from .run import (
     mul_op,
     neg_op,
     power_op,
-    scalar_constant,
     scalar_power,
     unit_range_error,
 )
@@ -151,7 +150,7 @@ class _Deferred:
             # (two threads may both get here: each makes the same closure, and one is kept)
             codes = self.codes
             if self.kernel[0] != POW:
-                codes = tuple(Const(quantity(k[1], k[2])) if c is None else c
+                codes = tuple(Const.literal(k[1], k[2]) if c is None else c
                               for c, k in zip(codes, self.kernel[1:]))
             # an operand is not a constant (or it would have been folded): _lift makes a closure
             made = self.made = cast(Callable, _lift(self.make(*self.args), *codes))
@@ -373,7 +372,7 @@ class _Compiler:
     # -- scalar kernels (run.py): each arithmetic code gets one when its operands have one
     def kernel(self, code: Code) -> Kernel | None:
         if type(code) is Const:
-            return scalar_constant(code.value)
+            return code.kernel()
         return self.kernels.get(id(code))
 
     def arithmetic(self, op: int, make: Callable, args: tuple, a: Code,
@@ -393,12 +392,12 @@ class _Compiler:
 
     def operation_kernel(self, op: int, a: Code, b: Code | None) -> Kernel | None:
         """The kernel (op, kernels of a and b) when they both have one."""
-        ka = scalar_constant(a.value) if type(a) is Const else self.kernels.get(id(a))
+        ka = a.kernel() if type(a) is Const else self.kernels.get(id(a))
         if ka is None:
             return None
         if b is None:
             return (op, ka)
-        kb = scalar_constant(b.value) if type(b) is Const else self.kernels.get(id(b))
+        kb = b.kernel() if type(b) is Const else self.kernels.get(id(b))
         if kb is None:
             return None
         return scalar_power(ka, kb) if op == POW else (op, ka, kb)
@@ -546,7 +545,7 @@ class _Compiler:
         if kind is Number or kind is Percent:
             if not np.isfinite(node.value):
                 self.trusted = False
-            return Const(quantity(float(node.value)))
+            return Const.literal(float(node.value), _ONE)
         if kind is Name:
             if self.bindings and node.id in self.bindings[-1]:
                 return self.bindings[-1][node.id]
@@ -651,10 +650,10 @@ class _Compiler:
             else:
                 item_code = self.expr(item, depth + 1)
             if type(code) is Const and type(item_code) is Const \
-                    and isinstance(item_code.value, u.UnitBase) and type(code.value) is u.Quantity \
-                    and code.value.unit is _ONE:
+                    and isinstance(item_code.value, u.UnitBase) and code.number is not None \
+                    and code.unit is _ONE:
                 # a number and its unit (`1500 km`), folded at once
-                code = Const(quantity(code.value.value, unit_product(_ONE, item_code.value)))
+                code = Const.literal(code.number, unit_product(_ONE, item_code.value))
                 continue
             code = self.arithmetic(MUL, mul_op, (node.span, False), code, item_code)
         return code, is_open
