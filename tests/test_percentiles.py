@@ -132,6 +132,23 @@ def test_a_probe_off_the_middle_by_chance_still_brackets(monkeypatch):
     assert calls == []
 
 
+@pytest.mark.parametrize("odd", [np.nan, np.inf])
+def test_shown_samples_with_a_value_that_is_not_finite_get_numpys_points(odd):
+    """A shown value skips the scan for nan when its sample mean is finite; a nan or an
+    infinite sample makes the mean say otherwise, and the points are numpy's."""
+    import astropy.units as u
+
+    from calc.engine.samples import Samples
+    from calc.engine.values import shown
+
+    data = np.random.default_rng(11).standard_normal(50_000)
+    data[1234] = odd
+    with np.errstate(all="ignore"):     # as a sheet evaluates: σ of an infinite sample
+        form = shown(Samples(u.Quantity(data, u.km)))
+    expected = _numpy(data)
+    assert np.array_equal(form.percentiles(), expected, equal_nan=True)
+
+
 def test_points_asked_ahead_are_found_beside_the_evaluation():
     """With ``points=True`` (as `eval --mc` asks) each cell's percentiles are started on a
     thread as its samples are ready; they are numpy's numbers all the same, for the cells of

@@ -160,25 +160,26 @@ _PROBE = 2048
 _MARGIN = 4
 
 
-def percentiles(data: np.ndarray, points=POINTS) -> np.ndarray:
+def percentiles(data: np.ndarray, points=POINTS, finite: bool = False) -> np.ndarray:
     """``np.percentile(data, points, axis=0)`` (method "linear"), the same numbers, faster for
-    many samples: shape (len(points), *data.shape[1:])."""
+    many samples: shape (len(points), *data.shape[1:]). ``finite``: the caller knows that no
+    sample is nan or infinite (their mean is finite), which saves a pass over them."""
     data = np.asarray(data)
     if data.shape[0] < _FAST_FROM or data.dtype != np.float64 or not _agrees():
         return np.percentile(data, list(points), axis=0)
     if data.ndim == 1:
-        return _points(data, points)
+        return _points(data, points, finite)
     columns = data.reshape(data.shape[0], -1)
     out = np.empty((len(points), columns.shape[1]))
     for j in range(columns.shape[1]):
-        out[:, j] = _points(np.ascontiguousarray(columns[:, j]), points)
+        out[:, j] = _points(np.ascontiguousarray(columns[:, j]), points, finite)
     return out.reshape((len(points), *data.shape[1:]))
 
 
-def _points(x: np.ndarray, points) -> np.ndarray:
+def _points(x: np.ndarray, points, finite: bool = False) -> np.ndarray:
     """The percentiles of a 1-d float array, as np.percentile computes them."""
     plan = _plan(x.size, tuple(points))
-    if plan is None or np.isnan(x).any():
+    if plan is None or (not finite and np.isnan(x).any()):
         return np.percentile(x, list(points))           # nan, or an end point: numpy's own way
     previous_ranks, next_ranks, gamma, upper = plan
     found = _order_statistics(x, sorted({*previous_ranks, *next_ranks}))

@@ -795,7 +795,7 @@ class Shown:
             return None
         if self._points is None:
             self._points = self._pending.result() if self._pending is not None else \
-                _points_of(self.samples)
+                _points_of(self.samples, self._finite())
             self._pending = None
         return self._points
 
@@ -803,12 +803,17 @@ class Shown:
         """Start finding the percentiles on ``executor`` (a thread: numpy's selection runs
         without the GIL, beside the evaluation of the next cells)."""
         if self.samples is not None and self._points is None and self._pending is None:
-            self._pending = executor.submit(_points_of, self.samples)
+            self._pending = executor.submit(_points_of, self.samples, self._finite())
+
+    def _finite(self) -> bool:
+        """Whether every sample is finite: their mean is (a nan or an infinite sample makes
+        the sum nan or infinite)."""
+        return bool(np.isfinite(self.value).all())
 
 
-def _points_of(samples: np.ndarray) -> np.ndarray:
+def _points_of(samples: np.ndarray, finite: bool) -> np.ndarray:
     with np.errstate(all="ignore"):   # samples with inf or nan give nan points
-        return percentiles(samples)
+        return percentiles(samples, finite=finite)
 
 
 def points_ahead(value, executor) -> None:
