@@ -222,8 +222,10 @@ def _order_statistics(x: np.ndarray, ranks: list[int]) -> dict[int, float]:
         last = math.ceil(group[-1] / (n - 1) * (m - 1)) + margin
         low = probe[first] if first >= 0 else -np.inf
         high = probe[last] if last < m else np.inf
-        below = int(np.count_nonzero(x < low))
-        between = np.compress((x >= low) & (x <= high), x)
+        inside = x >= low                       # (no nan here: x < low is the rest)
+        below = n - int(np.count_nonzero(inside))
+        np.logical_and(inside, x <= high, out=inside)
+        between = np.compress(inside, x)
         if not (below <= group[0] and group[-1] < below + between.size):
             return _partitioned(x, ranks)       # a bracket missed: the whole partition
         between.partition([r - below for r in group])
