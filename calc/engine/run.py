@@ -70,8 +70,8 @@ class Const:
 
     A number as written, with or without its unit (``1.0001``, ``1500 km``), is kept as a float
     and a unit (:meth:`literal`), its Quantity made only if something asks for ``value``: in a
-    cell that runs on its scalar kernel nothing does, and making it was a fifth of compiling
-    such a cell.
+    cell that runs on its scalar kernel nothing does (the benchmark's 2,000-cell sheet made
+    6,000 Quantities for nothing).
     """
 
     __slots__ = ("_value", "number", "unit")
