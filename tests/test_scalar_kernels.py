@@ -57,9 +57,8 @@ def test_kernels_run_for_arithmetic_cells(monkeypatch):
 
 
 def test_operations_are_made_only_when_something_runs_them(monkeypatch):
-    """A cell that runs on its kernel never needs its operations' closures (making them was a
-    third of compiling such a cell); when its input becomes uncertain, they are made and
-    give the propagated value."""
+    """A cell that runs on its kernel never needs its operations' closures, so none are made;
+    when its input becomes uncertain, they are made and give the propagated value."""
     from calc.engine import compile as compiler
 
     made = count_calls(monkeypatch, compiler, "mul_op")

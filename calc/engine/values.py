@@ -626,7 +626,7 @@ def _at_once(call: Callable) -> Callable:
                 if part is not None:
                     shift = steps[key] * float(part)
                     column[2 * i] = nominal + shift
-                    column[2 * i + 1] = nominal + -shift
+                    column[2 * i + 1] = nominal - shift
             arguments.append(quantity(column, v.unit))
         try:
             moved = call(*arguments)
