@@ -259,3 +259,50 @@ def test_monte_carlo_samples_a_solve_whose_chain_reads_an_uncertain_input():
     mc = s.monte_carlo(4000, seed=1)
     assert mc["x"].samples is not None
     np.testing.assert_allclose(mc["x"].samples, 4.0 / mc["m"].samples, rtol=1e-9)
+
+
+@pytest.mark.parametrize("shape", [(50_000,), (20_000, 3), (5_000, 2, 2), (2,)])
+def test_the_sample_spread_is_numpys_standard_deviation(shape):
+    """The σ `--mc` shows is np.std(ddof=1) of the samples to the last bit (numpy is the
+    reference), though it reuses the mean found for the shown value; with an infinite and a
+    nan sample as numpy gives them."""
+    from calc.engine.values import sample_spread
+
+    rng = np.random.default_rng(5)
+    data = np.exp(rng.standard_normal(shape)) * 3.7e11
+    assert np.array_equal(sample_spread(data, np.mean(data, axis=0)),
+                          np.std(data, axis=0, ddof=1))
+    if data.size > 10:
+        odd = data.copy()
+        odd.flat[3], odd.flat[-2] = np.inf, np.nan
+        with np.errstate(all="ignore"):
+            assert np.array_equal(sample_spread(odd, np.mean(odd, axis=0)),
+                                  np.std(odd, axis=0, ddof=1), equal_nan=True)
+
+
+@pytest.mark.parametrize("other", [
+    lambda rng: u.Quantity(rng.normal(3, 0.1, 4000), u.km),          # samples and samples
+    lambda rng: u.Quantity(2.5, u.AU),                               # a number: scaled to km
+    lambda rng: u.Quantity(rng.normal(3, 0.1, 4000), u.s),           # another unit
+    lambda rng: u.Quantity(rng.normal(3, 0.1, (4000, 3)), u.m),      # samples of an array
+])
+def test_arithmetic_on_samples_gives_astropys_numbers(other):
+    """+ − × ÷ of samples give the values and unit astropy's own Quantity arithmetic gives,
+    to the last bit (astropy is the reference); units that do not add are refused as before."""
+    from calc.engine.samples import Samples
+
+    rng = np.random.default_rng(9)
+    a = u.Quantity(rng.normal(7, 0.3, 4000), u.km)
+    b = other(rng)
+    wrapped = Samples(b) if b.ndim else b
+    a_aligned = a.reshape((-1, 1)) if b.ndim == 2 else a    # a number's samples meet an array's
+    for name in ("__mul__", "__truediv__", "__add__", "__sub__", "__rmul__", "__rsub__"):
+        try:
+            expected = getattr(a_aligned, name)(b)
+        except u.UnitConversionError:
+            with pytest.raises(u.UnitConversionError):
+                getattr(Samples(a), name)(wrapped)
+            continue
+        got = getattr(Samples(a), name)(wrapped).data
+        assert got.unit == expected.unit, name
+        assert np.array_equal(got.value, expected.value), name

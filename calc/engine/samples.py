@@ -17,13 +17,14 @@ those registered ``samplewise`` take single values and run once per sample.
 from __future__ import annotations
 
 import math
+import operator
 from collections.abc import Callable
 from functools import lru_cache
 
 import astropy.units as u
 import numpy as np
 
-from ..physics.units import quantity
+from ..physics.units import conversion_scale, quantity, unit_product, unit_quotient
 from .operators import WrappedArithmetic
 
 
@@ -72,7 +73,14 @@ class Samples(WrappedArithmetic):
     # -- arithmetic: numpy over the whole array after aligning the value axes
     def _apply(self, other, operation: Callable, reflected: bool = False):
         a, b = aligned(self, other)
-        return wrap(operation(b, a) if reflected else operation(a, b))
+        if reflected:
+            a, b = b, a
+        direct = _DIRECT.get(operation)
+        if direct is not None and _plain(a) and _plain(b):
+            result = direct(a, b)
+            if result is not None:
+                return Samples(result)
+        return wrap(operation(a, b))
 
     @staticmethod
     def _power(base, exponent):
@@ -83,6 +91,32 @@ class Samples(WrappedArithmetic):
 
     def __repr__(self) -> str:
         return f"<Samples {self.count} of shape {self.shape} {self.unit}>"
+
+
+def _plain(x) -> bool:
+    return type(x) is u.Quantity and isinstance(x.unit, u.UnitBase)
+
+
+def _sum(a: u.Quantity, b: u.Quantity, subtract: bool = False) -> u.Quantity | None:
+    """a ± b on the values, b scaled into a's unit as astropy scales it (None: units that
+    need astropy's own handling, which then says what is wrong)."""
+    try:
+        scale = conversion_scale(b.unit, a.unit)
+    except u.UnitConversionError:
+        return None
+    bv = b.value if scale == 1.0 else b.value * scale
+    return quantity(a.value - bv if subtract else a.value + bv, a.unit)
+
+
+#: ``+ - * /`` of two plain quantities on their values, with the unit algebra cached
+#: (physics.units): astropy's ufunc machinery costs more than the arithmetic on 10^5 samples
+#: of a single number (the same numbers: the same float operations, the same scale).
+_DIRECT: dict[Callable, Callable[[u.Quantity, u.Quantity], u.Quantity | None]] = {
+    operator.mul: lambda a, b: quantity(a.value * b.value, unit_product(a.unit, b.unit)),
+    operator.truediv: lambda a, b: quantity(a.value / b.value, unit_quotient(a.unit, b.unit)),
+    operator.add: _sum,
+    operator.sub: lambda a, b: _sum(a, b, subtract=True),
+}
 
 
 def _power(base, exponent):
