@@ -150,15 +150,19 @@ def test_shown_samples_with_a_value_that_is_not_finite_get_numpys_points(odd):
 
 
 def test_points_asked_ahead_are_found_beside_the_evaluation():
-    """With ``points=True`` (as `eval --mc` asks) each cell's percentiles are started on a
-    thread as its samples are ready; they are numpy's numbers all the same, for the cells of
-    a record too. Without it nothing is started."""
+    """Each cell's samples are summarised on a thread as they are ready, and with
+    ``points=True`` (as `eval --mc` asks) their percentiles with them; mean, σ and points are
+    numpy's numbers all the same (np.mean, np.std with ddof=1, np.percentile), for the cells
+    of a record too. Without it the points are found only when asked for."""
     text = ("m = 1.438 ± 0.01 Msun\nr = 2 ± 0.1 AU\nv = sqrt(const.G * m / r) in km / s\n"
             "o = orbit(r, 0.1 ± 0.01)\n")
     ahead = Sheet.from_text(text).monte_carlo(20_000, seed=3, points=True)
-    assert ahead["v"]._pending is not None
+    assert ahead["v"]._summary is not None          # found in the background
     for shown in (ahead["v"], ahead["m"], ahead["o"].fields["e"]):
+        assert shown.samples is not None and shown._points is not None   # with the summary
         assert np.array_equal(shown.percentiles(), _numpy(shown.samples))
+        assert shown.value == np.mean(shown.samples)
+        assert shown.sigma == np.std(shown.samples, ddof=1)
     later = Sheet.from_text(text).monte_carlo(20_000, seed=3)
-    assert later["v"]._pending is None
+    assert later["v"].samples is not None and later["v"]._points is None
     assert np.array_equal(later["v"].percentiles(), ahead["v"].percentiles())

@@ -10,6 +10,7 @@ importing sheet is drawn once; each runs under its own pinned constants.
 
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -17,7 +18,7 @@ import numpy as np
 from ..errors import InternalError, SheetError, UsageError
 from .context import Progress, Sampling, entered, memory_budget
 from .run import Env, failed_input, run_cell
-from .values import ShownValue, is_uncertain, leaves, points_ahead, shown
+from .values import ShownValue, is_uncertain, leaves, shown
 
 if TYPE_CHECKING:
     from .sheet import Sheet
@@ -51,24 +52,21 @@ def run(sheet, samples: int, seed: int | None, progress: Progress | None = None,
         points: bool = False) -> dict[str, ShownValue | SheetError]:
     """Per cell of ``sheet``: its shown form under Monte Carlo (sample mean and standard
     deviation, percentiles on request; cells that depend on no input as they are), or its
-    error. ``points``: the percentiles will be asked for; they are found in a thread beside
-    the evaluation as each cell's samples are ready."""
+    error. Each cell's mean and σ are found on a thread beside the evaluation as its samples
+    are ready; with ``points`` (the percentiles will be asked for) its percentiles too."""
     _check_memory(sheet, samples)
     sampling = Sampling(samples, seed, progress)
     out: dict[str, ShownValue | SheetError] = {}
-    ahead = None
-    if points:
-        from concurrent.futures import ThreadPoolExecutor
-
-        ahead = ThreadPoolExecutor(1, thread_name_prefix="relsheet-points")
+    # each cell's samples are summarised on a thread as they are ready (numpy's reductions and
+    # selection run without the GIL, beside the evaluation of the next cells)
+    summaries = ThreadPoolExecutor(1, thread_name_prefix="relsheet-summaries")
     try:
         for each in imports_first(sheet):
             env, out = _evaluate(each, sampling, progress if each is sheet else None,
-                                 ahead if each is sheet else None)
+                                 summaries if each is sheet else None, points)
             sampling.results[each] = env
     finally:
-        if ahead is not None:
-            ahead.shutdown(wait=False)   # what is queued still runs; Shown waits for it
+        summaries.shutdown(wait=False)   # what is queued still runs; Shown waits for it
     return out
 
 
@@ -90,7 +88,8 @@ def _check_memory(sheet, samples: int) -> None:
                          hint=f"use --mc {largest:,} or fewer")
 
 
-def _evaluate(sheet, sampling: Sampling, progress: Progress | None, ahead=None
+def _evaluate(sheet, sampling: Sampling, progress: Progress | None,
+              summaries: ThreadPoolExecutor | None = None, points: bool = False
               ) -> tuple[Env, dict[str, ShownValue | SheetError]]:
     """One pass over a sheet's cells in order, with its inputs drawn."""
     cells = sheet.engine
@@ -117,9 +116,7 @@ def _evaluate(sheet, sampling: Sampling, progress: Progress | None, ahead=None
                                                    cell.definition.span, program.source)
                 continue
             env[name] = value
-            out[name] = shown(value)
-            if ahead is not None:
-                points_ahead(out[name], ahead)
+            out[name] = shown(value, summaries, points)
             if progress is not None:
                 progress(index + 1, len(cells.order))
         if cells.solves:

@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Union
 
 import astropy.units as u
@@ -772,22 +772,68 @@ def all_finite(value) -> bool:
 # ---- how values are shown ---------------------------------------------------------------
 
 
-@dataclass
 class Shown:
     """A leaf as outputs print it: a value (a number or an array), its σ (or None), its unit;
-    under Monte Carlo the sample mean and standard deviation, and the 16/50/84 % points."""
+    under Monte Carlo the sample mean and standard deviation, and the 16/50/84 % points.
 
-    value: Any
-    sigma: Any | None
-    unit: u.UnitBase
-    samples: np.ndarray | None = None
-    #: the axes the value is on, in order (their names, or None for a dimension of no axis)
-    axes: tuple = ()
-    #: "quantity", "truth" (true/false values) or "date" (ISO strings with a time scale)
-    kind: str = "quantity"
-    _points: np.ndarray | None = field(default=None, repr=False)
-    #: the points being found in the background (a Future), when asked for ahead
-    _pending: Any = field(default=None, repr=False)
+    A Monte Carlo run may summarise a cell's samples on a thread beside the evaluation of the
+    next cells (:meth:`of_samples`): the value, σ and samples are then read from that summary
+    the first time something asks for them."""
+
+    __slots__ = ("_value", "_sigma", "unit", "_samples", "axes", "kind", "_points", "_summary")
+
+    def __init__(self, value: Any, sigma: Any | None, unit: u.UnitBase,
+                 samples: np.ndarray | None = None, axes: tuple = (),
+                 kind: str = "quantity") -> None:
+        self._value = value
+        self._sigma = sigma
+        self.unit = unit
+        self._samples = samples
+        #: the axes the value is on, in order (their names, or None for a dimension of no axis)
+        self.axes = axes
+        #: "quantity", "truth" (true/false values) or "date" (ISO strings with a time scale)
+        self.kind = kind
+        self._points: np.ndarray | None = None
+        #: the summary being found in the background (a Future of a :class:`_Summary`)
+        self._summary: Any = None
+
+    @classmethod
+    def of_samples(cls, data: np.ndarray, unit: u.UnitBase, executor=None,
+                   points: bool = False) -> Shown:
+        """The shown form of samples (``data``: the sample axis first): their mean and
+        standard deviation, and with ``points`` their 16/50/84 % points, found on
+        ``executor`` when given (a thread: numpy's reductions and selection run without the
+        GIL), else now (the points then when first asked for)."""
+        if executor is None:
+            return _summarised(data, False).shown(unit)
+        made = cls(None, None, unit)
+        made._summary = executor.submit(_summarised, data, points)
+        return made
+
+    def _settle(self) -> None:
+        """Take the background summary's results (waiting for them if need be)."""
+        summary = self._summary.result()
+        self._value, self._sigma, self._samples, self._points = \
+            summary.mean, summary.spread, summary.samples, summary.points
+        self._summary = None
+
+    @property
+    def value(self) -> Any:
+        if self._summary is not None:
+            self._settle()
+        return self._value
+
+    @property
+    def sigma(self) -> Any | None:
+        if self._summary is not None:
+            self._settle()
+        return self._sigma
+
+    @property
+    def samples(self) -> np.ndarray | None:
+        if self._summary is not None:
+            self._settle()
+        return self._samples
 
     @property
     def uncertain(self) -> bool:
@@ -799,41 +845,60 @@ class Shown:
 
     def percentiles(self) -> np.ndarray | None:
         """The 16/50/84 % points of the samples (None without samples), computed once."""
-        if self.samples is None:
+        samples = self.samples
+        if samples is None:
             return None
         if self._points is None:
-            self._points = self._pending.result() if self._pending is not None else \
-                _points_of(self.samples, self._finite())
-            self._pending = None
+            self._points = _points_of(samples, _finite(self._value))
         return self._points
 
-    def points_ahead(self, executor) -> None:
-        """Start finding the percentiles on ``executor`` (a thread: numpy's selection runs
-        without the GIL, beside the evaluation of the next cells)."""
-        if self.samples is not None and self._points is None and self._pending is None:
-            self._pending = executor.submit(_points_of, self.samples, self._finite())
+    def __repr__(self) -> str:
+        if self._summary is not None:
+            return f"Shown(<being summarised>, {self.unit})"
+        return f"Shown({self._value!r}, {self._sigma!r}, {self.unit}, kind={self.kind!r})"
 
-    def _finite(self) -> bool:
-        """Whether every sample is finite: their mean is (a nan or an infinite sample makes
-        the sum nan or infinite)."""
-        return bool(np.isfinite(self.value).all())
+
+class _Summary:
+    """What a cell's samples come to: mean, standard deviation (None when the samples differ
+    only by rounding: the value is exact), the samples, and the points when found."""
+
+    __slots__ = ("mean", "spread", "samples", "points")
+
+    def __init__(self, mean, spread, samples: np.ndarray | None,
+                 points: np.ndarray | None) -> None:
+        self.mean = mean
+        self.spread = spread
+        self.samples = samples
+        self.points = points
+
+    def shown(self, unit: u.UnitBase) -> Shown:
+        made = Shown(self.mean, self.spread, unit, samples=self.samples)
+        made._points = self.points
+        return made
+
+
+def _summarised(data: np.ndarray, points: bool) -> _Summary:
+    """The summary of samples (the sample axis first), with their points if asked."""
+    with np.errstate(all="ignore"):   # samples with inf or nan give nan mean, σ and points
+        mean = np.mean(data, axis=0)
+        count = data.shape[0]
+        spread = sample_spread(data, mean) if count > 1 else np.zeros(data.shape[1:])
+        if count > 1 and rounding_free(mean, spread) is None:
+            # every sample the same but for rounding (a cell the inputs cancel out of): exact
+            return _Summary(mean, None, None, None)
+        found = percentiles(data, finite=_finite(mean)) if points else None
+    return _Summary(mean, spread, data, found)
+
+
+def _finite(mean) -> bool:
+    """Whether every sample is finite: their mean is (a nan or an infinite sample makes the
+    sum nan or infinite)."""
+    return bool(np.isfinite(mean).all())
 
 
 def _points_of(samples: np.ndarray, finite: bool) -> np.ndarray:
     with np.errstate(all="ignore"):   # samples with inf or nan give nan points
         return percentiles(samples, finite=finite)
-
-
-def points_ahead(value, executor) -> None:
-    """:meth:`Shown.points_ahead` for every leaf of a shown value."""
-    if isinstance(value, Shown):
-        value.points_ahead(executor)
-    elif isinstance(value, ShownRecord):
-        for each in value.fields.values():
-            points_ahead(each, executor)
-    elif isinstance(value, ShownRecords):
-        for item in value.items:
-            points_ahead(item, executor)
 
 
 @dataclass
@@ -887,10 +952,11 @@ def sample_spread(data: np.ndarray, mean) -> np.ndarray:
     return np.std(data, axis=0, ddof=1)
 
 
-def shown(value) -> ShownValue:
-    """The printable form of a value of any kind."""
+def shown(value, executor=None, points: bool = False) -> ShownValue:
+    """The printable form of a value of any kind. Samples are summarised on ``executor`` when
+    given, with their percentiles if ``points`` (:meth:`Shown.of_samples`)."""
     if isinstance(value, Grid):
-        inner = shown(value.data)
+        inner = shown(value.data, executor, points)
         names = tuple(a.name for a in value.axes)
         if isinstance(inner, Shown):
             inner.axes = names
@@ -915,20 +981,15 @@ def shown(value) -> ShownValue:
         return Shown(np.array(text, dtype=object).reshape(value.shape) if value.shape
                      else text, None, u.dimensionless_unscaled, kind="date")
     if isinstance(value, Record):
-        return ShownRecord(value.kind, value.label, {k: shown(q) for k, q in value.fields.items()})
+        return ShownRecord(value.kind, value.label,
+                           {k: shown(q, executor, points) for k, q in value.fields.items()})
     if isinstance(value, RecordList):
-        return ShownRecords([shown(r) for r in value.items])  # type: ignore[misc]
+        return ShownRecords([shown(r, executor, points) for r in value.items])  # type: ignore[misc]
     if isinstance(value, Uncertain):
         return Shown(value.nominal.value, rounding_free(value.nominal.value, value.sigma_value()),
                      value.unit)
     if isinstance(value, Samples):
-        data = np.asarray(value.data.value)
-        mean = np.mean(data, axis=0)
-        spread = sample_spread(data, mean) if value.count > 1 else np.zeros(data.shape[1:])
-        if value.count > 1 and rounding_free(mean, spread) is None:
-            # every sample the same but for rounding (a cell the inputs cancel out of): exact
-            return Shown(mean, None, value.unit)
-        return Shown(mean, spread, value.unit, samples=data)
+        return Shown.of_samples(np.asarray(value.data.value), value.unit, executor, points)
     if isinstance(value, u.Quantity):
         return Shown(value.value, None, value.unit)
     raise DomainError(f"a value of an unknown kind: {type(value).__name__}")
