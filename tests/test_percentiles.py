@@ -102,27 +102,36 @@ def test_interpolation_from_the_upper_neighbour_as_numpy_does():
     assert np.array_equal(samples._points(data, (16,)), expected)
 
 
-def test_a_missed_bracket_falls_back_to_the_whole_partition(monkeypatch):
+def test_a_probe_far_off_only_fills_a_bin(monkeypatch):
     """The probe of every (n / 2048)-th sample is made unrepresentative (those samples are
-    moved far up): its brackets miss the ranks, the count says so, and the whole sample is
-    partitioned instead; ordinary samples never need that."""
+    moved far up): the bins it places then miss the ranks' neighbourhood, so the ranks fall
+    in an end bin with many samples, and the numbers are numpy's all the same, still without
+    partitioning every sample."""
     calls = count_calls(monkeypatch, samples, "_partitioned")
     rng = np.random.default_rng(23)
     ordinary = rng.standard_normal(100_000)
     assert np.array_equal(samples._points(ordinary, POINTS), _numpy(ordinary))
-    assert calls == []
     skewed = rng.standard_normal(100_000)
     skewed[::100_000 // samples._PROBE] += 50.0
     assert np.array_equal(samples._points(skewed, POINTS), _numpy(skewed))
+    assert calls == []
+
+
+def test_ranks_among_equal_values_are_found_by_the_whole_partition(monkeypatch):
+    """Where the probe sees one value all around the ranks (a sample mostly of one number)
+    there is no width to divide into bins: every sample is partitioned, as numpy does."""
+    calls = count_calls(monkeypatch, samples, "_partitioned")
+    rng = np.random.default_rng(3)
+    data = np.where(rng.random(50_000) < 0.9, 2.5, rng.standard_normal(50_000))
+    assert np.array_equal(samples._points(data, POINTS), _numpy(data))
     assert calls == [1]
 
 
 def test_a_probe_off_the_middle_by_chance_still_brackets(monkeypatch):
     """Cells computed from the same inputs share one probe, so a probe somewhat off the middle
     by chance (here 3.3 standard deviations of its count below the median: 75 of its 2,084
-    samples moved across) is met by every such cell. Its brackets still hold the ranks, as a
-    bracket of three standard deviations did not (12 of the 50 cells of the P7 benchmark sheet
-    fell back to the whole partition)."""
+    samples moved across) is met by every such cell. The bins it places still hold the ranks
+    (the numbers are numpy's, and no whole partition is needed)."""
     calls = count_calls(monkeypatch, samples, "_partitioned")
     data = np.random.default_rng(7).standard_normal(100_000)
     probe = data[::100_000 // samples._PROBE]           # a view: the probe's samples
@@ -166,3 +175,60 @@ def test_points_asked_ahead_are_found_beside_the_evaluation():
     later = Sheet.from_text(text).monte_carlo(20_000, seed=3)
     assert later["v"].samples is not None and later["v"]._points is None
     assert np.array_equal(later["v"].percentiles(), ahead["v"].percentiles())
+
+
+def test_rows_found_together_are_each_rows_own_numbers():
+    """Several cells' samples stacked and summarised together give, row by row, what numpy
+    gives for the row alone (np.mean, np.std with ddof=1, np.percentile), to the last bit:
+    skewed, heavy-tailed, mostly-one-value and rows with infinite samples included; a row
+    whose samples are all one value is exact (no σ, no samples)."""
+    from calc.engine.summaries import summarised_together
+
+    rng = np.random.default_rng(17)
+    n = 30_000
+    rows = [rng.standard_normal(n) * 3e8 + 1e9, rng.standard_cauchy(n),
+            np.exp(rng.standard_normal(n) * 2), np.where(rng.random(n) < 0.9, 2.5, rng.random(n)),
+            np.concatenate([rng.standard_normal(n - 3), [np.inf, -np.inf, np.inf]]),
+            np.full(n, 4.75), np.round(rng.standard_normal(n), 1)]
+    stack = np.stack(rows)
+    with np.errstate(all="ignore"):
+        summaries = summarised_together(stack, points=True)
+        for row, summary in zip(rows, summaries):
+            assert np.array_equal(summary.mean, np.mean(row), equal_nan=True)
+            if np.all(row == row[0]):
+                assert summary.spread is None and summary.samples is None
+                continue
+            assert np.array_equal(summary.spread, np.std(row, ddof=1), equal_nan=True)
+            assert np.array_equal(summary.points, _numpy(row), equal_nan=True)
+
+
+def test_the_summariser_hands_cells_over_a_batch_at_a_time(monkeypatch):
+    """Every hand-over wakes the summarising thread, which then takes the GIL from the
+    evaluation: cells go over four at a time, and the rest when the run ends. A summary asked
+    for before its batch is whole is found all the same (no wait for cells that never come)."""
+    import queue as queue_module
+
+    from calc.engine import summaries
+
+    puts: list[int] = []
+    original_put = queue_module.SimpleQueue.put
+
+    class Counting(queue_module.SimpleQueue):
+        def put(self, item, block=True, timeout=None):
+            puts.append(0 if item is None else len(item))
+            original_put(self, item, block, timeout)
+
+    monkeypatch.setattr(summaries.queue, "SimpleQueue", Counting)
+    rng = np.random.default_rng(2)
+    cells = [rng.standard_normal(10_000) + k for k in range(10)]
+    summariser = summaries.Summariser(points=True)
+    futures = [summariser.submit(cell) for cell in cells]
+    assert puts == [4, 4]
+    early = futures[9].result(timeout=20)          # its batch of two is not whole yet
+    assert np.array_equal(early.points, _numpy(cells[9]))
+    summariser.close()
+    assert puts == [4, 4, 2, 0]
+    for cell, future in zip(cells, futures):
+        summary = future.result(timeout=20)
+        assert summary.mean == np.mean(cell) and summary.spread == np.std(cell, ddof=1)
+        assert np.array_equal(summary.points, _numpy(cell))

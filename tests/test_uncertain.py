@@ -266,7 +266,7 @@ def test_the_sample_spread_is_numpys_standard_deviation(shape):
     """The σ `--mc` shows is np.std(ddof=1) of the samples to the last bit (numpy is the
     reference), though it reuses the mean found for the shown value; with an infinite and a
     nan sample as numpy gives them."""
-    from calc.engine.values import sample_spread
+    from calc.engine.summaries import sample_spread
 
     rng = np.random.default_rng(5)
     data = np.exp(rng.standard_normal(shape)) * 3.7e11

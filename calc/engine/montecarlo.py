@@ -10,7 +10,6 @@ importing sheet is drawn once; each runs under its own pinned constants.
 
 from __future__ import annotations
 
-from concurrent.futures import ThreadPoolExecutor
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -18,6 +17,7 @@ import numpy as np
 from ..errors import InternalError, SheetError, UsageError
 from .context import Progress, Sampling, entered, memory_budget
 from .run import Env, failed_input, run_cell
+from .summaries import Summariser
 from .values import ShownValue, is_uncertain, leaves, shown
 
 if TYPE_CHECKING:
@@ -52,21 +52,24 @@ def run(sheet, samples: int, seed: int | None, progress: Progress | None = None,
         points: bool = False) -> dict[str, ShownValue | SheetError]:
     """Per cell of ``sheet``: its shown form under Monte Carlo (sample mean and standard
     deviation, percentiles on request; cells that depend on no input as they are), or its
-    error. Each cell's mean and σ are found on a thread beside the evaluation as its samples
-    are ready; with ``points`` (the percentiles will be asked for) its percentiles too."""
+    error. ``points``: the percentiles will be asked for; each cell's mean, σ and
+    percentiles are then found on a thread beside the evaluation as its samples are ready."""
     _check_memory(sheet, samples)
     sampling = Sampling(samples, seed, progress)
     out: dict[str, ShownValue | SheetError] = {}
-    # each cell's samples are summarised on a thread as they are ready (numpy's reductions and
-    # selection run without the GIL, beside the evaluation of the next cells)
-    summaries = ThreadPoolExecutor(1, thread_name_prefix="relsheet-summaries")
+    # with the points asked for, each cell's samples are summarised on a thread as they are
+    # ready (numpy's reductions and selection run without the GIL, beside the evaluation of
+    # the next cells). Without them the mean and σ are found here: handing them to a thread
+    # cost more than it saved (bench P7)
+    summariser = Summariser(points=True) if points else None
     try:
         for each in imports_first(sheet):
             env, out = _evaluate(each, sampling, progress if each is sheet else None,
-                                 summaries if each is sheet else None, points)
+                                 summariser if each is sheet else None)
             sampling.results[each] = env
     finally:
-        summaries.shutdown(wait=False)   # what is queued still runs; Shown waits for it
+        if summariser is not None:
+            summariser.close()   # what is queued still runs; Shown waits for it
     return out
 
 
@@ -89,7 +92,7 @@ def _check_memory(sheet, samples: int) -> None:
 
 
 def _evaluate(sheet, sampling: Sampling, progress: Progress | None,
-              summaries: ThreadPoolExecutor | None = None, points: bool = False
+              summariser: Summariser | None = None
               ) -> tuple[Env, dict[str, ShownValue | SheetError]]:
     """One pass over a sheet's cells in order, with its inputs drawn."""
     cells = sheet.engine
@@ -116,7 +119,7 @@ def _evaluate(sheet, sampling: Sampling, progress: Progress | None,
                                                    cell.definition.span, program.source)
                 continue
             env[name] = value
-            out[name] = shown(value, summaries, points)
+            out[name] = shown(value, summariser)
             if progress is not None:
                 progress(index + 1, len(cells.order))
         if cells.solves:

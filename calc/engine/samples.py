@@ -167,15 +167,19 @@ def draw(normal: np.ndarray, nominal: u.Quantity, sigma: u.Quantity,
 
 # ---- percentiles ------------------------------------------------------------------------------
 # `--mc` shows the 16/50/84 % points of every cell. np.percentile finds them with a partition of
-# all the samples at six ranks (about 2.3 ms for 10^5 samples with numpy 2.4). Here the ranks are
-# bracketed first, as in Floyd & Rivest's selection (Comm. ACM 18, 165, 1975): the ranks' places
-# in a sorted probe of 2,048 of the samples give bounds that hold each pair of ranks with near
-# certainty; one comparison pass counts the samples below a pair's lower bound and picks those
-# between its bounds (a few per cent), and only those are partitioned. Whenever a bracket misses
-# (possible, never wrong: the count says so), all samples are partitioned as numpy does. The
-# points are then interpolated between the ranks exactly as np.percentile does (method "linear",
-# Hyndman & Fan's definition 7): the same numbers to the last bit, which :func:`_agrees` checks
-# once per process before the first use.
+# all the samples at six ranks (about 2 ms for 10^5 samples with numpy 2.4). Here one counting
+# pass finds which samples hold the ranks, as in a distribution counting sort (Knuth, TAOCP
+# vol. 3, 5.2, algorithm D): every sample is put in one of 4,096 bins of equal width over the
+# range where a sorted probe of 2,048 samples places the ranks (samples outside it in the end
+# bins). A bin is a monotone function of the value (a subtraction and a multiplication, each
+# correctly rounded, then clipping and truncation), so the bins' counts say exactly how many
+# samples lie below each bin and which bin holds each rank; only that bin's samples (a few
+# dozen) are sorted. A poor probe can only make that bin fuller, never a number wrong. The
+# samples of several cells go through together (rows of one array, each row's bins numbered on
+# from the last row's), one numpy call per step for all of them.
+# The points are then interpolated between the ranks exactly as np.percentile does (method
+# "linear", Hyndman & Fan's definition 7): the same numbers to the last bit, which
+# :func:`_agrees` checks once per process before the first use.
 
 #: The points `--mc` shows.
 POINTS = (16, 50, 84)
@@ -183,15 +187,17 @@ POINTS = (16, 50, 84)
 #: Below this many samples np.percentile itself is as fast.
 _FAST_FROM = 4096
 
-#: Samples in the probe that brackets the ranks.
+#: Samples in the probe that places the bins.
 _PROBE = 2048
 
-#: Half the width of a bracket, in standard deviations of a rank's place in the probe. Three
-#: missed a bracket in 12 of the 50 cells of bench/workloads.mc_sheet (seed 1): cells computed
-#: from the same inputs share one probe, so a probe a little off the middle (3σ, by chance) made
-#: every cell derived from it miss, and a miss costs the whole partition (three times the
-#: bracketing). Four misses a given bound about once in 30,000 probes.
+#: The bins span the ranks' places in the probe and this many standard deviations of those
+#: places (binomial) beyond, so that the ranks fall inside them with near certainty (outside,
+#: in an end bin, they are still found, among more samples).
 _MARGIN = 4
+
+#: Bins of the counting pass (their numbers fit in 16 bits: a quarter of the memory traffic
+#: of 64-bit ones).
+_BINS = 4096
 
 
 def percentiles(data: np.ndarray, points=POINTS, finite: bool = False) -> np.ndarray:
@@ -212,18 +218,54 @@ def percentiles(data: np.ndarray, points=POINTS, finite: bool = False) -> np.nda
 
 def _points(x: np.ndarray, points, finite: bool = False) -> np.ndarray:
     """The percentiles of a 1-d float array, as np.percentile computes them."""
-    plan = _plan(x.size, tuple(points))
-    if plan is None or (not finite and np.isnan(x).any()):
+    if _plan(x.size, tuple(points)) is None or (not finite and np.isnan(x).any()):
         return np.percentile(x, list(points))           # nan, or an end point: numpy's own way
+    return rows_percentiles(x[np.newaxis], points)[0]
+
+
+class Scratch:
+    """Arrays kept for reuse from one call to the next: a large new array costs the zeroing of
+    its pages by the kernel each time (a few megabytes: about a millisecond)."""
+
+    def __init__(self) -> None:
+        self._arrays: dict[str, np.ndarray] = {}
+
+    def array(self, name: str, shape: tuple[int, ...], dtype) -> np.ndarray:
+        """An array of this shape and type, its contents undefined (the same memory as the
+        last one of that name when that was as large)."""
+        size = math.prod(shape)
+        kept = self._arrays.get(name)
+        if kept is None or kept.dtype != dtype or kept.size < size:
+            kept = self._arrays[name] = np.empty(size, dtype)
+        return kept[:size].reshape(shape)
+
+
+def rows_percentiles(rows: np.ndarray, points=POINTS, scratch: Scratch | None = None
+                     ) -> np.ndarray:
+    """The percentiles of each row of a (k, n) float64 array without nan, as np.percentile
+    finds them for the row alone, shape (k, len(points)); all rows at once, with one numpy
+    call per step (n of at least 4,096, and no point at an end: see :func:`can_take_rows`);
+    ``scratch`` keeps the working arrays for the next call."""
+    plan = _plan(rows.shape[1], tuple(points))
+    assert plan is not None, "rows_percentiles of rows it cannot take (can_take_rows)"
     previous_ranks, next_ranks, gamma, upper = plan
-    found = _order_statistics(x, sorted({*previous_ranks, *next_ranks}))
-    below = np.array([found[r] for r in previous_ranks])
-    above = np.array([found[r] for r in next_ranks])
-    # numpy's _lerp: a + (b - a) t, or b - (b - a)(1 - t) from t = 0.5 on
+    ranks = sorted({*previous_ranks, *next_ranks})
+    found = _order_statistics(rows, ranks, scratch or Scratch())
+    column = {r: i for i, r in enumerate(ranks)}
+    below = found[:, [column[r] for r in previous_ranks]]
+    above = found[:, [column[r] for r in next_ranks]]
+    # numpy's _lerp: a + (b - a) t, or b - (b - a)(1 - t) from t = 0.5 on (element by element:
+    # a row's numbers are those it would have alone)
     difference = above - below
     result = np.add(below, difference * gamma)
     np.subtract(above, difference * (1 - gamma), out=result, where=upper)
     return result
+
+
+def can_take_rows(n: int, dtype, points=POINTS) -> bool:
+    """Whether :func:`rows_percentiles` gives np.percentile's numbers for rows of ``n``."""
+    return n >= _FAST_FROM and dtype == np.float64 and _plan(n, tuple(points)) is not None \
+        and _agrees()
 
 
 @lru_cache(maxsize=64)
@@ -241,30 +283,72 @@ def _plan(n: int, points: tuple) -> tuple | None:
             gamma >= 0.5)
 
 
-def _order_statistics(x: np.ndarray, ranks: list[int]) -> dict[int, float]:
-    """The values of the given 0-based ranks (sorted) of ``x`` in sorted order (no nan)."""
-    n = x.size
-    probe = np.sort(x[::max(1, n // _PROBE)])
-    m = probe.size
-    found: dict[int, float] = {}
-    for group in _adjacent(ranks):
-        # the place of rank r's value in the probe scatters by sqrt(m p (1 - p)) places
-        # around m p (p = r / n; binomial): _MARGIN of those either side, and two for rounding
-        share = group[0] / (n - 1)
-        margin = int(_MARGIN * math.sqrt(m * share * (1 - share))) + 2
-        first = int(share * (m - 1)) - margin
-        last = math.ceil(group[-1] / (n - 1) * (m - 1)) + margin
-        low = probe[first] if first >= 0 else -np.inf
-        high = probe[last] if last < m else np.inf
-        inside = x >= low                       # (no nan here: x < low is the rest)
-        below = n - int(np.count_nonzero(inside))
-        np.logical_and(inside, x <= high, out=inside)
-        between = np.compress(inside, x)
-        if not (below <= group[0] and group[-1] < below + between.size):
-            return _partitioned(x, ranks)       # a bracket missed: the whole partition
-        between.partition([r - below for r in group])
-        found.update((r, between[r - below]) for r in group)
+def _order_statistics(rows: np.ndarray, ranks: list[int], scratch: Scratch) -> np.ndarray:
+    """The values of the given 0-based ranks (sorted) of each row of ``rows`` (k, n) in sorted
+    order (no nan), shape (k, len(ranks))."""
+    k, n = rows.shape
+    probe = np.sort(rows[:, ::max(1, n // _PROBE)], axis=1)
+    m = probe.shape[1]
+    low = probe[:, max(_probe_place(ranks[0], n, m, -1), 0)]
+    high = probe[:, min(_probe_place(ranks[-1], n, m, +1), m - 1)]
+    found = np.empty((k, len(ranks)))
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        scale = (_BINS - 1) / (high - low)
+        binned = np.isfinite(low) & np.isfinite(scale) & (scale > 0)
+        for row in np.flatnonzero(~binned).tolist():
+            # the ranks' neighbourhood is one value, or infinite: the whole partition
+            found[row] = _partitioned(rows[row], ranks)
+        if not binned.any():
+            return found
+        if not binned.all():
+            rows, low, scale = rows[binned], low[binned], scale[binned]
+        position = np.subtract(rows, low[:, np.newaxis],
+                               out=scratch.array("position", rows.shape, np.float64))
+        np.multiply(position, scale[:, np.newaxis], out=position)
+        np.clip(position, 0.0, _BINS - 1.0, out=position)
+    count = len(rows)
+    # each row's bins numbered on from the last row's: one count and one look-up serve all
+    bins = scratch.array("bins", rows.shape, np.intp)
+    np.copyto(bins, position, casting="unsafe")         # truncation, as astype does
+    if count > 1:
+        bins += np.arange(0, count * _BINS, _BINS)[:, np.newaxis]
+    up_to = np.cumsum(np.bincount(bins.ravel(), minlength=count * _BINS).reshape(count, _BINS),
+                      axis=1)                            # a row's samples in its bins 0 … b
+    groups = _adjacent(ranks)
+    # the bin of rank r: the first whose count up to it exceeds r; the counts of row i, raised
+    # by i n, make one rising sequence to search
+    rising = (up_to + np.arange(0, count * n, n)[:, np.newaxis]).ravel()
+    lifted = np.arange(0, count * n, n)[:, np.newaxis]
+    first = np.searchsorted(rising, lifted + [g[0] for g in groups], side="right")
+    last = np.searchsorted(rising, lifted + [g[-1] for g in groups], side="right")
+    below = np.where(first % _BINS > 0, rising[first - 1] - lifted, 0)
+    wanted = np.zeros(count * _BINS, dtype=bool)
+    for start, stop in zip(first.ravel().tolist(), last.ravel().tolist()):
+        wanted[start:stop + 1] = True
+    chosen = wanted.take(bins, out=scratch.array("chosen", rows.shape, np.bool_))
+    where = bins[chosen]
+    values = rows[chosen]
+    order = np.lexsort((values, where))         # by bin, then by value: sorted by value
+    values = values[order]
+    starts = np.searchsorted(where[order], first)           # where each group's samples start
+    columns = {r: i for i, r in enumerate(ranks)}
+    picked = np.empty((count, len(ranks)))
+    for g, group in enumerate(groups):
+        for r in group:
+            picked[:, columns[r]] = values[starts[:, g] + (r - below[:, g])]
+    if count == k:
+        return picked
+    found[binned] = picked
     return found
+
+
+def _probe_place(rank: int, n: int, m: int, side: int) -> int:
+    """Where rank ``rank`` of ``n`` samples falls in a sorted probe of ``m`` of them, moved
+    ``_MARGIN`` standard deviations (and two for rounding) to one ``side``: the place
+    scatters binomially, by sqrt(m p (1 - p)) around m p (p = rank / n)."""
+    share = rank / (n - 1)
+    margin = int(_MARGIN * math.sqrt(m * share * (1 - share))) + 2
+    return (int(share * (m - 1)) if side < 0 else math.ceil(share * (m - 1))) + side * margin
 
 
 def _adjacent(ranks: list[int]) -> list[list[int]]:
@@ -278,9 +362,8 @@ def _adjacent(ranks: list[int]) -> list[list[int]]:
     return groups
 
 
-def _partitioned(x: np.ndarray, ranks: list[int]) -> dict[int, float]:
-    work = np.partition(x, ranks)
-    return {r: work[r] for r in ranks}
+def _partitioned(x: np.ndarray, ranks: list[int]) -> np.ndarray:
+    return np.partition(x, ranks)[ranks]
 
 
 _AGREES: list[bool] = []

@@ -44,6 +44,7 @@ from .grid import key as axis_key
 from .grid import union as grid_union
 from .grid import wrap as grid_wrap
 from .samples import Samples, percentiles, value_ndim
+from .summaries import Summariser, Summary, finite, rounding_free, summarised
 from .truth import Truth
 from .uncertain import Input, Uncertain
 
@@ -798,23 +799,25 @@ class Shown:
         self._summary: Any = None
 
     @classmethod
-    def of_samples(cls, data: np.ndarray, unit: u.UnitBase, executor=None,
-                   points: bool = False) -> Shown:
+    def of_samples(cls, data: np.ndarray, unit: u.UnitBase,
+                   summariser: Summariser | None = None) -> Shown:
         """The shown form of samples (``data``: the sample axis first): their mean and
-        standard deviation, and with ``points`` their 16/50/84 % points, found on
-        ``executor`` when given (a thread: numpy's reductions and selection run without the
-        GIL), else now (the points then when first asked for)."""
-        if executor is None:
-            return _summarised(data, False).shown(unit)
+        standard deviation, found by ``summariser`` when given (on its thread, with the
+        percentiles if it finds them), else now (the points then when first asked for)."""
         made = cls(None, None, unit)
-        made._summary = executor.submit(_summarised, data, points)
+        if summariser is None:
+            made._take(summarised(data))
+        else:
+            made._summary = summariser.submit(data)
         return made
+
+    def _take(self, summary: Summary) -> None:
+        self._value, self._sigma, self._samples, self._points = \
+            summary.mean, summary.spread, summary.samples, summary.points
 
     def _settle(self) -> None:
         """Take the background summary's results (waiting for them if need be)."""
-        summary = self._summary.result()
-        self._value, self._sigma, self._samples, self._points = \
-            summary.mean, summary.spread, summary.samples, summary.points
+        self._take(self._summary.result())
         self._summary = None
 
     @property
@@ -849,51 +852,13 @@ class Shown:
         if samples is None:
             return None
         if self._points is None:
-            self._points = _points_of(samples, _finite(self._value))
+            self._points = _points_of(samples, finite(self._value))
         return self._points
 
     def __repr__(self) -> str:
         if self._summary is not None:
             return f"Shown(<being summarised>, {self.unit})"
         return f"Shown({self._value!r}, {self._sigma!r}, {self.unit}, kind={self.kind!r})"
-
-
-class _Summary:
-    """What a cell's samples come to: mean, standard deviation (None when the samples differ
-    only by rounding: the value is exact), the samples, and the points when found."""
-
-    __slots__ = ("mean", "spread", "samples", "points")
-
-    def __init__(self, mean, spread, samples: np.ndarray | None,
-                 points: np.ndarray | None) -> None:
-        self.mean = mean
-        self.spread = spread
-        self.samples = samples
-        self.points = points
-
-    def shown(self, unit: u.UnitBase) -> Shown:
-        made = Shown(self.mean, self.spread, unit, samples=self.samples)
-        made._points = self.points
-        return made
-
-
-def _summarised(data: np.ndarray, points: bool) -> _Summary:
-    """The summary of samples (the sample axis first), with their points if asked."""
-    with np.errstate(all="ignore"):   # samples with inf or nan give nan mean, σ and points
-        mean = np.mean(data, axis=0)
-        count = data.shape[0]
-        spread = sample_spread(data, mean) if count > 1 else np.zeros(data.shape[1:])
-        if count > 1 and rounding_free(mean, spread) is None:
-            # every sample the same but for rounding (a cell the inputs cancel out of): exact
-            return _Summary(mean, None, None, None)
-        found = percentiles(data, finite=_finite(mean)) if points else None
-    return _Summary(mean, spread, data, found)
-
-
-def _finite(mean) -> bool:
-    """Whether every sample is finite: their mean is (a nan or an infinite sample makes the
-    sum nan or infinite)."""
-    return bool(np.isfinite(mean).all())
 
 
 def _points_of(samples: np.ndarray, finite: bool) -> np.ndarray:
@@ -922,41 +887,11 @@ class ShownRecords:
 ShownValue = Union[Shown, ShownRecord, ShownRecords]
 
 
-#: A σ this many float roundings of its value, or fewer, is rounding noise, not an uncertainty:
-#: contributions that cancel exactly leave that much behind.
-ROUNDING_NOISE = 16 * np.finfo(float).eps
-
-
-def rounding_free(value, sigma):
-    """σ with the rounding noise of exact cancellations set to zero; None when nothing is left
-    (the value is exact)."""
-    sigma = np.asarray(sigma, dtype=float)
-    noise = sigma <= ROUNDING_NOISE * np.abs(np.asarray(value, dtype=float))
-    if np.all(noise):
-        return None
-    if np.any(noise):
-        sigma = np.where(noise, 0.0, sigma)
-    return sigma if sigma.ndim else float(sigma)
-
-
-#: numpy 2's np.std takes the mean already found (``mean=``, with the reduced axis kept)
-_STD_TAKES_MEAN = np.lib.NumpyVersion(np.__version__) >= "2.0.0"
-
-
-def sample_spread(data: np.ndarray, mean) -> np.ndarray:
-    """``np.std(data, axis=0, ddof=1)``, the same numbers, given ``np.mean(data, axis=0)``:
-    numpy's standard deviation divides the same sum by the same count for its mean, so the
-    mean found for the shown value saves numpy a pass over the samples."""
-    if _STD_TAKES_MEAN:
-        return np.std(data, axis=0, ddof=1, mean=np.reshape(mean, (1, *np.shape(mean))))
-    return np.std(data, axis=0, ddof=1)
-
-
-def shown(value, executor=None, points: bool = False) -> ShownValue:
-    """The printable form of a value of any kind. Samples are summarised on ``executor`` when
-    given, with their percentiles if ``points`` (:meth:`Shown.of_samples`)."""
+def shown(value, summariser: Summariser | None = None) -> ShownValue:
+    """The printable form of a value of any kind. Samples are summarised by ``summariser``
+    when given (:meth:`Shown.of_samples`)."""
     if isinstance(value, Grid):
-        inner = shown(value.data, executor, points)
+        inner = shown(value.data, summariser)
         names = tuple(a.name for a in value.axes)
         if isinstance(inner, Shown):
             inner.axes = names
@@ -982,14 +917,14 @@ def shown(value, executor=None, points: bool = False) -> ShownValue:
                      else text, None, u.dimensionless_unscaled, kind="date")
     if isinstance(value, Record):
         return ShownRecord(value.kind, value.label,
-                           {k: shown(q, executor, points) for k, q in value.fields.items()})
+                           {k: shown(q, summariser) for k, q in value.fields.items()})
     if isinstance(value, RecordList):
-        return ShownRecords([shown(r, executor, points) for r in value.items])  # type: ignore[misc]
+        return ShownRecords([shown(r, summariser) for r in value.items])  # type: ignore[misc]
     if isinstance(value, Uncertain):
         return Shown(value.nominal.value, rounding_free(value.nominal.value, value.sigma_value()),
                      value.unit)
     if isinstance(value, Samples):
-        return Shown.of_samples(np.asarray(value.data.value), value.unit, executor, points)
+        return Shown.of_samples(np.asarray(value.data.value), value.unit, summariser)
     if isinstance(value, u.Quantity):
         return Shown(value.value, None, value.unit)
     raise DomainError(f"a value of an unknown kind: {type(value).__name__}")
