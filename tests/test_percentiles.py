@@ -208,7 +208,7 @@ def test_the_summariser_hands_cells_over_a_batch_at_a_time(monkeypatch):
     for before its batch is whole is found all the same (no wait for cells that never come)."""
     import queue as queue_module
 
-    from calc.engine import summaries
+    from calc.engine import summary_thread as summaries
 
     puts: list[int] = []
     original_put = queue_module.SimpleQueue.put

@@ -17,11 +17,11 @@ import numpy as np
 from ..errors import InternalError, SheetError, UsageError
 from .context import Progress, Sampling, entered, memory_budget
 from .run import Env, failed_input, run_cell
-from .summaries import Summariser
 from .values import ShownValue, is_uncertain, leaves, shown
 
 if TYPE_CHECKING:
     from .sheet import Sheet
+    from .summary_thread import Summariser
 
 #: Largest number of samples × values a run may hold at once (8 bytes each: 2 GB).
 MAX_SAMPLE_VALUES = 250_000_000
@@ -61,7 +61,11 @@ def run(sheet, samples: int, seed: int | None, progress: Progress | None = None,
     # ready (numpy's reductions and selection run without the GIL, beside the evaluation of
     # the next cells). Without them the mean and σ are found here: handing them to a thread
     # cost more than it saved (bench P7)
-    summariser = Summariser(points=True) if points else None
+    summariser = None
+    if points:
+        from .summary_thread import Summariser
+
+        summariser = Summariser(points=True)
     try:
         for each in imports_first(sheet):
             env, out = _evaluate(each, sampling, progress if each is sheet else None,

@@ -27,7 +27,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
-from typing import Any, Union
+from typing import TYPE_CHECKING, Any, Union
 
 import astropy.units as u
 import numpy as np
@@ -44,9 +44,12 @@ from .grid import key as axis_key
 from .grid import union as grid_union
 from .grid import wrap as grid_wrap
 from .samples import Samples, percentiles, value_ndim
-from .summaries import Summariser, Summary, finite, rounding_free, summarised
+from .summaries import Summary, finite, rounding_free, summarised
 from .truth import Truth
 from .uncertain import Input, Uncertain
+
+if TYPE_CHECKING:
+    from .summary_thread import Summariser
 
 _item = np.ndarray.item  # the float of a 0-d array
 
