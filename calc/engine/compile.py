@@ -74,7 +74,6 @@ from ..physics.units import (
 )
 from .arrays import axis_op, compare_op, index_op
 from .context import context
-from .datafiles import read_table_call
 from .grid import Grid
 from .run import (
     ADD,
@@ -745,6 +744,8 @@ class _Compiler:
 
     def call(self, node: Call, depth: int) -> Code:
         if node.function == "read_table":   # a data file: calc/engine/datafiles.py
+            from .datafiles import read_table_call  # (imported when a sheet reads a table)
+
             self.looked_up.add(node.function)
             self.trusted = False
             table = read_table_call(node.function_span, node.args, node.keywords,

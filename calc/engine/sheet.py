@@ -43,7 +43,6 @@ from ..language.scope import Scope
 from ..language.syntax import CellDef, CheckDef, Expr, PlotDef, TableDef, UseDef
 from ..physics.constants import ConstantSelection
 from ..physics.units import conversion_scale, physical_type, unit_table, unit_text
-from . import budget, montecarlo
 from .build import Built, Imports, build, function_errors, import_sheet
 from .cells import Cell, Cells
 from .checks import CheckResult
@@ -54,6 +53,7 @@ from .truth import Truth
 from .values import ShownValue, is_record
 
 if TYPE_CHECKING:
+    from .budget import BudgetRow
     from .stream import ChunkEvaluator
 
 if TYPE_CHECKING:
@@ -531,12 +531,14 @@ class Sheet:
             raise cell.error
         return cell.sigma
 
-    def sigma_budget(self, name: str) -> list[budget.BudgetRow]:
+    def sigma_budget(self, name: str) -> list[BudgetRow]:
         """Each independent input's contribution to cell ``name`` and its share of σ²,
         largest first; correlated pairs add a row for their joint term."""
         cell = self.cell(name)
         if cell.error is not None:
             raise cell.error
+        from . import budget  # (imported when asked: most runs make no σ budget)
+
         with entered(self.context):
             return budget.rows(cell.raw)
 
@@ -547,6 +549,8 @@ class Sheet:
         once; returns per cell its shown form (sample mean, standard deviation, percentiles),
         or the error. ``points``: the percentiles of every cell will be asked for (they are
         then found beside the evaluation, in a thread)."""
+        from . import montecarlo  # (imported when asked: most runs are linear)
+
         with numeric_context():
             return montecarlo.run(self, samples, seed, progress, points)
 
