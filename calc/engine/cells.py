@@ -147,12 +147,15 @@ class Cells:
         self.reorder()
         for name in self.order:
             self.compute(name)
-        from .solve import compile_solve, plan
-
         self.correlate(source)
-        self.solves = [compile_solve(d, self, source) for d in solve_definitions]
-        for program in self.solves:
-            plan(program, self)
+        self.solves = []
+        solve_definitions = list(solve_definitions)
+        if solve_definitions:
+            from .solve import compile_solve, plan  # (imported only by a sheet that solves)
+
+            self.solves = [compile_solve(d, self, source) for d in solve_definitions]
+            for program in self.solves:
+                plan(program, self)
         self.resolve()
         self.check_programs = [compile_check(d, self.scope, source, self.inputs)
                                for d in check_definitions]
@@ -248,6 +251,8 @@ class Cells:
     def resolve(self) -> list[Cell]:
         """Run every solve from its unknowns' current values, and what they reach; returns the
         cells that changed."""
+        if not self.solves:
+            return []
         from .solve import solve_nominal, with_uncertainty
 
         forced: set[str] = set()
