@@ -304,7 +304,6 @@ def test_a_cache_folder_copied_from_elsewhere_does_not_verify(folder, lark_calls
     assert len(lark_calls) == before + 1
 
 
-
 def test_an_entry_is_signed_with_keyed_blake2b_bound_to_the_key_file(folder):
     """The MAC is BLAKE2b in its keyed mode (RFC 7693 §2.5; hashlib.blake2b with key=, the
     stdlib's implementation, is the reference here), keyed by the key file's bytes bound to
@@ -336,7 +335,7 @@ def test_evaluating_a_cached_sheet_loads_neither_lark_nor_openssl(folder, tmp_pa
 
     sheet = tmp_path / "s.sheet"
     sheet.write_text(SHEET, encoding="utf-8")
-    code = ("import sys, runpy; sys.argv = ['relsheet', 'eval', sys.argv[1]]\n"
+    code = ("import sys; sys.argv = ['relsheet', 'eval', sys.argv[1]]\n"
             "from calc.interfaces import cli\n"
             "try:\n    cli.main()\nexcept SystemExit:\n    pass\n"
             "print(sorted(m for m in sys.modules if m.split('.')[0] in "
@@ -347,6 +346,7 @@ def test_evaluating_a_cached_sheet_loads_neither_lark_nor_openssl(folder, tmp_pa
                            text=True, env=env, check=True) for _ in range(2)]
     assert "'lark'" in runs[0].stdout                        # the first run parses
     assert runs[1].stdout.strip().splitlines()[-1] == "[]"   # the second reads the cache
+
 
 # ---- the analysed grammar ----------------------------------------------------------------------
 

@@ -19,8 +19,8 @@ is trusted:
 * every entry carries a keyed BLAKE2b MAC (RFC 7693; BLAKE2's keyed mode is a
   MAC by design, needing no HMAC construction) over what it stands for (the
   digest of the text it was parsed from, or of the grammar) and its contents,
-  keyed by a random key kept in the folder (0600). The key is bound to the key file's
-  own identity (device, inode, change time), so a folder copied in from
+  keyed by a random key kept in the folder (0600). The key is bound to the key
+  file's own identity (device, inode, change time), so a folder copied in from
   elsewhere — a cache committed to a repository and checked out with a
   restrictive umask — does not verify here.
 
